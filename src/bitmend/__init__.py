@@ -1,0 +1,15 @@
+"""bitmend: streaming forward error correction with linear block codes.
+
+    import bitmend
+    blob = bitmend.encode_bytes(b"gauge 17: 2.31 m")
+    result = bitmend.decode_bytes(blob)
+    result.data, result.report.summary.complete
+"""
+
+from bitmend.api import (Decoded, Decoder, Encoder, DamagedDataError, NotAContainerError, decode_bytes,
+                         encode_bytes, open)
+from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH, code_names, get_code
+
+__all__ = ["open", "Encoder", "Decoder", "encode_bytes", "decode_bytes", "Decoded", "NotAContainerError",
+           "DamagedDataError", "get_code", "code_names", "DEFAULT_CODE", "DEFAULT_DEPTH"]
+__version__ = "0.1.0"

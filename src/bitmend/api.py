@@ -1,0 +1,187 @@
+"""Python API in the style of the gzip module: open(), Encoder, Decoder and one-shot helpers.
+
+    with bitmend.open("log.bmd", "wb", code="hamming-15-11", depth=8) as f:
+        f.write(data)
+    with bitmend.open("log.bmd", "rb") as f:
+        data = f.read()
+        print(f.report.summary.one_line())
+"""
+
+from __future__ import annotations
+
+import io
+import os
+from dataclasses import dataclass
+from typing import BinaryIO, Callable, Iterator
+
+from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH
+from bitmend.container.assembler import Assembler, DamagedDataError, NotAContainerError
+from bitmend.container.format import DEFAULT_FRAME_BYTES
+from bitmend.container.writer import FrameWriter
+from bitmend.report import DecodeReport, FrameReport, Summary
+
+__all__ = ["open", "Encoder", "Decoder", "encode_bytes", "decode_bytes", "Decoded",
+           "NotAContainerError", "DamagedDataError"]
+
+PathOrFile = str | os.PathLike | BinaryIO
+
+
+class Encoder(io.BufferedIOBase):
+    """Writable binary file object: bytes written are framed, coded and sent to fileobj."""
+
+    def __init__(self, fileobj: BinaryIO, code: str = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
+                 frame_bytes: int = DEFAULT_FRAME_BYTES, close_fileobj: bool = False) -> None:
+        super().__init__()
+        self._fileobj = fileobj
+        self._writer = FrameWriter(fileobj, code, depth, frame_bytes)
+        self._close_fileobj = close_fileobj
+
+    def writable(self) -> bool:
+        return True
+
+    def write(self, data: bytes) -> int:  # type: ignore[override]
+        if self.closed:
+            raise ValueError("write to closed file")
+        return self._writer.write(bytes(data))
+
+    def flush(self) -> None:
+        """Send buffered bytes as a frame now (use at packet boundaries)."""
+        if not self.closed:
+            self._writer.flush()
+
+    @property
+    def bytes_in(self) -> int:
+        return self._writer.bytes_in
+
+    @property
+    def bytes_out(self) -> int:
+        return self._writer.bytes_out
+
+    def close(self) -> None:
+        if self.closed:
+            return
+        try:
+            self._writer.close()
+        finally:
+            if self._close_fileobj:
+                self._fileobj.close()
+            super().close()
+
+
+class _DecodedRaw(io.RawIOBase):
+    """Raw reader: serves the assembler's output chunks through readinto."""
+
+    def __init__(self, chunks: Iterator[bytes]) -> None:
+        super().__init__()
+        self._chunks = chunks
+        self._current = memoryview(b"")
+
+    def readable(self) -> bool:
+        return True
+
+    def readinto(self, buffer) -> int:  # type: ignore[override]
+        while not self._current:
+            chunk = next(self._chunks, None)
+            if chunk is None:
+                return 0
+            self._current = memoryview(chunk)
+        size = min(len(buffer), len(self._current))
+        buffer[:size] = self._current[:size]
+        self._current = self._current[size:]
+        return size
+
+
+class Decoder(io.BufferedReader):
+    """Readable binary file object over a container; .report holds what was found.
+
+    on_error: 'keep' delivers damaged frames' bytes as corrected as far as possible,
+    'zero' replaces them (and lost frames of known size) with zeros, 'drop' leaves them
+    out, 'fail' raises DamagedDataError at the first damaged or lost frame.
+    on_frame, if given, is called with each FrameReport as it is produced.
+    """
+
+    def __init__(self, fileobj: BinaryIO, on_error: str = "keep", keep_frame_reports: bool = True,
+                 on_frame: Callable[[FrameReport], None] | None = None, close_fileobj: bool = False) -> None:
+        self._assembler = Assembler(fileobj, on_error)
+        self._frame_reports: list[FrameReport] = []
+        self._keep = keep_frame_reports
+        self._on_frame = on_frame
+        self._fileobj = fileobj
+        self._close_fileobj = close_fileobj
+        super().__init__(_DecodedRaw(self._data_chunks()), buffer_size=1 << 16)
+
+    def _data_chunks(self) -> Iterator[bytes]:
+        for data, report in self._assembler:
+            if self._keep:
+                self._frame_reports.append(report)
+            if self._on_frame:
+                self._on_frame(report)
+            if data:
+                yield data
+
+    @property
+    def report(self) -> DecodeReport:
+        """Frame reports so far and the summary (final once the stream is read to the end)."""
+        return DecodeReport(list(self._frame_reports), self._assembler.summary())
+
+    @property
+    def summary(self) -> Summary:
+        return self._assembler.summary()
+
+    @property
+    def bytes_read(self) -> int:
+        """Container bytes consumed from the source so far."""
+        return self._assembler.scanner.bytes_read
+
+    def close(self) -> None:
+        if self.closed:
+            return
+        try:
+            super().close()
+        finally:
+            if self._close_fileobj:
+                self._fileobj.close()
+
+
+def open(file: PathOrFile, mode: str = "rb", *, code: str = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
+         frame_bytes: int = DEFAULT_FRAME_BYTES, on_error: str = "keep") -> Encoder | Decoder:
+    """Open a bitmend container for reading ('rb') or writing ('wb'), from a path or a
+    binary file object; code, depth and frame_bytes apply to writing, on_error to reading."""
+    if mode not in ("rb", "r", "wb", "w"):
+        raise ValueError(f"mode must be 'rb' or 'wb', got {mode!r}")
+    writing = mode.startswith("w")
+    if isinstance(file, (str, bytes, os.PathLike)):
+        fileobj = io.open(file, "wb" if writing else "rb")
+        owned = True
+    elif hasattr(file, "write" if writing else "read"):
+        fileobj, owned = file, False
+    else:
+        raise TypeError("file must be a path or a binary file object")
+    if writing:
+        return Encoder(fileobj, code, depth, frame_bytes, close_fileobj=owned)
+    return Decoder(fileobj, on_error, close_fileobj=owned)
+
+
+@dataclass(frozen=True)
+class Decoded:
+    """Result of decode_bytes: the recovered data and the report."""
+
+    data: bytes
+    report: DecodeReport
+
+
+def encode_bytes(data: bytes, code: str = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
+                 frame_bytes: int = DEFAULT_FRAME_BYTES) -> bytes:
+    """The container for data (one-shot)."""
+    sink = io.BytesIO()
+    with Encoder(sink, code, depth, frame_bytes) as enc:
+        enc.write(data)
+    return sink.getvalue()
+
+
+def decode_bytes(container: bytes, on_error: str = "keep") -> Decoded:
+    """Decode a whole container held in memory; raises NotAContainerError if no frame is
+    found and, with on_error='fail', DamagedDataError at the first damaged or lost frame."""
+    with Decoder(io.BytesIO(container), on_error) as dec:
+        data = dec.read()
+        return Decoded(data, dec.report)

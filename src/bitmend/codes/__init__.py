@@ -1,0 +1,1 @@
+"""Code families and the named catalog."""

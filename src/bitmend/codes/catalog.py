@@ -1,0 +1,83 @@
+"""The catalog of named codes, each with a stable one-byte id carried in frame headers.
+
+Ids are part of the container format (docs/FORMAT.md): never renumber; add new codes
+with new ids. Id 0 is reserved for codes defined inside the stream.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import lru_cache
+from typing import Callable
+
+from bitmend.codes import families
+from bitmend.codes.linear import BinaryLinearCode
+
+DEFAULT_CODE = "golay-24-12"
+DEFAULT_DEPTH = 8
+MAX_DEPTH = 255
+
+
+@dataclass(frozen=True)
+class CatalogEntry:
+    name: str
+    code_id: int
+    build: Callable[[], BinaryLinearCode]
+    use: str  # one line: what the code is good for
+
+
+CATALOG: tuple[CatalogEntry, ...] = (
+    CatalogEntry("rep-3", 1, lambda: families.repetition(3), "very noisy links; triple cost"),
+    CatalogEntry("hamming-7-4", 2, lambda: families.hamming(3), "short blocks, one error per 7 bits"),
+    CatalogEntry("hamming-15-11", 3, lambda: families.hamming(4), "one error per 15 bits"),
+    CatalogEntry("hamming-31-26", 4, lambda: families.hamming(5), "one error per 31 bits, low overhead"),
+    CatalogEntry("hamming-63-57", 5, lambda: families.hamming(6), "one error per 63 bits, lowest overhead"),
+    CatalogEntry("secded-8-4", 6, lambda: families.hsiao_secded(4, 4), "nibbles: corrects 1, detects 2"),
+    CatalogEntry("secded-16-11", 7, lambda: families.hsiao_secded(11, 5), "corrects 1, detects 2"),
+    CatalogEntry("secded-39-32", 8, lambda: families.hsiao_secded(32, 7), "32-bit words: corrects 1, detects 2"),
+    CatalogEntry("secded-72-64", 9, lambda: families.hsiao_secded(64, 8), "64-bit words, memory-style ECC"),
+    CatalogEntry("golay-23-12", 10, families.golay23, "perfect, corrects 3 per 23 bits"),
+    CatalogEntry("golay-24-12", 11, families.golay24, "default: corrects 3, detects 4, byte aligned"),
+)
+
+_BY_NAME = {e.name: e for e in CATALOG}
+_BY_ID = {e.code_id: e for e in CATALOG}
+
+
+class UnknownCodeError(KeyError):
+    """A code name or id that the catalog does not hold."""
+
+    def __str__(self) -> str:  # KeyError would quote the message
+        return str(self.args[0])
+
+
+def code_names() -> list[str]:
+    return [e.name for e in CATALOG]
+
+
+@lru_cache(maxsize=None)
+def get_code(name: str) -> BinaryLinearCode:
+    """The catalog code called name (built once, then cached)."""
+    entry = _BY_NAME.get(name)
+    if entry is None:
+        raise UnknownCodeError(f"unknown code {name!r}; known codes: {', '.join(code_names())}")
+    return entry.build()
+
+
+def code_id(name: str) -> int:
+    if name not in _BY_NAME:
+        raise UnknownCodeError(f"unknown code {name!r}; known codes: {', '.join(code_names())}")
+    return _BY_NAME[name].code_id
+
+
+def code_by_id(identifier: int) -> BinaryLinearCode:
+    entry = _BY_ID.get(identifier)
+    if entry is None:
+        raise UnknownCodeError(f"unknown code id {identifier}")
+    return get_code(entry.name)
+
+
+def entry(name: str) -> CatalogEntry:
+    if name not in _BY_NAME:
+        raise UnknownCodeError(f"unknown code {name!r}; known codes: {', '.join(code_names())}")
+    return _BY_NAME[name]

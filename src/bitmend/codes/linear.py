@@ -1,0 +1,261 @@
+"""One engine for binary linear block codes: systematic form, table encoding, syndrome decoding.
+
+A code is given by a generator matrix G (k x n) or a parity-check matrix H (r x n),
+r = n - k. Its systematic form is derived by Gaussian elimination over GF(2):
+
+    G = [I_k | P],   H = [P^T | I_r],   c = m G = (m, m P),   s = c H^T = p XOR m P.
+
+Decoding is bounded-distance: an error pattern of weight <= t = floor((d - 1) / 2) has a
+unique syndrome, and the table of coset leaders holds exactly those patterns. A syndrome
+outside the table is a detected, uncorrectable block; it is never guessed.
+"""
+
+from __future__ import annotations
+
+from functools import cached_property
+from itertools import combinations
+from math import comb
+
+import numpy as np
+
+from bitmend.analysis.weights import WeightDistribution, weight_distribution
+from bitmend.kernels import blockcode
+from bitmend.kernels.gf2 import as_bit_matrix, row_reduce
+
+MAX_MESSAGE_BITS = 64  # k: a message is one uint64 in the kernels
+MAX_PARITY_BITS = 20  # r: the coset-leader table has 2^r entries
+FAILED = blockcode.FAILED
+
+
+class CodeDefinitionError(ValueError):
+    """A generator or parity-check matrix that does not define a usable code."""
+
+
+def _bits_to_int(bits: np.ndarray) -> int:
+    return int("".join("1" if b else "0" for b in bits) or "0", 2)
+
+
+class BinaryLinearCode:
+    """An (n, k) binary linear block code in systematic form.
+
+    Build with from_generator(G) or from_parity_check(H). If the information set is not
+    the first k positions, the columns are permuted so that it is (an equivalent code
+    with the same n, k, d and weight distribution); `column_order` records the order.
+    """
+
+    def __init__(self, name: str, parity_part: np.ndarray, column_order: tuple[int, ...] | None = None,
+                 description: str = "") -> None:
+        k, r = parity_part.shape
+        n = k + r
+        if not 1 <= k <= MAX_MESSAGE_BITS:
+            raise CodeDefinitionError(f"k must be 1..{MAX_MESSAGE_BITS}, got {k}")
+        if not 1 <= r <= MAX_PARITY_BITS:
+            raise CodeDefinitionError(f"n - k must be 1..{MAX_PARITY_BITS}, got {r}")
+        self.name = name
+        self.description = description
+        self._P = parity_part.astype(np.uint8)
+        self._n, self._k = n, k
+        self.column_order = column_order or tuple(range(n))
+
+    # ---- construction -------------------------------------------------------------
+    @classmethod
+    def from_generator(cls, generator: object, name: str = "custom", description: str = "") -> "BinaryLinearCode":
+        """Code spanned by the rows of G (k x n, full row rank)."""
+        G = as_bit_matrix(generator)
+        k, n = G.shape
+        if k >= n:
+            raise CodeDefinitionError(f"a generator needs k < n, got {k} x {n}")
+        reduced, pivots = row_reduce(G)
+        if len(pivots) < k:
+            raise CodeDefinitionError(f"generator rows are dependent: rank {len(pivots)} < k = {k}")
+        order = tuple(pivots + [c for c in range(n) if c not in pivots])
+        systematic = reduced[:, list(order)]
+        return cls(name, systematic[:, k:], None if order == tuple(range(n)) else order, description)
+
+    @classmethod
+    def from_parity_check(cls, parity_check: object, name: str = "custom", description: str = "") -> "BinaryLinearCode":
+        """Null space of H (r x n, full row rank), with the parity positions made last."""
+        H = as_bit_matrix(parity_check)
+        r, n = H.shape
+        if r >= n:
+            raise CodeDefinitionError(f"a parity-check matrix needs r < n, got {r} x {n}")
+        reduced, pivots = row_reduce(H, pivot_columns=list(range(n - 1, -1, -1)))
+        if len(pivots) < r:
+            raise CodeDefinitionError(f"parity-check rows are dependent: rank {len(pivots)} < r = {r}")
+        # order rows so pivot columns ascend: H = [A | I_r] once the pivots are moved last
+        row_of = sorted(range(r), key=lambda i: pivots[i])
+        parity_cols = sorted(pivots)
+        order = tuple([c for c in range(n) if c not in pivots] + parity_cols)
+        A = reduced[row_of][:, list(order[: n - r])]
+        return cls(name, A.T.copy(), None if order == tuple(range(n)) else order, description)
+
+    # ---- dimensions and matrices ----------------------------------------------------
+    @property
+    def n(self) -> int:
+        return self._n
+
+    @property
+    def k(self) -> int:
+        return self._k
+
+    @property
+    def r(self) -> int:
+        """Number of parity bits, n - k."""
+        return self._n - self._k
+
+    @property
+    def rate(self) -> float:
+        return self._k / self._n
+
+    @property
+    def P(self) -> np.ndarray:
+        """Parity part (k x r) of the systematic generator."""
+        return self._P.copy()
+
+    @property
+    def G(self) -> np.ndarray:
+        """Systematic generator [I_k | P] (k x n)."""
+        return np.hstack([np.eye(self._k, dtype=np.uint8), self._P])
+
+    @property
+    def H(self) -> np.ndarray:
+        """Systematic parity-check matrix [P^T | I_r] (r x n); G H^T = 0."""
+        return np.hstack([self._P.T, np.eye(self.r, dtype=np.uint8)])
+
+    # ---- distance properties ----------------------------------------------------------
+    @cached_property
+    def weight_distribution(self) -> WeightDistribution:
+        return weight_distribution(self._n, self._k, self._parity_rows)
+
+    @property
+    def d(self) -> int:
+        """Minimum distance, computed from the weight distribution."""
+        return self.weight_distribution.minimum_distance
+
+    @property
+    def t(self) -> int:
+        """Errors corrected per codeword: floor((d - 1) / 2)."""
+        return (self.d - 1) // 2
+
+    @property
+    def detects(self) -> int:
+        """Errors always detected while correcting up to t: d - 1 - t."""
+        return self.d - 1 - self.t
+
+    @property
+    def is_perfect(self) -> bool:
+        """Hamming bound met with equality: sum_{i<=t} C(n, i) == 2^(n-k)."""
+        return sum(comb(self._n, i) for i in range(self.t + 1)) == 1 << self.r
+
+    # ---- kernel tables ----------------------------------------------------------------
+    @cached_property
+    def _parity_rows(self) -> list[int]:
+        """Row i of P as an r-bit integer (parity bit j at integer bit r-1-j)."""
+        return [_bits_to_int(row) for row in self._P]
+
+    @cached_property
+    def parity_table(self) -> np.ndarray:
+        """table[c, v] = XOR of P rows whose message bit lies in chunk c with value v."""
+        k = self._k
+        chunks = (k + 7) // 8
+        table = np.zeros((chunks, 256), dtype=np.uint64)
+        rows = self._parity_rows
+        for c in range(chunks):
+            for b in range(8):
+                int_bit = 8 * c + b
+                if int_bit >= k:
+                    break
+                row = np.uint64(rows[k - 1 - int_bit])
+                has_bit = (np.arange(256) >> b) & 1 == 1
+                table[c, has_bit] ^= row
+        return table
+
+    @cached_property
+    def _column_syndromes(self) -> np.ndarray:
+        """Syndrome of a single error at each codeword position (length n, uint64)."""
+        rows = self._parity_rows
+        r = self.r
+        return np.array(rows + [1 << (r - 1 - j) for j in range(r)], dtype=np.uint64)
+
+    @cached_property
+    def leader_tables(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(message mask, parity mask, weight) per syndrome; weight FAILED where no leader
+        of weight <= t exists. Leaders of weight <= t are unique because d >= 2t + 1."""
+        size = 1 << self.r
+        lead_m = np.zeros(size, dtype=np.uint64)
+        lead_p = np.zeros(size, dtype=np.uint64)
+        weight = np.full(size, FAILED, dtype=np.uint8)
+        weight[0] = 0
+        k, n = self._k, self._n
+        syndromes = self._column_syndromes
+        masks_m = np.array([1 << (k - 1 - j) if j < k else 0 for j in range(n)], dtype=np.uint64)
+        masks_p = np.array([0 if j < k else 1 << (n - 1 - j) for j in range(n)], dtype=np.uint64)
+        for w in range(1, self.t + 1):
+            positions = np.array(list(combinations(range(n), w)), dtype=np.intp)
+            s = np.bitwise_xor.reduce(syndromes[positions], axis=1)
+            lead_m[s] = np.bitwise_or.reduce(masks_m[positions], axis=1)
+            lead_p[s] = np.bitwise_or.reduce(masks_p[positions], axis=1)
+            weight[s] = w
+        return lead_m, lead_p, weight
+
+    # ---- integer-form coding (used by the stream path) -----------------------------------
+    def parity_of(self, messages: np.ndarray) -> np.ndarray:
+        """p = m P for a uint64 array of k-bit messages."""
+        return blockcode.parities(np.ascontiguousarray(messages, dtype=np.uint64), self.parity_table)
+
+    def correct(self, messages: np.ndarray, parity: np.ndarray) -> np.ndarray:
+        """Correct received (messages, parity) in place; return per-block status
+        (0 clean, w bits corrected, FAILED uncorrectable)."""
+        lead_m, lead_p, weight = self.leader_tables
+        return blockcode.syndrome_correct(messages, parity, self.parity_table, lead_m, lead_p, weight)
+
+    # ---- bit-array API: a single vector or an (N, n) matrix --------------------------------
+    def encode(self, messages: object) -> np.ndarray:
+        """c = m G for m of shape (k,) or (N, k); returns 0/1 uint8 of shape (n,) or (N, n)."""
+        m = self._as_rows(messages, self._k, "messages")
+        ints = _rows_to_ints(m)
+        parity = self.parity_of(ints)
+        out = np.hstack([m, _ints_to_rows(parity, self.r)])
+        return out[0] if np.ndim(messages) == 1 else out
+
+    def decode(self, received: object) -> tuple[np.ndarray, np.ndarray]:
+        """Bounded-distance decode of (n,) or (N, n) words: (messages, status) with status
+        0 clean, w corrected bits, FAILED (255) for a detected uncorrectable block."""
+        c = self._as_rows(received, self._n, "received words")
+        msgs = _rows_to_ints(c[:, : self._k])
+        pars = _rows_to_ints(c[:, self._k:])
+        status = self.correct(msgs, pars)
+        out = _ints_to_rows(msgs, self._k)
+        if np.ndim(received) == 1:
+            return out[0], status[:1]
+        return out, status
+
+    def syndromes(self, received: object) -> np.ndarray:
+        """s = c H^T as r-bit integers, for (n,) or (N, n) words."""
+        c = self._as_rows(received, self._n, "received words")
+        return _rows_to_ints(c[:, self._k:]) ^ self.parity_of(_rows_to_ints(c[:, : self._k]))
+
+    @staticmethod
+    def _as_rows(values: object, width: int, what: str) -> np.ndarray:
+        a = np.atleast_2d(np.asarray(values))
+        if a.ndim != 2 or a.shape[1] != width:
+            raise ValueError(f"{what} must have shape ({width},) or (N, {width}), got {np.shape(values)}")
+        if not np.isin(a, (0, 1)).all():
+            raise ValueError(f"{what} must hold only 0 and 1")
+        return a.astype(np.uint8)
+
+    def __repr__(self) -> str:
+        return f"<{type(self).__name__} {self.name} n={self.n} k={self.k}>"
+
+
+def _rows_to_ints(rows: np.ndarray) -> np.ndarray:
+    """(N, w) bits -> uint64 with the first column most significant (w <= 64)."""
+    width = rows.shape[1]
+    weights = np.uint64(1) << np.arange(width - 1, -1, -1, dtype=np.uint64)
+    return np.bitwise_or.reduce(rows.astype(np.uint64) * weights, axis=1) if width else np.zeros(len(rows), np.uint64)
+
+
+def _ints_to_rows(values: np.ndarray, width: int) -> np.ndarray:
+    shifts = np.arange(width - 1, -1, -1, dtype=np.uint64)
+    return ((values[:, None] >> shifts) & np.uint64(1)).astype(np.uint8)
+

@@ -1,0 +1,1 @@
+"""Frames, sync markers, protected headers, CRC and resynchronisation."""

@@ -1,0 +1,218 @@
+"""Find and decode frames in a byte stream, with bounded memory and resynchronisation.
+
+The scanner keeps a window of the input. While locked it expects the next frame right
+where the last one ended and accepts it if its header decodes (or, if that header is hit,
+if the header copy at the predicted frame end does). Unlocked, it slides a 64-bit window
+one bit at a time and stops where the sync marker matches within a tolerance, then
+checks the header there. Bit slips and inserted or lost bytes therefore cost the frames
+they touch and the scanner resumes at the next marker.
+"""
+
+from __future__ import annotations
+
+import struct
+from dataclasses import dataclass, field
+from typing import BinaryIO, Iterator
+
+import numpy as np
+
+from bitmend.container import format as fmt
+from bitmend.interleave import decode_segment, layout
+from bitmend.kernels.bitfields import SPARE_BYTES, find_pattern
+
+READ_CHUNK = 1 << 20
+MARKER_BITS = 64
+HEADER_BITS = 8 * fmt.HEADER_BYTES
+
+
+@dataclass
+class DecodedFrame:
+    """One frame as found in the stream (payload corrected as far as the code allows)."""
+
+    header: fmt.FrameHeader
+    offset: int  # byte offset of the frame's marker in the input (rounded down for bit slips)
+    bit_offset: int  # exact bit offset
+    payload: bytes
+    block_status: np.ndarray  # per block: 0 clean, w corrected, 255 uncorrectable
+    crc_ok: bool
+    truncated: bool = False  # the input ended inside the frame
+    header_from_copy: bool = False  # the leading header was hit; the copy was used
+    marker_distance: int = 0
+
+    @property
+    def corrected_blocks(self) -> int:
+        return int(np.count_nonzero((self.block_status > 0) & (self.block_status < 255)))
+
+    @property
+    def corrected_symbols(self) -> int:
+        s = self.block_status
+        return int(s[s < 255].sum(dtype=np.int64))
+
+    @property
+    def failed_blocks(self) -> list[int]:
+        return [int(i) for i in np.nonzero(self.block_status == 255)[0]]
+
+
+@dataclass
+class ScanStats:
+    skipped_bytes: int = 0  # input bytes that belonged to no decodable frame
+    header_errors: list[str] = field(default_factory=list)  # checked headers with unusable values
+
+
+class FrameScanner:
+    """Iterate the frames of a container read from a binary file object."""
+
+    def __init__(self, source: BinaryIO, read_chunk: int = READ_CHUNK, decode_payloads: bool = True) -> None:
+        self._source = source
+        self._decode_payloads = decode_payloads
+        self._chunk = read_chunk
+        self._buf = bytearray()
+        self._base = 0  # absolute bit offset of _buf[0]
+        self._eof = False
+        self.stats = ScanStats()
+        self.bytes_read = 0
+
+    # ---- window management ---------------------------------------------------------
+    def _fill(self, end_bit: int) -> bool:
+        """Read until the window holds absolute bits up to end_bit; False at end of input."""
+        while self._base + 8 * len(self._buf) < end_bit:
+            if self._eof:
+                return False
+            block = self._source.read(self._chunk)
+            if not block:
+                self._eof = True
+                return False
+            self.bytes_read += len(block)
+            self._buf += block
+        return True
+
+    def _drop_before(self, bit: int) -> None:
+        """Forget window bytes wholly before absolute bit (keeps memory bounded)."""
+        cut = (bit - self._base) >> 3
+        if cut > 0:
+            del self._buf[:cut]
+            self._base += 8 * cut
+
+    def _end_bit(self) -> int:
+        return self._base + 8 * len(self._buf)
+
+    def _bytes_at(self, bit: int, count: int) -> bytes:
+        """count bytes starting at absolute bit (any alignment); zero-filled past the end."""
+        rel = bit - self._base
+        start, shift = rel >> 3, rel & 7
+        raw = bytes(self._buf[start: start + count + 1])
+        if shift == 0:
+            return raw[:count].ljust(count, b"\0")
+        raw = raw.ljust(count + 1, b"\0")
+        value = int.from_bytes(raw, "big") << shift
+        return (value & ((1 << (8 * (count + 1))) - 1)).to_bytes(count + 1, "big")[:count]
+
+    def _search(self, start_bit: int) -> int:
+        """First absolute bit >= start_bit where the marker matches within tolerance, or -1
+        at end of input. Reads more input as needed; drops what it has passed over."""
+        while True:
+            self._fill(start_bit + MARKER_BITS + 8 * self._chunk)
+            stop = self._end_bit() - MARKER_BITS + 1  # last position with a whole window
+            if stop > start_bit:
+                rel = start_bit - self._base
+                window = np.frombuffer(bytes(self._buf) + bytes(SPARE_BYTES), dtype=np.uint8)
+                found = find_pattern(window, rel, stop - self._base, np.uint64(fmt.MARKER),
+                                     fmt.MARKER_SEARCH_TOLERANCE)
+                if found >= 0:
+                    return self._base + int(found)
+                start_bit = max(start_bit, stop)
+            if self._eof:
+                return -1
+            self._drop_before(start_bit)
+
+    # ---- header and payload -----------------------------------------------------------
+    def _header_at(self, bit: int) -> fmt.FrameHeader | None:
+        try:
+            return fmt.decode_header(self._bytes_at(bit, fmt.HEADER_BYTES))
+        except fmt.HeaderError as exc:
+            self.stats.header_errors.append(str(exc))
+            return None
+
+    def _predicted_header(self, frame_bit: int, predicted: fmt.FrameHeader) -> fmt.FrameHeader | None:
+        """Header of a frame whose leading header is hit, read from its trailing copy at the
+        place a frame shaped like `predicted` would end; accepted only if it agrees."""
+        copy_bit = frame_bit + 8 * (predicted.frame_bytes - fmt.HEADER_BYTES)
+        if not self._fill(copy_bit + HEADER_BITS):
+            return None
+        found = self._header_at(copy_bit)
+        if found and found.seq == predicted.seq and found.frame_bytes == predicted.frame_bytes:
+            return found
+        return None
+
+    def _decode_frame(self, bit: int, header: fmt.FrameHeader, from_copy: bool) -> DecodedFrame:
+        total = header.frame_bytes
+        complete = self._fill(bit + 8 * total)
+        payload_bit = bit + MARKER_BITS + HEADER_BITS
+        coded_len = header.coded_bytes
+        available_bits = max(0, min(self._end_bit() - payload_bit, 8 * coded_len))
+        marker = int.from_bytes(self._bytes_at(bit, 8), "big")
+        marker_distance = bin(marker ^ fmt.MARKER).count("1")
+        if not self._decode_payloads:  # inspection: headers only
+            return DecodedFrame(header, bit >> 3, bit, b"", np.zeros(0, np.uint8), False, not complete,
+                                from_copy, marker_distance)
+        coded = self._bytes_at(payload_bit, coded_len)
+        code = header.code
+        message, status = decode_segment(code, header.depth, coded, header.length + fmt.CRC_BYTES)
+        payload, check = message[: header.length], message[header.length:]
+        crc_ok = complete and struct.unpack(">I", check)[0] == fmt.crc32c(payload)
+        if not complete:
+            # keep only bytes whose codewords arrived whole; the rest never existed here
+            lay = layout(code, header.depth, header.length + fmt.CRC_BYTES)
+            whole_groups = available_bits // (header.depth * code.n)
+            covered = min(header.length, whole_groups * header.depth * code.k // 8)
+            payload = payload[:covered]
+            status = status.copy()
+            status[whole_groups * header.depth: lay.blocks] = 255
+        return DecodedFrame(header, bit >> 3, bit, payload, status, crc_ok, not complete, from_copy,
+                            marker_distance)
+
+    # ---- the scan ----------------------------------------------------------------------
+    def frames(self) -> Iterator[DecodedFrame]:
+        pos = 0  # absolute bit where the next frame is expected or the search resumes
+        covered = 0  # absolute bit where the last emitted frame ended
+        locked: fmt.FrameHeader | None = None  # last good header while in lock
+        while True:
+            if locked is None:
+                found = self._search(pos)
+                if found < 0:
+                    self.stats.skipped_bytes += max(0, (self._end_bit() - max(pos, covered)) // 8)
+                    return
+                candidate = found
+            else:
+                if not self._fill(pos + MARKER_BITS + HEADER_BITS):
+                    if self._end_bit() > pos:
+                        locked = None  # a stub too short for a header: report it as skipped
+                        continue
+                    return
+                candidate = pos
+            self._fill(candidate + MARKER_BITS + HEADER_BITS)
+            header = self._header_at(candidate + MARKER_BITS)
+            from_copy = False
+            if header is None and locked is not None and not locked.last:
+                header = self._predicted_header(candidate, locked.next())
+                from_copy = header is not None
+            if header is None:
+                if locked is None:
+                    pos = candidate + 1
+                else:
+                    locked = None  # lost lock: search from here on
+                continue
+            self.stats.skipped_bytes += max(0, candidate - max(pos, covered)) // 8
+            frame = self._decode_frame(candidate, header, from_copy)
+            covered = candidate + 8 * header.frame_bytes
+            yield frame
+            if frame.truncated:
+                return
+            if frame.crc_ok or not self._decode_payloads:
+                pos = candidate + 8 * header.frame_bytes
+                locked = header
+            else:
+                # a damaged frame may hide a slip: look for the next marker from inside it
+                pos = candidate + MARKER_BITS
+                locked = None
+            self._drop_before(pos)

@@ -1,0 +1,68 @@
+"""Cut a byte stream into frames and write them; the last frame carries the closing flag."""
+
+from __future__ import annotations
+
+from typing import BinaryIO
+
+from bitmend.codes.catalog import MAX_DEPTH, code_id
+from bitmend.container import format as fmt
+
+
+class FrameWriter:
+    """Frames bytes written to it onto sink, frame_bytes of payload per frame.
+
+    One full frame is held back until more data or close() arrives, so the final frame
+    can carry the closing flag; flush() sends what is held as a (possibly short) frame.
+    An empty stream still gets one empty closing frame, which decodes to empty output.
+    """
+
+    def __init__(self, sink: BinaryIO, code: str, depth: int, frame_bytes: int = fmt.DEFAULT_FRAME_BYTES) -> None:
+        if not 1 <= depth <= MAX_DEPTH:
+            raise ValueError(f"depth must be 1..{MAX_DEPTH}, got {depth}")
+        if not 1 <= frame_bytes <= fmt.MAX_PAYLOAD_BYTES:
+            raise ValueError(f"frame size must be 1..{fmt.MAX_PAYLOAD_BYTES} bytes, got {frame_bytes}")
+        self._sink = sink
+        self._code_id = code_id(code)
+        self._depth = depth
+        self._frame_bytes = frame_bytes
+        self._pending = bytearray()
+        self._seq = 0
+        self.bytes_in = 0
+        self.bytes_out = 0
+        self.closed = False
+
+    def _emit(self, payload: bytes, last: bool) -> None:
+        header = fmt.FrameHeader(self._code_id, self._depth, self._seq, len(payload), last)
+        frame = fmt.encode_frame(header, payload)
+        self._sink.write(frame)
+        self.bytes_out += len(frame)
+        self._seq = (self._seq + 1) & 0xFFFFFFFF
+
+    def write(self, data: bytes) -> int:
+        if self.closed:
+            raise ValueError("write to a closed frame writer")
+        self._pending += data
+        self.bytes_in += len(data)
+        size = self._frame_bytes
+        start = 0
+        while len(self._pending) - start > size:  # strictly more: keep one frame back
+            self._emit(bytes(self._pending[start: start + size]), last=False)
+            start += size
+        del self._pending[:start]
+        return len(data)
+
+    def flush(self) -> None:
+        """Send held data now as a frame (packet boundaries), then flush the sink."""
+        if self._pending:
+            self._emit(bytes(self._pending), last=False)
+            self._pending.clear()
+        self._sink.flush()
+
+    def close(self) -> None:
+        """Send the closing frame (the held data, possibly empty)."""
+        if self.closed:
+            return
+        self._emit(bytes(self._pending), last=True)
+        self._pending.clear()
+        self.closed = True
+        self._sink.flush()

@@ -1,0 +1,79 @@
+"""Coded segments: bytes -> k-bit messages -> codewords -> bit-interleaved groups, and back.
+
+A segment holds G groups of D codewords. Message bits are taken from the input bytes in
+order (k per codeword, zero-padded to G*D*k), and codeword i of a group places its bit j
+at group bit j*D + i. Any run of D*t consecutive channel bits inside one group therefore
+hits every codeword of that group at most t times, which the code corrects.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from bitmend.codes.linear import BinaryLinearCode
+from bitmend.kernels import bitfields, blockcode
+
+
+@dataclass(frozen=True)
+class SegmentLayout:
+    """Sizes of the coded segment that carries message_bytes bytes."""
+
+    groups: int
+    depth: int
+    n: int
+    k: int
+
+    @property
+    def blocks(self) -> int:
+        return self.groups * self.depth
+
+    @property
+    def coded_bits(self) -> int:
+        return self.blocks * self.n
+
+    @property
+    def coded_bytes(self) -> int:
+        return (self.coded_bits + 7) // 8
+
+
+def layout(code: BinaryLinearCode, depth: int, message_bytes: int) -> SegmentLayout:
+    """G = ceil(8 * message_bytes / (D k)) groups; at least one, so every segment carries a check."""
+    per_group = depth * code.k
+    groups = max(1, -(-8 * message_bytes // per_group))
+    return SegmentLayout(groups, depth, code.n, code.k)
+
+
+def _padded(data: bytes | np.ndarray, size: int) -> np.ndarray:
+    buf = np.zeros(size + bitfields.SPARE_BYTES, dtype=np.uint8)
+    src = np.frombuffer(data, dtype=np.uint8) if isinstance(data, (bytes, bytearray, memoryview)) else data
+    buf[: min(len(src), size)] = src[:size]
+    return buf
+
+
+def encode_segment(code: BinaryLinearCode, depth: int, message: bytes) -> bytes:
+    """Encode and interleave message; returns layout(...).coded_bytes bytes."""
+    lay = layout(code, depth, len(message))
+    source = _padded(message, (lay.blocks * code.k + 7) // 8)
+    messages = bitfields.read_fields(source, 0, lay.blocks, code.k)
+    parity = blockcode.parities(messages, code.parity_table)
+    out = np.zeros(lay.coded_bytes + bitfields.SPARE_BYTES, dtype=np.uint8)
+    blockcode.interleave_into(messages, parity, code.k, code.r, depth, out)
+    return out[: lay.coded_bytes].tobytes()
+
+
+def decode_segment(code: BinaryLinearCode, depth: int, coded: bytes | np.ndarray,
+                   message_bytes: int) -> tuple[bytes, np.ndarray]:
+    """De-interleave and correct a segment carrying message_bytes bytes.
+
+    coded may be shorter than the layout (a truncated stream); missing bits read as zero.
+    Returns (message bytes, per-block status: 0 clean, w corrected, 255 uncorrectable).
+    """
+    lay = layout(code, depth, message_bytes)
+    source = _padded(coded, lay.coded_bytes)
+    messages, parity = blockcode.deinterleave_from(source, 0, code.k, code.r, depth, lay.groups)
+    status = code.correct(messages, parity)
+    out = np.zeros((lay.blocks * code.k + 7) // 8 + bitfields.SPARE_BYTES, dtype=np.uint8)
+    bitfields.write_fields(messages, code.k, out, 0)
+    return out[:message_bytes].tobytes(), status
