@@ -9,6 +9,7 @@ hits every codeword of that group at most t times, which the code corrects.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 
@@ -38,6 +39,7 @@ class SegmentLayout:
         return (self.coded_bits + 7) // 8
 
 
+@lru_cache(maxsize=256)
 def layout(code: BinaryLinearCode, depth: int, message_bytes: int) -> SegmentLayout:
     """G = ceil(8 * message_bytes / (D k)) groups; at least one, so every segment carries a check."""
     per_group = depth * code.k

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import struct
 from dataclasses import dataclass
-from functools import lru_cache
+from functools import cached_property, lru_cache
 
 import crcmod.predefined
 
@@ -49,7 +49,7 @@ class UnsupportedVersionError(HeaderError):
 
 
 @dataclass(frozen=True)
-class FrameHeader:
+class FrameHeader:  # noqa: PLW1641 (cached_property needs __dict__; frozen still blocks assignment)
     """The fields of one frame header."""
 
     code_id: int
@@ -63,11 +63,11 @@ class FrameHeader:
     def code(self) -> BinaryLinearCode:
         return code_by_id(self.code_id)
 
-    @property
+    @cached_property
     def coded_bytes(self) -> int:
         return layout(self.code, self.depth, self.length + CRC_BYTES).coded_bytes
 
-    @property
+    @cached_property
     def frame_bytes(self) -> int:
         """Whole frame size on the wire."""
         return len(MARKER_BYTES) + 2 * HEADER_BYTES + self.coded_bytes

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import struct
 from dataclasses import dataclass, field
+from functools import cached_property
 from typing import BinaryIO, Iterator
 
 import numpy as np
@@ -21,6 +22,7 @@ from bitmend.interleave import decode_segment, layout
 from bitmend.kernels.bitfields import SPARE_BYTES, find_pattern
 
 READ_CHUNK = 1 << 20
+SEARCH_PIECE = 1 << 16  # bytes scanned per marker-search step
 MARKER_BITS = 64
 HEADER_BITS = 8 * fmt.HEADER_BYTES
 
@@ -39,17 +41,21 @@ class DecodedFrame:
     header_from_copy: bool = False  # the leading header was hit; the copy was used
     marker_distance: int = 0
 
-    @property
+    @cached_property
     def corrected_blocks(self) -> int:
         return int(np.count_nonzero((self.block_status > 0) & (self.block_status < 255)))
 
-    @property
+    @cached_property
     def corrected_symbols(self) -> int:
         s = self.block_status
+        if not s.any():
+            return 0
         return int(s[s < 255].sum(dtype=np.int64))
 
-    @property
+    @cached_property
     def failed_blocks(self) -> list[int]:
+        if not self.block_status.any():
+            return []
         return [int(i) for i in np.nonzero(self.block_status == 255)[0]]
 
 
@@ -111,17 +117,19 @@ class FrameScanner:
         """First absolute bit >= start_bit where the marker matches within tolerance, or -1
         at end of input. Reads more input as needed; drops what it has passed over."""
         while True:
-            self._fill(start_bit + MARKER_BITS + 8 * self._chunk)
-            stop = self._end_bit() - MARKER_BITS + 1  # last position with a whole window
+            self._fill(start_bit + MARKER_BITS + 8 * SEARCH_PIECE)
+            stop = min(self._end_bit() - MARKER_BITS + 1, start_bit + 8 * SEARCH_PIECE)
             if stop > start_bit:
-                rel = start_bit - self._base
-                window = np.frombuffer(bytes(self._buf) + bytes(SPARE_BYTES), dtype=np.uint8)
-                found = find_pattern(window, rel, stop - self._base, np.uint64(fmt.MARKER),
+                first_byte = (start_bit - self._base) >> 3
+                last_byte = (stop - self._base + MARKER_BITS + 7) >> 3
+                piece = np.frombuffer(bytes(self._buf[first_byte:last_byte]) + bytes(SPARE_BYTES), dtype=np.uint8)
+                origin = self._base + 8 * first_byte
+                found = find_pattern(piece, start_bit - origin, stop - origin, np.uint64(fmt.MARKER),
                                      fmt.MARKER_SEARCH_TOLERANCE)
                 if found >= 0:
-                    return self._base + int(found)
-                start_bit = max(start_bit, stop)
-            if self._eof:
+                    return origin + int(found)
+                start_bit = stop
+            elif self._eof:
                 return -1
             self._drop_before(start_bit)
 
@@ -176,6 +184,7 @@ class FrameScanner:
         pos = 0  # absolute bit where the next frame is expected or the search resumes
         covered = 0  # absolute bit where the last emitted frame ended
         locked: fmt.FrameHeader | None = None  # last good header while in lock
+        fallback: int | None = None  # where to search if the frame after a damaged one is not in place
         while True:
             if locked is None:
                 found = self._search(pos)
@@ -200,7 +209,9 @@ class FrameScanner:
                 if locked is None:
                     pos = candidate + 1
                 else:
-                    locked = None  # lost lock: search from here on
+                    locked = None  # lost lock: search from here (or from inside a damaged frame)
+                    if fallback is not None:
+                        pos, fallback = fallback, None
                 continue
             self.stats.skipped_bytes += max(0, candidate - max(pos, covered)) // 8
             frame = self._decode_frame(candidate, header, from_copy)
@@ -208,11 +219,10 @@ class FrameScanner:
             yield frame
             if frame.truncated:
                 return
-            if frame.crc_ok or not self._decode_payloads:
-                pos = candidate + 8 * header.frame_bytes
-                locked = header
-            else:
-                # a damaged frame may hide a slip: look for the next marker from inside it
-                pos = candidate + MARKER_BITS
-                locked = None
-            self._drop_before(pos)
+            pos = candidate + 8 * header.frame_bytes
+            locked = header
+            # a damaged frame may hide a slip: if the next frame is not where expected,
+            # the search resumes from inside the damaged one
+            damaged = self._decode_payloads and not frame.crc_ok
+            fallback = candidate + MARKER_BITS if damaged else None
+            self._drop_before(pos if fallback is None else fallback)

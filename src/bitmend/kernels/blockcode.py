@@ -42,10 +42,117 @@ def parities(messages, table):
     return out
 
 
+@njit(cache=True, inline="always")
+def transpose8(x):
+    """Transpose the 8x8 bit matrix held in x (byte 0 = most significant = row 0, bit 7 of
+    each byte = column 0), by three rounds of masked swaps (Hacker's Delight, 7-3)."""
+    t = (x ^ (x >> U64(7))) & U64(0x00AA00AA00AA00AA)
+    x = x ^ t ^ (t << U64(7))
+    t = (x ^ (x >> U64(14))) & U64(0x0000CCCC0000CCCC)
+    x = x ^ t ^ (t << U64(14))
+    t = (x ^ (x >> U64(28))) & U64(0x00000000F0F0F0F0)
+    return x ^ t ^ (t << U64(28))
+
+
+@njit(cache=True, inline="always")
+def codeword_words(message, parity, k, r):
+    """The n <= 128 codeword bits, left-aligned in two words (w0 holds bits 0..63)."""
+    room = 64 - k  # bits left in w0 after the message
+    if r <= room:
+        w0 = (message << U64(room)) | (parity << U64(room - r)) if room > 0 else message
+        return w0, U64(0)
+    spill = r - room  # parity bits that go to w1
+    w0 = ((message << U64(room)) | (parity >> U64(spill))) if room > 0 else message
+    return w0, parity << U64(64 - spill)
+
+
+@njit(cache=True, inline="always")
+def split_codeword(w0, w1, k, r):
+    """Inverse of codeword_words: (message, parity)."""
+    n = k + r
+    if n <= 64:
+        bits = w0 >> U64(64 - n)
+        return bits >> U64(r), bits & ((U64(1) << U64(r)) - U64(1))
+    room = 64 - k
+    message = w0 >> U64(room) if room > 0 else w0
+    spill = r - room
+    high = (w0 & ((U64(1) << U64(room)) - U64(1))) if room > 0 else U64(0)
+    parity = (high << U64(spill)) | (w1 >> U64(64 - spill))
+    return message, parity
+
+
+@njit(cache=True)
+def interleave_bytewise(messages, parity, k, r, depth, out):
+    """interleave_into for depth a multiple of 8: eight codewords at a time, each 8-bit
+    slice of their bits transposed as one 8x8 bit matrix, so bits move 64 at a time."""
+    n = k + r
+    slices = (n + 7) // 8
+    lanes = depth // 8  # output bytes per column of a group
+    count = messages.shape[0]
+    words = np.empty((8, 2), dtype=np.uint64)
+    group_bytes = depth * n // 8
+    for first in range(0, count, depth):
+        base = (first // depth) * group_bytes
+        for lane in range(lanes):
+            row0 = first + 8 * lane
+            for q in range(8):
+                w0, w1 = codeword_words(messages[row0 + q], parity[row0 + q], k, r)
+                words[q, 0] = w0
+                words[q, 1] = w1
+            for c in range(slices):
+                word = c >> 3
+                shift = U64(56 - 8 * (c & 7))
+                x = U64(0)
+                for q in range(8):
+                    x = (x << U64(8)) | ((words[q, word] >> shift) & U64(0xFF))
+                x = transpose8(x)
+                for i in range(8):
+                    j = 8 * c + i
+                    if j < n:
+                        out[base + j * lanes + lane] = np.uint8((x >> U64(56 - 8 * i)) & U64(0xFF))
+
+
+@njit(cache=True)
+def deinterleave_bytewise(buf, k, r, depth, groups):
+    """Inverse of interleave_bytewise (segment starting at byte 0)."""
+    n = k + r
+    slices = (n + 7) // 8
+    lanes = depth // 8
+    count = groups * depth
+    messages = np.empty(count, dtype=np.uint64)
+    parity = np.empty(count, dtype=np.uint64)
+    words = np.empty((8, 2), dtype=np.uint64)
+    group_bytes = depth * n // 8
+    for g in range(groups):
+        base = g * group_bytes
+        for lane in range(lanes):
+            words[:, :] = 0
+            for c in range(slices):
+                x = U64(0)
+                for i in range(8):
+                    j = 8 * c + i
+                    byte = U64(buf[base + j * lanes + lane]) if j < n else U64(0)
+                    x = (x << U64(8)) | byte
+                x = transpose8(x)
+                word = c >> 3
+                shift = U64(56 - 8 * (c & 7))
+                for q in range(8):
+                    words[q, word] |= ((x >> U64(56 - 8 * q)) & U64(0xFF)) << shift
+            row0 = g * depth + 8 * lane
+            for q in range(8):
+                m, p = split_codeword(words[q, 0], words[q, 1], k, r)
+                messages[row0 + q] = m
+                parity[row0 + q] = p
+    return messages, parity
+
+
 @njit(cache=True)
 def interleave_into(messages, parity, k, r, depth, out):
     """Write codewords (messages[i], parity[i]) into out from byte 0, depth codewords to
     an interleaved group. len(messages) must be a multiple of depth."""
+    if depth % 8 == 0 and k + r <= 128:
+        interleave_bytewise(messages, parity, k, r, depth, out)
+        return
     n = k + r
     count = messages.shape[0]
     pos, acc, held = 0, U64(0), 0
@@ -76,6 +183,8 @@ def interleave_into(messages, parity, k, r, depth, out):
 @njit(cache=True)
 def deinterleave_from(buf, start_bit, k, r, depth, groups):
     """Inverse of interleave_into: read groups*depth codewords, return (messages, parity)."""
+    if depth % 8 == 0 and k + r <= 128 and start_bit == 0:
+        return deinterleave_bytewise(buf, k, r, depth, groups)
     n = k + r
     count = groups * depth
     messages = np.zeros(count, dtype=np.uint64)

@@ -1,0 +1,5 @@
+"""python -m bitmend: the command line."""
+
+from bitmend.cli import main
+
+main()
