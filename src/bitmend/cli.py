@@ -17,6 +17,7 @@ from typing import BinaryIO, Iterator, Optional
 import typer
 
 from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH, MAX_DEPTH
+from bitmend.container.format import DEFAULT_FRAME_BYTES
 
 EXIT_OK, EXIT_DAMAGED, EXIT_USAGE, EXIT_UNREADABLE = 0, 1, 2, 3
 COPY_CHUNK = 1 << 20
@@ -206,7 +207,7 @@ def encode(
     code: str = typer.Option(DEFAULT_CODE, "--code", help="Catalog code name (see `bitmend codes`)."),
     depth: int = typer.Option(DEFAULT_DEPTH, "--depth", help=f"Interleaving depth 1..{MAX_DEPTH}: "
                               "corrects any burst of depth*t bits."),
-    frame_bytes: int = typer.Option(4096, "--frame-bytes", help="Payload bytes per frame (1..1048576)."),
+    frame_bytes: int = typer.Option(DEFAULT_FRAME_BYTES, "--frame-bytes", help="Payload bytes per frame (1..1048576)."),
 ) -> None:
     """Wrap a byte stream in coded, self-contained frames."""
     from bitmend.api import Encoder

@@ -47,22 +47,13 @@ def layout(code: BinaryLinearCode, depth: int, message_bytes: int) -> SegmentLay
     return SegmentLayout(groups, depth, code.n, code.k)
 
 
-def _padded(data: bytes | np.ndarray, size: int) -> np.ndarray:
-    buf = np.zeros(size + bitfields.SPARE_BYTES, dtype=np.uint8)
-    src = np.frombuffer(data, dtype=np.uint8) if isinstance(data, (bytes, bytearray, memoryview)) else data
-    buf[: min(len(src), size)] = src[:size]
-    return buf
-
-
 def encode_segment(code: BinaryLinearCode, depth: int, message: bytes) -> bytes:
     """Encode and interleave message; returns layout(...).coded_bytes bytes."""
     lay = layout(code, depth, len(message))
-    source = _padded(message, (lay.blocks * code.k + 7) // 8)
-    messages = bitfields.read_fields(source, 0, lay.blocks, code.k)
-    parity = blockcode.parities(messages, code.parity_table)
-    out = np.zeros(lay.coded_bytes + bitfields.SPARE_BYTES, dtype=np.uint8)
-    blockcode.interleave_into(messages, parity, code.k, code.r, depth, out)
-    return out[: lay.coded_bytes].tobytes()
+    source = bitfields.to_words(message, lay.blocks * code.k)
+    out = bitfields.empty_words(lay.coded_bits)
+    blockcode.encode_run(source, lay.blocks, code.k, code.r, depth, code.parity_table, out)
+    return bitfields.to_bytes(out, lay.coded_bytes)
 
 
 def decode_segment(code: BinaryLinearCode, depth: int, coded: bytes | np.ndarray,
@@ -73,9 +64,10 @@ def decode_segment(code: BinaryLinearCode, depth: int, coded: bytes | np.ndarray
     Returns (message bytes, per-block status: 0 clean, w corrected, 255 uncorrectable).
     """
     lay = layout(code, depth, message_bytes)
-    source = _padded(coded, lay.coded_bytes)
-    messages, parity = blockcode.deinterleave_from(source, 0, code.k, code.r, depth, lay.groups)
-    status = code.correct(messages, parity)
-    out = np.zeros((lay.blocks * code.k + 7) // 8 + bitfields.SPARE_BYTES, dtype=np.uint8)
-    bitfields.write_fields(messages, code.k, out, 0)
-    return out[:message_bytes].tobytes(), status
+    raw = np.frombuffer(coded, dtype=np.uint8) if not isinstance(coded, np.ndarray) else coded
+    source = bitfields.to_words(raw[: lay.coded_bytes], lay.coded_bits)
+    out = bitfields.empty_words(lay.blocks * code.k)
+    lead_m, lead_p, weight = code.leader_tables
+    status = blockcode.decode_run(source, code.k, code.r, depth, lay.blocks, code.parity_table,
+                                  lead_m, lead_p, weight, code.word_table, out)
+    return bitfields.to_bytes(out, message_bytes), status

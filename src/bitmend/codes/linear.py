@@ -24,6 +24,7 @@ from bitmend.kernels.gf2 import as_bit_matrix, row_reduce
 
 MAX_MESSAGE_BITS = 64  # k: a message is one uint64 in the kernels
 MAX_PARITY_BITS = 20  # r: the coset-leader table has 2^r entries
+WORD_TABLE_MAX_N = 16  # codes this short decode by one lookup per received word
 FAILED = blockcode.FAILED
 
 
@@ -197,6 +198,18 @@ class BinaryLinearCode:
             lead_p[s] = np.bitwise_or.reduce(masks_p[positions], axis=1)
             weight[s] = w
         return lead_m, lead_p, weight
+
+    @cached_property
+    def word_table(self) -> np.ndarray:
+        """For n <= WORD_TABLE_MAX_N: entry[w] = decoded message | status << 56 for every
+        received n-bit word w (one lookup per codeword); otherwise a 1-entry placeholder."""
+        if self._n > WORD_TABLE_MAX_N:
+            return np.zeros(1, dtype=np.uint64)
+        words = np.arange(1 << self._n, dtype=np.uint64)
+        messages = words >> np.uint64(self.r)
+        parity = words & np.uint64((1 << self.r) - 1)
+        status = self.correct(messages, parity)
+        return messages | (status.astype(np.uint64) << np.uint64(56))
 
     # ---- integer-form coding (used by the stream path) -----------------------------------
     def parity_of(self, messages: np.ndarray) -> np.ndarray:

@@ -33,7 +33,7 @@ HEADER_CODE = "golay-24-12"
 HEADER_DEPTH = 11  # 11 codewords of 24 bits carry the 128-bit record (132 with padding)
 HEADER_BYTES = 33
 MAX_PAYLOAD_BYTES = 1 << 20  # frame payload limit: bounds every allocation a header drives
-DEFAULT_FRAME_BYTES = 4096
+DEFAULT_FRAME_BYTES = 16384
 CRC_BYTES = 4
 FLAG_LAST = 0x01  # the frame closes its stream
 

@@ -19,7 +19,7 @@ import numpy as np
 
 from bitmend.container import format as fmt
 from bitmend.interleave import decode_segment, layout
-from bitmend.kernels.bitfields import SPARE_BYTES, find_pattern
+from bitmend.kernels.bitfields import find_pattern, to_words
 
 READ_CHUNK = 1 << 20
 SEARCH_PIECE = 1 << 16  # bytes scanned per marker-search step
@@ -122,7 +122,7 @@ class FrameScanner:
             if stop > start_bit:
                 first_byte = (start_bit - self._base) >> 3
                 last_byte = (stop - self._base + MARKER_BITS + 7) >> 3
-                piece = np.frombuffer(bytes(self._buf[first_byte:last_byte]) + bytes(SPARE_BYTES), dtype=np.uint8)
+                piece = to_words(bytes(self._buf[first_byte:last_byte]))
                 origin = self._base + 8 * first_byte
                 found = find_pattern(piece, start_bit - origin, stop - origin, np.uint64(fmt.MARKER),
                                      fmt.MARKER_SEARCH_TOLERANCE)

@@ -11,6 +11,8 @@ Parity is table driven: the message is cut into 8-bit chunks (chunk c holds inte
 Interleaving at depth D works on groups of D codewords: codeword i of a group puts its
 bit j at group bit  j*D + i,  so a burst of b consecutive channel bits touches each
 codeword of the group at most ceil(b / D) times.
+
+All buffers are word buffers (see bitfields): streams packed big-endian into uint64.
 """
 
 from __future__ import annotations
@@ -18,7 +20,7 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-from bitmend.kernels.bitfields import finish_writer, put_bits, put_field, reader_at, take_bits, take_field
+from bitmend.kernels.bitfields import finish_writer, get_byte, get_field, or_byte, put_field
 
 U64 = np.uint64
 FAILED = 255  # block status: syndrome has no coset leader of weight <= t
@@ -83,8 +85,8 @@ def split_codeword(w0, w1, k, r):
 
 @njit(cache=True)
 def interleave_bytewise(messages, parity, k, r, depth, out):
-    """interleave_into for depth a multiple of 8: eight codewords at a time, each 8-bit
-    slice of their bits transposed as one 8x8 bit matrix, so bits move 64 at a time."""
+    """Interleave for depth a multiple of 8: eight codewords at a time, each 8-bit slice
+    of their bits transposed as one 8x8 bit matrix, so bits move 64 at a time."""
     n = k + r
     slices = (n + 7) // 8
     lanes = depth // 8  # output bytes per column of a group
@@ -109,12 +111,12 @@ def interleave_bytewise(messages, parity, k, r, depth, out):
                 for i in range(8):
                     j = 8 * c + i
                     if j < n:
-                        out[base + j * lanes + lane] = np.uint8((x >> U64(56 - 8 * i)) & U64(0xFF))
+                        or_byte(out, base + j * lanes + lane, (x >> U64(56 - 8 * i)) & U64(0xFF))
 
 
 @njit(cache=True)
 def deinterleave_bytewise(buf, k, r, depth, groups):
-    """Inverse of interleave_bytewise (segment starting at byte 0)."""
+    """Inverse of interleave_bytewise."""
     n = k + r
     slices = (n + 7) // 8
     lanes = depth // 8
@@ -131,7 +133,7 @@ def deinterleave_bytewise(buf, k, r, depth, groups):
                 x = U64(0)
                 for i in range(8):
                     j = 8 * c + i
-                    byte = U64(buf[base + j * lanes + lane]) if j < n else U64(0)
+                    byte = get_byte(buf, base + j * lanes + lane) if j < n else U64(0)
                     x = (x << U64(8)) | byte
                 x = transpose8(x)
                 word = c >> 3
@@ -148,19 +150,19 @@ def deinterleave_bytewise(buf, k, r, depth, groups):
 
 @njit(cache=True)
 def interleave_into(messages, parity, k, r, depth, out):
-    """Write codewords (messages[i], parity[i]) into out from byte 0, depth codewords to
-    an interleaved group. len(messages) must be a multiple of depth."""
+    """Write codewords (messages[i], parity[i]) into the zeroed word buffer out, depth
+    codewords to an interleaved group. len(messages) must be a multiple of depth."""
     if depth % 8 == 0 and k + r <= 128:
         interleave_bytewise(messages, parity, k, r, depth, out)
         return
     n = k + r
     count = messages.shape[0]
-    pos, acc, held = 0, U64(0), 0
+    index, acc, held = 0, U64(0), 0
     if depth == 1:
         for i in range(count):
-            pos, acc, held = put_field(out, pos, acc, held, messages[i], k)
-            pos, acc, held = put_field(out, pos, acc, held, parity[i], r)
-        finish_writer(out, pos, acc, held)
+            index, acc, held = put_field(out, index, acc, held, messages[i], k)
+            index, acc, held = put_field(out, index, acc, held, parity[i], r)
+        finish_writer(out, index, acc, held)
         return
     for first in range(0, count, depth):
         for j in range(n):
@@ -170,32 +172,32 @@ def interleave_into(messages, parity, k, r, depth, out):
             else:
                 shift = U64(n - 1 - j)
                 src = parity
-            # column j of the group: bit j of each codeword, at most 56 bits per step
-            for i in range(0, depth, 56):
-                take = min(56, depth - i)
+            # column j of the group: bit j of each codeword, at most 64 bits per step
+            for i in range(0, depth, 64):
+                take = min(64, depth - i)
                 col = U64(0)
                 for q in range(take):  # independent terms: the compiler can vectorize
                     col |= ((src[first + i + q] >> shift) & U64(1)) << U64(take - 1 - q)
-                pos, acc, held = put_bits(out, pos, acc, held, col, take)
-    finish_writer(out, pos, acc, held)
+                index, acc, held = put_field(out, index, acc, held, col, take)
+    finish_writer(out, index, acc, held)
 
 
 @njit(cache=True)
-def deinterleave_from(buf, start_bit, k, r, depth, groups):
+def deinterleave_from(buf, k, r, depth, groups):
     """Inverse of interleave_into: read groups*depth codewords, return (messages, parity)."""
-    if depth % 8 == 0 and k + r <= 128 and start_bit == 0:
+    if depth % 8 == 0 and k + r <= 128:
         return deinterleave_bytewise(buf, k, r, depth, groups)
     n = k + r
     count = groups * depth
     messages = np.zeros(count, dtype=np.uint64)
     parity = np.zeros(count, dtype=np.uint64)
-    pos, acc, avail = reader_at(buf, start_bit)
     if depth == 1:
         for i in range(count):
-            messages[i], pos, acc, avail = take_field(buf, pos, acc, avail, k)
-            parity[i], pos, acc, avail = take_field(buf, pos, acc, avail, r)
+            messages[i] = get_field(buf, i * n, k)
+            parity[i] = get_field(buf, i * n + k, r)
         return messages, parity
     for first in range(0, count, depth):
+        base = first * n
         for j in range(n):
             if j < k:
                 shift = U64(k - 1 - j)
@@ -203,9 +205,9 @@ def deinterleave_from(buf, start_bit, k, r, depth, groups):
             else:
                 shift = U64(n - 1 - j)
                 dst = parity
-            for i in range(0, depth, 56):
-                take = min(56, depth - i)
-                col, pos, acc, avail = take_bits(buf, pos, acc, avail, take)
+            for i in range(0, depth, 64):
+                take = min(64, depth - i)
+                col = get_field(buf, base + j * depth + i, take)
                 for q in range(take):
                     dst[first + i + q] |= ((col >> U64(take - 1 - q)) & U64(1)) << shift
     return messages, parity
@@ -233,4 +235,70 @@ def syndrome_correct(messages, parity, table, leader_message, leader_parity, lea
             messages[i] ^= leader_message[s]
             parity[i] ^= leader_parity[s]
             status[i] = w
+    return status
+
+
+@njit(cache=True)
+def encode_run(source, blocks, k, r, depth, table, out):
+    """Whole encoder in one compiled call: blocks k-bit messages from the word buffer
+    source, parity added, interleaved into the zeroed word buffer out."""
+    n = k + r
+    if depth == 1 and n <= 64:
+        # short codewords without interleaving: one load and one store per codeword
+        index, acc, held = 0, U64(0), 0
+        for i in range(blocks):
+            m = get_field(source, i * k, k)
+            index, acc, held = put_field(out, index, acc, held, (m << U64(r)) | parity_of(m, table), n)
+        finish_writer(out, index, acc, held)
+        return
+    messages = np.empty(blocks, dtype=np.uint64)
+    for i in range(blocks):
+        messages[i] = get_field(source, i * k, k)
+    parity = parities(messages, table)
+    interleave_into(messages, parity, k, r, depth, out)
+
+
+@njit(cache=True)
+def decode_run(coded, k, r, depth, blocks, table, leader_message, leader_parity, leader_weight,
+               word_table, out):
+    """Whole decoder in one compiled call: de-interleave, correct, write the messages to
+    the zeroed word buffer out; returns the per-block status (see syndrome_correct).
+
+    word_table, when it has 2^n entries (short codes), maps every received n-bit word to
+    its decoded message (low bits) and status (top byte) in one lookup."""
+    n = k + r
+    if depth == 1 and word_table.shape[0] == (1 << n):
+        status = np.empty(blocks, dtype=np.uint8)
+        message_mask = (U64(1) << U64(k)) - U64(1)
+        index, acc, held = 0, U64(0), 0
+        for i in range(blocks):
+            entry = word_table[get_field(coded, i * n, n)]
+            status[i] = np.uint8(entry >> U64(56))
+            index, acc, held = put_field(out, index, acc, held, entry & message_mask, k)
+        finish_writer(out, index, acc, held)
+        return status
+    if depth == 1 and n <= 64:
+        status = np.zeros(blocks, dtype=np.uint8)
+        parity_mask = (U64(1) << U64(r)) - U64(1)
+        index, acc, held = 0, U64(0), 0
+        for i in range(blocks):
+            word = get_field(coded, i * n, n)
+            m = word >> U64(r)
+            s = (word & parity_mask) ^ parity_of(m, table)
+            if s != U64(0):
+                w = leader_weight[s]
+                if w == FAILED:
+                    status[i] = FAILED
+                else:
+                    m ^= leader_message[s]
+                    status[i] = w
+            index, acc, held = put_field(out, index, acc, held, m, k)
+        finish_writer(out, index, acc, held)
+        return status
+    messages, parity = deinterleave_from(coded, k, r, depth, blocks // depth)
+    status = syndrome_correct(messages, parity, table, leader_message, leader_parity, leader_weight)
+    index, acc, held = 0, U64(0), 0
+    for i in range(messages.shape[0]):
+        index, acc, held = put_field(out, index, acc, held, messages[i], k)
+    finish_writer(out, index, acc, held)
     return status
