@@ -14,7 +14,8 @@ from functools import lru_cache
 import numpy as np
 
 from bitmend.codes.linear import BinaryLinearCode
-from bitmend.kernels import bitfields, blockcode
+from bitmend.kernels import small
+from bitmend.kernels.loader import compiled
 
 
 @dataclass(frozen=True)
@@ -50,6 +51,10 @@ def layout(code: BinaryLinearCode, depth: int, message_bytes: int) -> SegmentLay
 def encode_segment(code: BinaryLinearCode, depth: int, message: bytes) -> bytes:
     """Encode and interleave message; returns layout(...).coded_bytes bytes."""
     lay = layout(code, depth, len(message))
+    kernels = compiled(lay.coded_bits)
+    if kernels is None:
+        return small.encode(message, code.P, depth, lay.groups)
+    bitfields, blockcode = kernels
     source = bitfields.to_words(message, lay.blocks * code.k)
     out = bitfields.empty_words(lay.coded_bits)
     blockcode.encode_run(source, lay.blocks, code.k, code.r, depth, code.parity_table, out)
@@ -65,9 +70,13 @@ def decode_segment(code: BinaryLinearCode, depth: int, coded: bytes | np.ndarray
     """
     lay = layout(code, depth, message_bytes)
     raw = np.frombuffer(coded, dtype=np.uint8) if not isinstance(coded, np.ndarray) else coded
+    lead_m, lead_p, weight = code.leader_tables
+    kernels = compiled(lay.coded_bits)
+    if kernels is None:
+        return small.decode(raw[: lay.coded_bytes], code.P, depth, lay.groups, lead_m, weight, message_bytes)
+    bitfields, blockcode = kernels
     source = bitfields.to_words(raw[: lay.coded_bytes], lay.coded_bits)
     out = bitfields.empty_words(lay.blocks * code.k)
-    lead_m, lead_p, weight = code.leader_tables
     status = blockcode.decode_run(source, code.k, code.r, depth, lay.blocks, code.parity_table,
                                   lead_m, lead_p, weight, code.word_table, out)
     return bitfields.to_bytes(out, message_bytes), status

@@ -19,13 +19,12 @@ from math import comb
 import numpy as np
 
 from bitmend.analysis.weights import WeightDistribution, weight_distribution
-from bitmend.kernels import blockcode
 from bitmend.kernels.gf2 import as_bit_matrix, row_reduce
 
 MAX_MESSAGE_BITS = 64  # k: a message is one uint64 in the kernels
 MAX_PARITY_BITS = 20  # r: the coset-leader table has 2^r entries
 WORD_TABLE_MAX_N = 16  # codes this short decode by one lookup per received word
-FAILED = blockcode.FAILED
+FAILED = 255  # block status of an uncorrectable block (as in kernels.blockcode)
 
 
 class CodeDefinitionError(ValueError):
@@ -214,12 +213,16 @@ class BinaryLinearCode:
     # ---- integer-form coding (used by the stream path) -----------------------------------
     def parity_of(self, messages: np.ndarray) -> np.ndarray:
         """p = m P for a uint64 array of k-bit messages."""
+        from bitmend.kernels import blockcode  # compiled kernels load on first use
+
         return blockcode.parities(np.ascontiguousarray(messages, dtype=np.uint64), self.parity_table)
 
     def correct(self, messages: np.ndarray, parity: np.ndarray) -> np.ndarray:
         """Correct received (messages, parity) in place; return per-block status
         (0 clean, w bits corrected, FAILED uncorrectable)."""
         lead_m, lead_p, weight = self.leader_tables
+        from bitmend.kernels import blockcode
+
         return blockcode.syndrome_correct(messages, parity, self.parity_table, lead_m, lead_p, weight)
 
     # ---- bit-array API: a single vector or an (N, n) matrix --------------------------------

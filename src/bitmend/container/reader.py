@@ -19,10 +19,12 @@ import numpy as np
 
 from bitmend.container import format as fmt
 from bitmend.interleave import decode_segment, layout
-from bitmend.kernels.bitfields import find_pattern, to_words
+from bitmend.kernels import small
+from bitmend.kernels.loader import compiled
 
 READ_CHUNK = 1 << 20
 SEARCH_PIECE = 1 << 16  # bytes scanned per marker-search step
+SMALL_SEARCH_PIECE = 1 << 11  # the same while the compiled kernels are not loaded
 MARKER_BITS = 64
 HEADER_BITS = 8 * fmt.HEADER_BYTES
 
@@ -77,6 +79,7 @@ class FrameScanner:
         self._eof = False
         self.stats = ScanStats()
         self.bytes_read = 0
+        self._searched_bits = 0  # bits scanned for markers so far (large scans load numba)
 
     # ---- window management ---------------------------------------------------------
     def _fill(self, end_bit: int) -> bool:
@@ -117,15 +120,22 @@ class FrameScanner:
         """First absolute bit >= start_bit where the marker matches within tolerance, or -1
         at end of input. Reads more input as needed; drops what it has passed over."""
         while True:
-            self._fill(start_bit + MARKER_BITS + 8 * SEARCH_PIECE)
-            stop = min(self._end_bit() - MARKER_BITS + 1, start_bit + 8 * SEARCH_PIECE)
+            kernels = compiled(self._searched_bits)
+            piece_bytes = SEARCH_PIECE if kernels else SMALL_SEARCH_PIECE
+            self._fill(start_bit + MARKER_BITS + 8 * piece_bytes)
+            stop = min(self._end_bit() - MARKER_BITS + 1, start_bit + 8 * piece_bytes)
             if stop > start_bit:
                 first_byte = (start_bit - self._base) >> 3
                 last_byte = (stop - self._base + MARKER_BITS + 7) >> 3
-                piece = to_words(bytes(self._buf[first_byte:last_byte]))
+                piece = bytes(self._buf[first_byte:last_byte])
                 origin = self._base + 8 * first_byte
-                found = find_pattern(piece, start_bit - origin, stop - origin, np.uint64(fmt.MARKER),
-                                     fmt.MARKER_SEARCH_TOLERANCE)
+                if kernels:
+                    found = kernels[0].find_pattern(kernels[0].to_words(piece), start_bit - origin, stop - origin,
+                                                    np.uint64(fmt.MARKER), fmt.MARKER_SEARCH_TOLERANCE)
+                else:
+                    found = small.find_pattern(piece.ljust(len(piece) + 8, b"\0"), start_bit - origin,
+                                               stop - origin, fmt.MARKER, fmt.MARKER_SEARCH_TOLERANCE)
+                self._searched_bits += stop - start_bit
                 if found >= 0:
                     return origin + int(found)
                 start_bit = stop
