@@ -46,7 +46,7 @@ class Encoder(io.BufferedIOBase):
 
     def flush(self) -> None:
         """Send buffered bytes as a frame now (use at packet boundaries)."""
-        if not self.closed:
+        if not self.closed and not self._writer.closed:
             self._writer.flush()
 
     @property
@@ -63,9 +63,11 @@ class Encoder(io.BufferedIOBase):
         try:
             self._writer.close()
         finally:
-            if self._close_fileobj:
-                self._fileobj.close()
-            super().close()
+            try:
+                super().close()  # io calls flush(), a no-op once the writer is closed
+            finally:
+                if self._close_fileobj:
+                    self._fileobj.close()
 
 
 class _DecodedRaw(io.RawIOBase):

@@ -239,7 +239,7 @@ def decode(
 ) -> None:
     """Recover the data; exit 0 only if every byte was CRC-verified."""
     from bitmend.api import Decoder
-    from bitmend.container.assembler import ON_ERROR_CHOICES
+    from bitmend.container.assembler import ON_ERROR_CHOICES, DamagedDataError
 
     with _errors():
         if on_error not in ON_ERROR_CHOICES:
@@ -252,14 +252,18 @@ def decode(
                 raise CliError(f"cannot write report {report}: {exc.strerror}", EXIT_UNREADABLE) from None
         on_frame = (lambda r: report_file.write(r.to_json() + "\n")) if report_file else None
         decoder = None
+        stopped: DamagedDataError | None = None
         try:
             with _open_input(source) as inp:
                 decoder = Decoder(inp, on_error, keep_frame_reports=False, on_frame=on_frame)
                 try:
                     with _open_output(output) as out, _progress("decoding", _input_size(inp), not quiet) as tick:
-                        while block := decoder.read1(COPY_CHUNK):
-                            out.write(block)
-                            tick(decoder.bytes_read)
+                        try:
+                            while block := decoder.read1(COPY_CHUNK):
+                                out.write(block)
+                                tick(decoder.bytes_read)
+                        except DamagedDataError as exc:
+                            stopped = exc  # --on-error fail: keep the verified part written so far
                 except Exception:
                     if report_file and decoder is not None:
                         report_file.write(decoder.summary.to_json() + "\n")
@@ -274,6 +278,8 @@ def decode(
             typer.echo(summary.one_line(), err=True)
             for note in summary.notes:
                 typer.echo(f"bitmend decode: note: {note}", err=True)
+        if stopped is not None:
+            raise CliError(f"stopped: {stopped}", EXIT_DAMAGED)
         raise typer.Exit(EXIT_OK if summary.complete else EXIT_DAMAGED)
 
 
@@ -292,10 +298,10 @@ def inspect(
         with _open_input(source) as inp:
             scanner = FrameScanner(inp, decode_payloads=False)
             count = payload = wire = 0
-            if not as_json:
-                typer.echo(f"{'seq':>8} {'offset':>12} {'code':<14}{'depth':>6}{'payload':>9}{'frame':>9}  notes")
             for f in scanner.frames():
                 h = f.header
+                if count == 0 and not as_json:
+                    typer.echo(f"{'seq':>8} {'offset':>12} {'code':<14}{'depth':>6}{'payload':>9}{'frame':>9}  notes")
                 count += 1
                 payload += h.length
                 wire += h.frame_bytes
@@ -310,7 +316,9 @@ def inspect(
                     typer.echo(f"{h.seq:>8} {f.offset:>12} {names[h.code_id]:<14}{h.depth:>6}{h.length:>9}"
                                f"{h.frame_bytes:>9}  {', '.join(notes)}")
             if count == 0:
-                raise NotAContainerError("no bitmend frame found in the input")
+                errors = scanner.stats.header_errors
+                raise NotAContainerError("no decodable bitmend frame found in the input" +
+                                         (f" ({errors[0]})" if errors else ""))
             overhead = wire / payload - 1 if payload else float("inf")
             if as_json:
                 typer.echo(json.dumps({"type": "summary", "frames": count, "payload_bytes": payload,
@@ -336,6 +344,15 @@ def demo(
         raise typer.Exit(EXIT_OK if ok else EXIT_DAMAGED)
 
 
+def _command_path(ctx) -> str:
+    """'bitmend codes show' for a context, however the program was started."""
+    names = []
+    while ctx is not None and ctx.parent is not None:
+        names.append(ctx.info_name)
+        ctx = ctx.parent
+    return " ".join(["bitmend", *reversed(names)])
+
+
 def main() -> None:
     """Console entry point: usage errors become one line and exit 2; never a traceback."""
     try:
@@ -344,9 +361,9 @@ def main() -> None:
         # typer raises its own (or click's) UsageError, whose exit_code is 2; match by shape
         # so that either packaging of click works
         if getattr(exc, "exit_code", None) == EXIT_USAGE and hasattr(exc, "format_message"):
-            ctx = getattr(exc, "ctx", None)
-            where = f"bitmend {ctx.command_path.split(' ', 1)[1]}" if ctx and " " in ctx.command_path else "bitmend"
-            typer.echo(f"bitmend: {exc.format_message()} (see {where} --help)", err=True)
+            message = exc.format_message()
+            if message:  # (a bare `bitmend` has already printed the help)
+                typer.echo(f"bitmend: {message} (see {_command_path(getattr(exc, 'ctx', None))} --help)", err=True)
             code = EXIT_USAGE
         elif type(exc).__name__ == "Abort":
             typer.echo("bitmend: interrupted", err=True)

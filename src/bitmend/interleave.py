@@ -48,6 +48,17 @@ def layout(code: BinaryLinearCode, depth: int, message_bytes: int) -> SegmentLay
     return SegmentLayout(groups, depth, code.n, code.k)
 
 
+CHUNK_BLOCKS = 1 << 16  # codewords per compiled call: bounds the temporary arrays to about 2 MiB
+
+
+def _chunks(lay: SegmentLayout) -> list[tuple[int, int]]:
+    """(first group, group count) pieces of a segment. Pieces start at multiples of 64
+    groups, so every piece starts on a word boundary of both the message and the coded
+    stream (64 * D * k and 64 * D * n bits)."""
+    step = max(64, CHUNK_BLOCKS // lay.depth // 64 * 64)
+    return [(first, min(step, lay.groups - first)) for first in range(0, lay.groups, step)]
+
+
 def encode_segment(code: BinaryLinearCode, depth: int, message: bytes) -> bytes:
     """Encode and interleave message; returns layout(...).coded_bytes bytes."""
     lay = layout(code, depth, len(message))
@@ -57,7 +68,9 @@ def encode_segment(code: BinaryLinearCode, depth: int, message: bytes) -> bytes:
     bitfields, blockcode = kernels
     source = bitfields.to_words(message, lay.blocks * code.k)
     out = bitfields.empty_words(lay.coded_bits)
-    blockcode.encode_run(source, lay.blocks, code.k, code.r, depth, code.parity_table, out)
+    for first, groups in _chunks(lay):
+        blockcode.encode_run(source[first * depth * code.k // 64:], groups * depth, code.k, code.r, depth,
+                             code.parity_table, out[first * depth * code.n // 64:])
     return bitfields.to_bytes(out, lay.coded_bytes)
 
 
@@ -77,6 +90,8 @@ def decode_segment(code: BinaryLinearCode, depth: int, coded: bytes | np.ndarray
     bitfields, blockcode = kernels
     source = bitfields.to_words(raw[: lay.coded_bytes], lay.coded_bits)
     out = bitfields.empty_words(lay.blocks * code.k)
-    status = blockcode.decode_run(source, code.k, code.r, depth, lay.blocks, code.parity_table,
-                                  lead_m, lead_p, weight, code.word_table, out)
-    return bitfields.to_bytes(out, message_bytes), status
+    status = [blockcode.decode_run(source[first * depth * code.n // 64:], code.k, code.r, depth, groups * depth,
+                                   code.parity_table, lead_m, lead_p, weight, code.word_table,
+                                   out[first * depth * code.k // 64:])
+              for first, groups in _chunks(lay)]
+    return bitfields.to_bytes(out, message_bytes), status[0] if len(status) == 1 else np.concatenate(status)

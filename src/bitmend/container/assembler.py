@@ -78,7 +78,8 @@ class Assembler:
     def _status(self, frame: DecodedFrame) -> str:
         if not frame.crc_ok:
             return DAMAGED
-        return CORRECTED if frame.corrected_symbols else CLEAN
+        # CRC-verified; blocks that failed can only lie in the zero padding, still worth a flag
+        return CORRECTED if frame.corrected_symbols or frame.failed_blocks else CLEAN
 
     def __iter__(self) -> Iterator[tuple[bytes, FrameReport]]:
         for frame in self.scanner.frames():
@@ -113,7 +114,9 @@ class Assembler:
             self._end_seen = header.last
             self._expected = 0 if header.last else (header.seq + 1) & 0xFFFFFFFF
         if not self._any_frame:
-            raise NotAContainerError("no bitmend frame found in the input")
+            errors = self.scanner.stats.header_errors
+            detail = f" ({errors[0]})" if errors else ""
+            raise NotAContainerError(f"no decodable bitmend frame found in the input{detail}")
         if not self._end_seen and self.on_error == "fail":
             raise DamagedDataError("the stream ends without its closing frame (truncated?)")
 

@@ -33,6 +33,7 @@ HEADER_CODE = "golay-24-12"
 HEADER_DEPTH = 11  # 11 codewords of 24 bits carry the 128-bit record (132 with padding)
 HEADER_BYTES = 33
 MAX_PAYLOAD_BYTES = 1 << 20  # frame payload limit: bounds every allocation a header drives
+MAX_FRAME_WIRE_BYTES = 8 + 2 * 33 + 3 * (MAX_PAYLOAD_BYTES + 4 + 255 * 3)  # largest frame (rep-3 at depth 255)
 DEFAULT_FRAME_BYTES = 16384
 CRC_BYTES = 4
 FLAG_LAST = 0x01  # the frame closes its stream
@@ -104,7 +105,10 @@ def decode_header(coded: bytes) -> FrameHeader | None:
         return None
     version, flags, code_id, depth, seq, length = struct.unpack(">BBBBII", body)
     if version != FORMAT_VERSION:
+        # a newer writer: say so rather than treating the stream as noise
         raise UnsupportedVersionError(f"frame format version {version}; this bitmend reads version {FORMAT_VERSION}")
+    if flags & ~FLAG_LAST:
+        raise HeaderError(f"frame header has unknown flags 0x{flags:02x}")
     if not 1 <= depth <= MAX_DEPTH:
         raise HeaderError(f"frame depth {depth} outside 1..{MAX_DEPTH}")
     if length > MAX_PAYLOAD_BYTES:

@@ -16,6 +16,7 @@ from functools import cached_property
 from typing import BinaryIO, Iterator
 
 import numpy as np
+from bitarray import bitarray
 
 from bitmend.container import format as fmt
 from bitmend.interleave import decode_segment, layout
@@ -25,6 +26,7 @@ from bitmend.kernels.loader import compiled
 READ_CHUNK = 1 << 20
 SEARCH_PIECE = 1 << 16  # bytes scanned per marker-search step
 SMALL_SEARCH_PIECE = 1 << 11  # the same while the compiled kernels are not loaded
+LOOKBACK_BITS = 8 * fmt.MAX_FRAME_WIRE_BYTES  # window kept behind a search, for look-back recovery
 MARKER_BITS = 64
 HEADER_BITS = 8 * fmt.HEADER_BYTES
 
@@ -112,9 +114,9 @@ class FrameScanner:
         raw = bytes(self._buf[start: start + count + 1])
         if shift == 0:
             return raw[:count].ljust(count, b"\0")
-        raw = raw.ljust(count + 1, b"\0")
-        value = int.from_bytes(raw, "big") << shift
-        return (value & ((1 << (8 * (count + 1))) - 1)).to_bytes(count + 1, "big")[:count]
+        bits = bitarray(endian="big")
+        bits.frombytes(raw.ljust(count + 1, b"\0"))
+        return bits[shift: shift + 8 * count].tobytes()
 
     def _search(self, start_bit: int) -> int:
         """First absolute bit >= start_bit where the marker matches within tolerance, or -1
@@ -141,7 +143,7 @@ class FrameScanner:
                 start_bit = stop
             elif self._eof:
                 return -1
-            self._drop_before(start_bit)
+            self._drop_before(start_bit - LOOKBACK_BITS)
 
     # ---- header and payload -----------------------------------------------------------
     def _header_at(self, bit: int) -> fmt.FrameHeader | None:
@@ -161,6 +163,20 @@ class FrameScanner:
         if found and found.seq == predicted.seq and found.frame_bytes == predicted.frame_bytes:
             return found
         return None
+
+    def _look_back(self, gap_start: int, gap_end: int) -> DecodedFrame | None:
+        """A frame filling the end of the gap [gap_start, gap_end) whose leading marker or
+        header was hit, found through its header copy, which ends right at gap_end."""
+        copy_bit = gap_end - HEADER_BITS
+        if copy_bit - gap_start < MARKER_BITS + HEADER_BITS or copy_bit < self._base:
+            return None
+        header = self._header_at(copy_bit)
+        if header is None:
+            return None
+        start = gap_end - 8 * header.frame_bytes
+        if start < max(gap_start, self._base):
+            return None
+        return self._decode_frame(start, header, from_copy=True)
 
     def _decode_frame(self, bit: int, header: fmt.FrameHeader, from_copy: bool) -> DecodedFrame:
         total = header.frame_bytes
@@ -191,24 +207,34 @@ class FrameScanner:
 
     # ---- the scan ----------------------------------------------------------------------
     def frames(self) -> Iterator[DecodedFrame]:
+        """Frames in stream order; see the module docstring for how they are found."""
         pos = 0  # absolute bit where the next frame is expected or the search resumes
         covered = 0  # absolute bit where the last emitted frame ended
         locked: fmt.FrameHeader | None = None  # last good header while in lock
         fallback: int | None = None  # where to search if the frame after a damaged one is not in place
+        at_start = True  # input should begin with a frame: try its header even if the marker is hit
         while True:
-            if locked is None:
+            searched = locked is None and not at_start
+            if searched:
                 found = self._search(pos)
-                if found < 0:
-                    self.stats.skipped_bytes += max(0, (self._end_bit() - max(pos, covered)) // 8)
+                if found < 0:  # end of input: the gap may still end with a frame
+                    gap_start = max(pos, covered)
+                    tail = self._look_back(gap_start, self._end_bit())
+                    if tail is not None:
+                        self.stats.skipped_bytes += (tail.bit_offset - gap_start) // 8
+                        yield tail
+                    else:
+                        self.stats.skipped_bytes += max(0, (self._end_bit() - gap_start) // 8)
                     return
                 candidate = found
             else:
                 if not self._fill(pos + MARKER_BITS + HEADER_BITS):
                     if self._end_bit() > pos:
-                        locked = None  # a stub too short for a header: report it as skipped
+                        locked, at_start = None, False  # a stub too short for a header: search it
                         continue
                     return
                 candidate = pos
+            was_start, at_start = at_start, False
             self._fill(candidate + MARKER_BITS + HEADER_BITS)
             header = self._header_at(candidate + MARKER_BITS)
             from_copy = False
@@ -217,19 +243,27 @@ class FrameScanner:
                 from_copy = header is not None
             if header is None:
                 if locked is None:
-                    pos = candidate + 1
+                    pos = candidate if was_start else candidate + 1
                 else:
                     locked = None  # lost lock: search from here (or from inside a damaged frame)
                     if fallback is not None:
                         pos, fallback = fallback, None
                 continue
-            self.stats.skipped_bytes += max(0, candidate - max(pos, covered)) // 8
+            gap_start = max(pos, covered)
+            if searched and candidate > gap_start:
+                # the gap before this frame may end with a frame whose leading header was hit
+                earlier = self._look_back(gap_start, candidate)
+                if earlier is not None:
+                    self.stats.skipped_bytes += (earlier.bit_offset - gap_start) // 8
+                    gap_start = candidate
+                    yield earlier
+            self.stats.skipped_bytes += max(0, candidate - gap_start) // 8
             frame = self._decode_frame(candidate, header, from_copy)
             covered = candidate + 8 * header.frame_bytes
             yield frame
             if frame.truncated:
                 return
-            pos = candidate + 8 * header.frame_bytes
+            pos = covered
             locked = header
             # a damaged frame may hide a slip: if the next frame is not where expected,
             # the search resumes from inside the damaged one
