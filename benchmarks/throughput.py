@@ -3,7 +3,7 @@
     python benchmarks/throughput.py [--mib 64] [--codes hamming-7-4,secded-72-64,golay-24-12]
                                     [--depths 1,8] [--flip-rate 1e-3]
 
-MB/s counts payload bytes (10^6 bytes per MB). Data is random; the damaged input is made
+MB/s counts payload bytes (10^6 bytes per MB); each figure is the best of --repeat runs. Data is random; the damaged input is made
 once per case with a fixed seed, outside the timed region. A warm-up run compiles or loads
 the numba kernels first. This is a benchmark, not a test: it asserts only correctness.
 """
@@ -43,6 +43,7 @@ def main() -> None:
     ap.add_argument("--codes", default="hamming-7-4,secded-72-64,golay-24-12")
     ap.add_argument("--depths", default="1,8")
     ap.add_argument("--flip-rate", type=float, default=1e-3)
+    ap.add_argument("--repeat", type=int, default=3, help="runs per case; the best is reported")
     args = ap.parse_args()
     data = np.random.default_rng(1).integers(0, 256, args.mib << 20, dtype=np.uint8).tobytes()
     _decode(_encode(data[:100_000], "hamming-7-4", 8))  # warm-up: load compiled kernels
@@ -50,18 +51,21 @@ def main() -> None:
     print(f"{'code':<14}{'depth':>6}{'encode MB/s':>13}{'decode MB/s':>13}{'decode p=' + format(args.flip_rate, 'g'):>18}")
     for code in args.codes.split(","):
         for depth in (int(d) for d in args.depths.split(",")):
-            t0 = time.perf_counter()
-            blob = _encode(data, code, depth)
-            t1 = time.perf_counter()
-            out, ok = _decode(blob)
-            t2 = time.perf_counter()
-            assert out == data and ok
-            noisy, _ = flip_bits(blob, args.flip_rate, np.random.default_rng(7))
-            t3 = time.perf_counter()
-            out, _ = _decode(noisy)
-            t4 = time.perf_counter()
+            best = [float("inf")] * 3  # best of --repeat runs: the machine is shared
+            for _ in range(args.repeat):
+                t0 = time.perf_counter()
+                blob = _encode(data, code, depth)
+                t1 = time.perf_counter()
+                out, ok = _decode(blob)
+                t2 = time.perf_counter()
+                assert out == data and ok
+                noisy, _ = flip_bits(blob, args.flip_rate, np.random.default_rng(7))
+                t3 = time.perf_counter()
+                _decode(noisy)
+                t4 = time.perf_counter()
+                best = [min(b, t) for b, t in zip(best, (t1 - t0, t2 - t1, t4 - t3))]
             mb = len(data) / 1e6
-            print(f"{code:<14}{depth:>6}{mb / (t1 - t0):>13.0f}{mb / (t2 - t1):>13.0f}{mb / (t4 - t3):>18.0f}")
+            print(f"{code:<14}{depth:>6}{mb / best[0]:>13.0f}{mb / best[1]:>13.0f}{mb / best[2]:>18.0f}")
 
 
 if __name__ == "__main__":

@@ -24,8 +24,16 @@ from conftest import (ALL_CODES, SECDED_CODES, check_report_lines, delete_bit, f
 # ---- CRC and headers --------------------------------------------------------------------------
 
 def test_crc32c_check_value_of_123456789():
-    # CRC-32C of b"123456789" = 0xE3069283 (Greg Cook's CRC RevEng catalogue)
+    # CRC-32C of b"123456789" = 0xE3069283 (Greg Cook's CRC RevEng catalogue), for the
+    # function in use and for the crcmod reference it must equal
     assert fmt.crc32c(b"123456789") == 0xE3069283
+    assert fmt.crc32c_reference(b"123456789") == 0xE3069283
+
+
+@settings(max_examples=50, deadline=None)
+@given(data=st.binary(max_size=3000))
+def test_crc32c_in_use_equals_the_crcmod_reference(data):
+    assert fmt.crc32c(data) == fmt.crc32c_reference(data)
 
 
 def test_crc32c_is_not_plain_crc32():

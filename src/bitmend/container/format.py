@@ -38,7 +38,24 @@ DEFAULT_FRAME_BYTES = 16384
 CRC_BYTES = 4
 FLAG_LAST = 0x01  # the frame closes its stream
 
-crc32c = crcmod.predefined.mkCrcFun("crc-32c")
+crc32c_reference = crcmod.predefined.mkCrcFun("crc-32c")
+
+
+def _fastest_crc32c():
+    """CRC-32C (Castagnoli, reflected, init and xorout 0xFFFFFFFF). crcmod defines it and
+    is the reference; google-crc32c computes the same function with the processor's CRC
+    instruction (about 50x faster here), used when its compiled form is present. The
+    tests hold both to the catalogue check value and to each other."""
+    try:
+        import google_crc32c
+    except ImportError:
+        return crc32c_reference
+    if getattr(google_crc32c, "implementation", "") != "c":
+        return crc32c_reference
+    return google_crc32c.value
+
+
+crc32c = _fastest_crc32c()
 
 
 class HeaderError(ValueError):

@@ -98,9 +98,10 @@ class FrameScanner:
         return True
 
     def _drop_before(self, bit: int) -> None:
-        """Forget window bytes wholly before absolute bit (keeps memory bounded)."""
+        """Forget window bytes wholly before absolute bit (keeps memory bounded). Done only
+        once a whole read chunk can go, so the memmove of the rest is amortised."""
         cut = (bit - self._base) >> 3
-        if cut > 0:
+        if cut >= self._chunk:
             del self._buf[:cut]
             self._base += 8 * cut
 
