@@ -12,10 +12,16 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from bitmend.codes.catalog import code_names
+from bitmend.codes.catalog import code_names, get_code
+from bitmend.codes.linear import BinaryLinearCode
 from bitmend.container import format as fmt
 
-ALL_CODES = tuple(code_names())
+CATALOG_CODES = tuple(code_names())
+# ALL_CODES: every catalog code of the generic binary linear engine (ids 1-11), the set the
+# engine-wide tests run over; BCH and Reed-Solomon codes have test_bch.py and test_rs.py
+ALL_CODES = tuple(name for name in CATALOG_CODES if isinstance(get_code(name), BinaryLinearCode))
+BCH_CODES = tuple(name for name in CATALOG_CODES if name.startswith("bch-"))
+RS_CODES = tuple(name for name in CATALOG_CODES if name.startswith("rs-"))
 SECDED_CODES = ("secded-8-4", "secded-16-11", "secded-39-32", "secded-72-64")
 HAMMING_CODES = ("hamming-7-4", "hamming-15-11", "hamming-31-26", "hamming-63-57")
 REPO_ROOT = Path(__file__).resolve().parents[1]

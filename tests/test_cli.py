@@ -9,8 +9,8 @@ import pytest
 
 from bitmend.container import format as fmt
 
-from conftest import (REPO_ROOT, bitmend_command, check_report_lines, flip_run, frame_spans, payload_slices,
-                      random_bytes, run_cli)
+from conftest import (CATALOG_CODES, REPO_ROOT, bitmend_command, check_report_lines, flip_run, frame_spans,
+                      payload_slices, random_bytes, run_cli)
 
 # MacWilliams & Sloane, The Theory of Error-Correcting Codes, ch. 2: extended Golay (24,12)
 GOLAY_24_WEIGHTS = {"0": 1, "8": 759, "12": 2576, "16": 759, "24": 1}
@@ -171,11 +171,11 @@ def test_on_error_fail_exits_1_after_writing_the_frames_before(damaged_frame_two
 
 # ---- codes and inspect --------------------------------------------------------------------------------
 
-def test_codes_json_lists_all_eleven_codes_with_their_parameters():
+def test_codes_json_lists_every_catalog_code_with_its_parameters():
     run = run_cli("codes", "--json")
     assert run.code == 0, run.err
     facts = {c["name"]: c for c in json.loads(run.out)}
-    assert len(facts) == 11
+    assert list(facts) == list(CATALOG_CODES)
     assert (facts["golay-24-12"]["n"], facts["golay-24-12"]["k"], facts["golay-24-12"]["d"],
             facts["golay-24-12"]["t"]) == (24, 12, 8, 3)
     assert all(facts[f"secded-{s}"]["d"] == 4 for s in ("8-4", "16-11", "39-32", "72-64"))

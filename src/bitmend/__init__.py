@@ -7,9 +7,9 @@
 """
 
 from bitmend.api import (Decoded, Decoder, Encoder, DamagedDataError, NotAContainerError, decode_bytes,
-                         encode_bytes, open)
+                         encode_bytes, load_code_file, open)
 from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH, code_names, get_code
 
 __all__ = ["open", "Encoder", "Decoder", "encode_bytes", "decode_bytes", "Decoded", "NotAContainerError",
-           "DamagedDataError", "get_code", "code_names", "DEFAULT_CODE", "DEFAULT_DEPTH"]
+           "DamagedDataError", "get_code", "code_names", "load_code_file", "DEFAULT_CODE", "DEFAULT_DEPTH"]
 __version__ = "0.1.0"

@@ -15,21 +15,37 @@ from dataclasses import dataclass
 from typing import BinaryIO, Callable, Iterator
 
 from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH
+from bitmend.codes.custom import MAX_DEFINITION_CHARS, parse_code_definition
+from bitmend.codes.linear import BinaryLinearCode, CodeDefinitionError
 from bitmend.container.assembler import Assembler, DamagedDataError, NotAContainerError
 from bitmend.container.format import DEFAULT_FRAME_BYTES
 from bitmend.container.writer import FrameWriter
 from bitmend.report import DecodeReport, FrameReport, Summary
 
-__all__ = ["open", "Encoder", "Decoder", "encode_bytes", "decode_bytes", "Decoded",
+__all__ = ["open", "Encoder", "Decoder", "encode_bytes", "decode_bytes", "Decoded", "load_code_file",
            "NotAContainerError", "DamagedDataError"]
 
 PathOrFile = str | os.PathLike | BinaryIO
+CodeChoice = str | BinaryLinearCode  # a catalog name, or a code object (custom codes travel in the frames)
+
+
+def load_code_file(path: str | os.PathLike) -> BinaryLinearCode:
+    """A custom code from a text or JSON definition file (format in bitmend.codes.custom).
+    Raises CodeDefinitionError (one line naming the file) for a malformed definition and
+    OSError if the file cannot be read."""
+    with io.open(path, "rb") as f:
+        raw = f.read(MAX_DEFINITION_CHARS + 1)
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError:
+        raise CodeDefinitionError(f"{os.fspath(path)}: not a text file (a code definition is text or JSON)") from None
+    return parse_code_definition(text, source=os.fspath(path))
 
 
 class Encoder(io.BufferedIOBase):
     """Writable binary file object: bytes written are framed, coded and sent to fileobj."""
 
-    def __init__(self, fileobj: BinaryIO, code: str = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
+    def __init__(self, fileobj: BinaryIO, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
                  frame_bytes: int = DEFAULT_FRAME_BYTES, close_fileobj: bool = False) -> None:
         super().__init__()
         self._fileobj = fileobj
@@ -145,10 +161,12 @@ class Decoder(io.BufferedReader):
                 self._fileobj.close()
 
 
-def open(file: PathOrFile, mode: str = "rb", *, code: str = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
+def open(file: PathOrFile, mode: str = "rb", *, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
          frame_bytes: int = DEFAULT_FRAME_BYTES, on_error: str = "keep") -> Encoder | Decoder:
     """Open a bitmend container for reading ('rb') or writing ('wb'), from a path or a
-    binary file object; code, depth and frame_bytes apply to writing, on_error to reading."""
+    binary file object; code, depth and frame_bytes apply to writing, on_error to reading.
+    code is a catalog name or a code object (e.g. from load_code_file): a code outside the
+    catalog is written into every frame, so reading needs nothing but the container."""
     if mode not in ("rb", "r", "wb", "w"):
         raise ValueError(f"mode must be 'rb' or 'wb', got {mode!r}")
     writing = mode.startswith("w")
@@ -172,9 +190,9 @@ class Decoded:
     report: DecodeReport
 
 
-def encode_bytes(data: bytes, code: str = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
+def encode_bytes(data: bytes, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
                  frame_bytes: int = DEFAULT_FRAME_BYTES) -> bytes:
-    """The container for data (one-shot)."""
+    """The container for data (one-shot); code is a catalog name or a code object."""
     sink = io.BytesIO()
     with Encoder(sink, code, depth, frame_bytes) as enc:
         enc.write(data)

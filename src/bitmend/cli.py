@@ -6,6 +6,7 @@ Exit codes: 0 every byte recovered and CRC-verified; 1 finished but data damaged
 
 from __future__ import annotations
 
+import io
 import json
 import os
 import sys
@@ -46,8 +47,12 @@ def _fail(message: str, code: int) -> None:
 @contextmanager
 def _errors() -> Iterator[None]:
     """Map library exceptions to one line and an exit code, in one place."""
+    from bitmend.channel.drop import NoFramesError
+    from bitmend.channel.spec import ChannelSpecError
     from bitmend.codes.catalog import UnknownCodeError
+    from bitmend.codes.linear import CodeDefinitionError
     from bitmend.container.assembler import DamagedDataError, NotAContainerError
+    from bitmend.planning import PlanError
 
     try:
         yield
@@ -55,6 +60,12 @@ def _errors() -> Iterator[None]:
         _fail(str(exc), exc.exit_code)
     except UnknownCodeError as exc:
         _fail(str(exc), EXIT_USAGE)
+    except (CodeDefinitionError, PlanError) as exc:
+        _fail(str(exc), EXIT_USAGE)
+    except ChannelSpecError as exc:
+        _fail(str(exc), EXIT_USAGE)
+    except NoFramesError as exc:
+        _fail(str(exc), EXIT_UNREADABLE)
     except NotAContainerError as exc:
         _fail(str(exc), EXIT_UNREADABLE)
     except DamagedDataError as exc:
@@ -146,7 +157,10 @@ def _code_facts(name: str) -> dict:
 
     code = get_code(name)
     return {"name": name, "n": code.n, "k": code.k, "rate": round(code.rate, 6), "d": code.d, "t": code.t,
-            "detects": code.detects, "perfect": code.is_perfect, "use": entry(name).use}
+            "detects": code.detects, "perfect": code.is_perfect, "use": entry(name).use,
+            # BCH: d is the designed distance, a lower bound; Reed-Solomon counts in 8-bit symbols
+            "d_exact": getattr(code, "distance_kind", "exact") != "designed",
+            "symbol_bits": getattr(code, "symbol_bits", 1)}
 
 
 @codes_app.callback()
@@ -161,41 +175,52 @@ def codes(ctx: typer.Context, as_json: bool = typer.Option(False, "--json", help
         if as_json:
             typer.echo(json.dumps(facts, indent=2))
             return
-        typer.echo(f"{'code':<15}{'n':>4}{'k':>4}{'rate':>8}{'d':>4}{'t':>4}{'detects':>9}  use")
+        typer.echo(f"{'code':<15}{'n':>4}{'k':>4}{'rate':>8}{'d':>6}{'t':>4}{'detects':>9}  {'unit':<6}use")
         for f in facts:
             mark = " (default)" if f["name"] == DEFAULT_CODE else ""
-            typer.echo(f"{f['name']:<15}{f['n']:>4}{f['k']:>4}{f['rate']:>8.3f}{f['d']:>4}{f['t']:>4}"
-                       f"{f['detects']:>9}  {f['use']}{mark}")
+            d = str(f["d"]) if f["d_exact"] else f">={f['d']}"
+            unit = "bit" if f["symbol_bits"] == 1 else "byte" if f["symbol_bits"] == 8 else f"{f['symbol_bits']}b"
+            typer.echo(f"{f['name']:<15}{f['n']:>4}{f['k']:>4}{f['rate']:>8.3f}{d:>6}{f['t']:>4}"
+                       f"{f['detects']:>9}  {unit:<6}{f['use']}{mark}")
         typer.echo(f"\ndefault: {DEFAULT_CODE} at depth {DEFAULT_DEPTH}; "
                    "t = errors corrected per codeword; detects = every pattern of up to this many "
-                   "errors is at least detected while t are corrected (d - 1 - t)")
+                   "errors is at least detected while t are corrected (d - 1 - t); d >= n: designed "
+                   "distance of a BCH code, a lower bound; unit: what n, k, d and t count (Reed-Solomon "
+                   "symbols are bytes)")
+
+
+CODE_FILE_HELP = ("Custom code: a text file ('generator' or 'parity-check', then rows of 0/1) or JSON "
+                  "({\"generator\": [[...]]} or {\"parity_check\": [[...]]}).")
+
+
+def _load_code(name: Optional[str], code_file: Optional[str]):
+    """The code named by NAME/--code or read from --code-file (exactly one of them)."""
+    if name and code_file:
+        raise CliError("give a catalog code or --code-file, not both", EXIT_USAGE)
+    if code_file:
+        from bitmend.api import load_code_file
+        return load_code_file(code_file)
+    from bitmend.codes.catalog import get_code
+    return get_code(name or DEFAULT_CODE)
 
 
 @codes_app.command("show")
-def codes_show(name: str = typer.Argument(..., help="Catalog name, e.g. hamming-7-4."),
+def codes_show(name: Optional[str] = typer.Argument(None, help="Catalog name, e.g. hamming-7-4."),
+               code_file: Optional[str] = typer.Option(None, "--code-file", help=CODE_FILE_HELP),
                as_json: bool = typer.Option(False, "--json", help="Machine-readable output.")) -> None:
-    """Properties, systematic matrices and weight distribution of one code."""
-    from bitmend.codes.catalog import get_code
+    """Properties, systematic matrices, bounds, weight distribution and error probabilities
+    on a binary symmetric channel of one code."""
+    from bitmend.properties import code_profile
 
     with _errors():
-        code = get_code(name)
-        facts = _code_facts(name)
-        wd = code.weight_distribution
-        facts["weight_distribution"] = {str(w): a for w, a in enumerate(wd.counts) if a}
-        facts["weight_distribution_method"] = wd.method
-        facts["G"] = ["".join(map(str, row)) for row in code.G]
-        facts["H"] = ["".join(map(str, row)) for row in code.H]
+        if not name and not code_file:
+            raise CliError("name a catalog code (see `bitmend codes`) or give --code-file", EXIT_USAGE)
+        profile = code_profile(_load_code(name, code_file))
         if as_json:
-            typer.echo(json.dumps(facts, indent=2))
+            typer.echo(json.dumps(profile.to_dict(), indent=2))
             return
-        typer.echo(f"{name}: ({code.n},{code.k}) rate {code.rate:.4f}, d = {code.d}, corrects t = {code.t}, "
-                   f"detects {code.detects} more{', perfect' if code.is_perfect else ''}")
-        typer.echo(f"weight distribution ({wd.method}): " +
-                   ", ".join(f"A{w}={a}" for w, a in facts["weight_distribution"].items()))
-        for label, rows in (("G = [I | P]", facts["G"]), ("H = [P^T | I]", facts["H"])):
-            typer.echo(f"{label}:")
-            for row in rows:
-                typer.echo(f"  {row}")
+        for line in profile.render():
+            typer.echo(line)
 
 
 # ---- encode / decode / inspect -----------------------------------------------------------
@@ -204,7 +229,10 @@ def codes_show(name: str = typer.Argument(..., help="Catalog name, e.g. hamming-
 def encode(
     source: str = typer.Argument("-", metavar="[IN]", help="Input file; - or omitted for stdin."),
     output: Optional[str] = typer.Option(None, "-o", "--output", help="Output file (default stdout)."),
-    code: str = typer.Option(DEFAULT_CODE, "--code", help="Catalog code name (see `bitmend codes`)."),
+    code: Optional[str] = typer.Option(None, "--code", help=f"Catalog code name (see `bitmend codes`); "
+                                       f"default {DEFAULT_CODE}."),
+    code_file: Optional[str] = typer.Option(None, "--code-file", help=CODE_FILE_HELP + " The code travels "
+                                            "inside the container: decoding needs no file."),
     depth: int = typer.Option(DEFAULT_DEPTH, "--depth", help=f"Interleaving depth 1..{MAX_DEPTH}: "
                               "corrects any burst of depth*t bits."),
     frame_bytes: int = typer.Option(DEFAULT_FRAME_BYTES, "--frame-bytes", help="Payload bytes per frame (1..1048576)."),
@@ -217,11 +245,16 @@ def encode(
         _check_depth(depth)
         if not 1 <= frame_bytes <= MAX_PAYLOAD_BYTES:
             raise CliError(f"--frame-bytes must be 1..{MAX_PAYLOAD_BYTES}, got {frame_bytes}", EXIT_USAGE)
-        from bitmend.codes.catalog import get_code
-        get_code(code)  # unknown names fail before any output is made
+        chosen = _load_code(code, code_file)  # unknown names and bad files fail before any output is made
+        if code_file:
+            from bitmend.container.writer import FrameWriter
+            try:
+                FrameWriter(io.BytesIO(), chosen, depth, frame_bytes)  # frame size limits, before any output
+            except ValueError as exc:
+                raise CliError(str(exc), EXIT_USAGE) from None
         with _open_input(source) as inp, _open_output(output) as out:
             with _progress("encoding", _input_size(inp), True) as tick:
-                with Encoder(out, code, depth, frame_bytes) as enc:
+                with Encoder(out, code or chosen, depth, frame_bytes) as enc:
                     while block := inp.read(COPY_CHUNK):
                         enc.write(block)
                         tick(enc.bytes_in)
@@ -308,12 +341,14 @@ def inspect(
                 notes = [w for w, on in (("last", h.last), ("truncated", f.truncated),
                                          ("header from copy", f.header_from_copy)) if on]
                 if as_json:
-                    typer.echo(json.dumps({"type": "frame", "seq": h.seq, "offset": f.offset, "code": names[h.code_id],
+                    typer.echo(json.dumps({"type": "frame", "seq": h.seq, "offset": f.offset,
+                                           "code": names.get(h.code_id) or h.code_name,
                                            "depth": h.depth, "payload_bytes": h.length, "frame_bytes": h.frame_bytes,
                                            "last": h.last, "truncated": f.truncated,
                                            "marker_distance": f.marker_distance}, separators=(",", ":")))
                 else:
-                    typer.echo(f"{h.seq:>8} {f.offset:>12} {names[h.code_id]:<14}{h.depth:>6}{h.length:>9}"
+                    typer.echo(f"{h.seq:>8} {f.offset:>12} {names.get(h.code_id) or h.code_name:<14}"
+                               f"{h.depth:>6}{h.length:>9}"
                                f"{h.frame_bytes:>9}  {', '.join(notes)}")
             if count == 0:
                 errors = scanner.stats.header_errors
@@ -329,18 +364,183 @@ def inspect(
                            f"(overhead {overhead:.1%}), {scanner.stats.skipped_bytes} bytes outside frames")
 
 
+# ---- inject / simulate ----------------------------------------------------------------------
+
+CHANNEL_HELP = ("Fault model SPEC: bsc:p=1e-3 | burst:enter=1e-4,leave=0.1,bad=0.5[,good=0] | bytes:p=1e-3 | "
+                "drop:p=0.01 | slip:p=1e-5. Repeat to chain models, applied in order.")
+
+
+@app.command()
+def inject(
+    source: str = typer.Argument("-", metavar="[IN]", help="Input file; - or omitted for stdin."),
+    output: Optional[str] = typer.Option(None, "-o", "--output", help="Output file (default stdout)."),
+    channel: list[str] = typer.Option(..., "--channel", help=CHANNEL_HELP),
+    seed: Optional[int] = typer.Option(None, "--seed", help="Seed of every random choice: the same seed gives the "
+                                       "same damage (default: a fresh seed, written to the ledger and stderr)."),
+    ledger: Optional[str] = typer.Option(None, "--ledger", help="Write what was done here as JSON: bits seen, "
+                                         "flipped, bytes substituted, frames dropped, slips; positions for small inputs."),
+    quiet: bool = typer.Option(False, "--quiet", "-q", help="No summary line on stderr."),
+) -> None:
+    """Damage any byte stream on purpose, reproducibly (a streaming filter for fault tests)."""
+    from bitmend.channel.spec import parse_channels
+    from bitmend.inject import inject as run_inject
+
+    with _errors():
+        parse_channels(channel)  # a bad SPEC fails before any output is made
+        ledger_file = None
+        if ledger:
+            try:
+                ledger_file = open(ledger, "w", encoding="utf-8")
+            except OSError as exc:
+                raise CliError(f"cannot write ledger {ledger}: {exc.strerror}", EXIT_UNREADABLE) from None
+        done = False
+        try:
+            with _open_input(source) as inp, _open_output(output) as out:
+                with _progress("injecting", _input_size(inp), not quiet) as tick:
+                    record = run_inject(inp, out, channel, seed, progress=tick)
+            if ledger_file:
+                ledger_file.write(record.to_json() + "\n")
+            done = True
+        finally:
+            if ledger_file:
+                ledger_file.close()
+                if not done:
+                    os.unlink(ledger)
+        if not quiet:
+            typer.echo(f"bitmend inject: seed {record.seed}: {record.one_line()}", err=True)
+
+
+@app.command()
+def simulate(
+    code: str = typer.Option(DEFAULT_CODE, "--code", help="Catalog code name (see `bitmend codes`)."),
+    code_file: Optional[str] = typer.Option(None, "--code-file", help=CODE_FILE_HELP),
+    depth: int = typer.Option(DEFAULT_DEPTH, "--depth", help=f"Interleaving depth 1..{MAX_DEPTH}."),
+    channel: list[str] = typer.Option(..., "--channel", help=CHANNEL_HELP + " Only bsc, burst and bytes here."),
+    bits: float = typer.Option(1e7, "--bits", help="Payload bits to send per point, rounded up to whole frames "
+                               "(e.g. 1e8)."),
+    seed: Optional[int] = typer.Option(None, "--seed", help="Seed of data and channel (default: a fresh one, "
+                                       "printed with the results)."),
+    sweep: Optional[str] = typer.Option(None, "--sweep", help="Vary one channel parameter on a log grid: "
+                                        "NAME=LOW..HIGH:COUNT, e.g. p=1e-4..1e-1:12."),
+    plot: Optional[str] = typer.Option(None, "--plot", help="Draw measured points, theory and the uncoded line "
+                                       "into F.png or F.svg (needs matplotlib)."),
+    as_json: bool = typer.Option(False, "--json", help="Machine-readable output (JSON)."),
+    as_csv: bool = typer.Option(False, "--csv", help="Machine-readable output (CSV, one row per point)."),
+    frame_bytes: int = typer.Option(DEFAULT_FRAME_BYTES, "--frame-bytes", help="Payload bytes per simulated frame "
+                                    "(the unit of the frame error rate)."),
+) -> None:
+    """Monte Carlo trials of a code on a channel through the real encoder and decoder, with
+    exact 95% intervals, beside theory and the uncoded channel."""
+    from bitmend import simulate as sim
+    from bitmend.channel.spec import parse_channels
+    from bitmend.container.format import MAX_PAYLOAD_BYTES
+
+    with _errors():
+        _check_depth(depth)
+        if not 1 <= frame_bytes <= MAX_PAYLOAD_BYTES:
+            raise CliError(f"--frame-bytes must be 1..{MAX_PAYLOAD_BYTES}, got {frame_bytes}", EXIT_USAGE)
+        if not (bits >= 1 and bits == int(bits) and bits <= sim.MAX_BITS):
+            raise CliError(f"--bits must be a whole number 1..{sim.MAX_BITS:.3g}, got {bits:g}", EXIT_USAGE)
+        if as_json and as_csv:
+            raise CliError("choose one of --json and --csv", EXIT_USAGE)
+        if seed is not None and seed < 0:
+            raise CliError(f"--seed must be >= 0, got {seed}", EXIT_USAGE)
+        if code_file:
+            if code != DEFAULT_CODE:
+                raise CliError("give --code or --code-file, not both", EXIT_USAGE)
+            from bitmend.api import load_code_file
+            code = load_code_file(code_file)  # the simulator takes a code object as well as a name
+        else:
+            from bitmend.codes.catalog import get_code
+            get_code(code)
+        sim.check_channels(parse_channels(channel))
+        grid = sim.parse_sweep(sweep) if sweep else None
+        if plot:
+            from bitmend.plot import PlotUnavailableError, check_plot_path
+            try:
+                check_plot_path(plot)
+            except (ValueError, PlotUnavailableError) as exc:
+                raise CliError(str(exc), EXIT_USAGE) from None
+        total = sim.planned_coded_bytes(code, depth, int(bits), len(grid[1]) if grid else 1, frame_bytes)
+        with _progress("simulating", total, True) as tick:
+            if grid:
+                result = sim.sweep(code, depth, channel, grid, int(bits), seed, frame_bytes=frame_bytes, progress=tick)
+                points = result.points
+            else:
+                result = sim.simulate(code, depth, channel, int(bits), seed, frame_bytes=frame_bytes, progress=tick)
+                points = (result,)
+        if plot:
+            from bitmend.plot import plot_results
+            plot_results(result, plot, None if isinstance(code, str) else code)
+        if as_json:
+            typer.echo(result.to_json())
+        elif as_csv:
+            typer.echo(sim.to_csv(points), nl=False)
+        else:
+            lines = sim.format_sweep(result) if grid else sim.format_result(result)
+            for line in lines + ([f"plot:      {plot}"] if plot else []):
+                typer.echo(line)
+
+
+# ---- plan ----------------------------------------------------------------------------------
+
+@app.command()
+def plan(
+    channel: list[str] = typer.Option(..., "--channel", help="The measured channel, as a fault model SPEC: "
+                                      "bsc:p=1e-3 | burst:enter=1e-4,leave=0.1,bad=0.5[,good=0] | bytes:p=1e-3 | "
+                                      "drop:p=0.01 | slip:p=1e-5. Repeat to chain models."),
+    target: float = typer.Option(..., "--target", help="Residual error rate to meet, e.g. 1e-9."),
+    per: str = typer.Option("bit", "--per", help="What the target counts: bit (wrong bits per delivered bit) "
+                            "or frame (frames not delivered verified)."),
+    max_overhead: Optional[str] = typer.Option(None, "--max-overhead", help="Largest overhead to accept, as a "
+                                               "fraction or a percentage (0.25 or 25%); counts the whole frame."),
+    frame_bytes: int = typer.Option(DEFAULT_FRAME_BYTES, "--frame-bytes", help="Payload bytes per frame."),
+    code_file: Optional[list[str]] = typer.Option(None, "--code-file", help="A custom code to rank with the "
+                                                  "catalog (repeatable). " + CODE_FILE_HELP),
+    verify: bool = typer.Option(False, "--verify", help="Confirm the top choice with a short simulation."),
+    verify_bits: Optional[float] = typer.Option(None, "--verify-bits", help="Payload bits for --verify "
+                                                "(default: enough to expect about 30 events, at most 2^24)."),
+    seed: int = typer.Option(1, "--seed", help="Seed of the --verify simulation."),
+    show: int = typer.Option(5, "--show", help="Choices to list."),
+    as_json: bool = typer.Option(False, "--json", help="Machine-readable output."),
+) -> None:
+    """Rank codes and interleaving depths that meet a residual error target on a channel, at
+    the lowest overhead; with the formulas and assumptions behind each prediction."""
+    from bitmend.api import load_code_file
+    from bitmend.planning import make_plan
+
+    with _errors():
+        if verify_bits is not None and not (verify_bits >= 1 and verify_bits == int(verify_bits)):
+            raise CliError(f"--verify-bits must be a whole number >= 1, got {verify_bits:g}", EXIT_USAGE)
+        extra = [load_code_file(path) for path in code_file or ()]
+        result = make_plan(channel, target, per, frame_bytes, max_overhead, extra, verify,
+                           int(verify_bits) if verify_bits else None, seed)
+        if as_json:
+            typer.echo(json.dumps(result.to_dict(), indent=2))
+        else:
+            for line in result.render(show):
+                typer.echo(line)
+        if verify and result.verification is None:
+            typer.echo("bitmend plan: nothing to verify: no choice meets the target", err=True)
+
+
 @app.command()
 def demo(
     sample: Optional[str] = typer.Option(None, "--sample", help="Input file (default: the bundled "
                                          "river-gauge telemetry log in samples/)."),
     flip_rate: float = typer.Option(1e-3, "--flip-rate", help="Bit flip probability of the test channel."),
     seed: int = typer.Option(2026, "--seed", help="Seed of the test channel."),
+    channel: Optional[list[str]] = typer.Option(None, "--channel", help="Fault model SPEC instead of a BSC at "
+                                                "--flip-rate (as for inject; repeat to chain)."),
 ) -> None:
-    """Encode the bundled telemetry log, flip bits, decode, and prove the data came back."""
+    """Encode the bundled telemetry log, inject faults, decode, and prove the data came back,
+    with the channel's ledger beside the decoder's report."""
     from bitmend.demo import run_demo
 
     with _errors():
-        ok = run_demo(sample, flip_rate, seed, typer.echo)
+        if seed < 0:
+            raise CliError(f"--seed must be >= 0, got {seed}", EXIT_USAGE)
+        ok = run_demo(sample, flip_rate, seed, typer.echo, channel or None)
         raise typer.Exit(EXIT_OK if ok else EXIT_DAMAGED)
 
 

@@ -1,4 +1,11 @@
-"""The main job end to end on the bundled sample: encode, damage, decode, verify."""
+"""The main job end to end on the bundled sample: encode, inject faults, decode, verify.
+
+The channel is applied by the same machinery as `bitmend inject`, and its ledger is shown
+beside the decoder's report, so the reader can check one against the other: every bit the
+channel flipped inside a coded payload should come back as a corrected bit (when no
+codeword got more than t of them), and flips in sync markers and headers are absorbed by
+the header code and the marker tolerance without being counted as payload corrections.
+"""
 
 from __future__ import annotations
 
@@ -6,13 +13,18 @@ import hashlib
 import io
 import time
 from pathlib import Path
-from typing import Callable
+from typing import Callable, Sequence
 
 import numpy as np
 
 from bitmend.api import Decoder, Encoder
-from bitmend.channel.bsc import flip_bits
+from bitmend.channel.ledger import Ledger
+from bitmend.channel.models import ChannelModel
+from bitmend.channel.spec import parse_channels
 from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH, get_code
+from bitmend.container import format as fmt
+from bitmend.container.reader import FrameScanner
+from bitmend.inject import inject_bytes
 
 SAMPLE_NAME = "gauge-telemetry.log"
 
@@ -27,8 +39,46 @@ def find_sample() -> Path | None:
     return None
 
 
-def run_demo(sample: str | None, flip_rate: float, seed: int, say: Callable[[str], None]) -> bool:
-    """Run the demo, printing with say; True if the output equals the input."""
+def payload_spans(container: bytes) -> np.ndarray:
+    """(start bit, end bit) of every coded payload in a clean container, as an (F, 2) array."""
+    spans = []
+    for frame in FrameScanner(io.BytesIO(container), decode_payloads=False).frames():
+        start = frame.bit_offset + 8 * (len(fmt.MARKER_BYTES) + fmt.HEADER_BYTES)
+        spans.append((start, start + 8 * frame.header.coded_bytes))
+    return np.array(spans, dtype=np.int64).reshape(-1, 2)
+
+
+def flips_in_payload(ledger: Ledger, spans: np.ndarray) -> tuple[int, int] | None:
+    """(flips inside coded payloads, flips elsewhere), from the ledger's positions; None when
+    the positions are not comparable (a model that moves data, or too many to keep)."""
+    positions = []
+    for stage in ledger.stages:
+        if any(stage.get(name) for name in ("bits_inserted", "bits_deleted", "frames_dropped")):
+            return None
+        if stage.get("bits_changed"):  # byte substitutions: their positions are bytes
+            return None
+        if "flip_positions" in stage:
+            if stage["flip_positions"] is None:
+                return None
+            positions.extend(stage["flip_positions"])
+    pos = np.array(sorted(positions), dtype=np.int64)
+    i = np.searchsorted(spans[:, 0], pos, side="right") - 1
+    inside = (i >= 0) & (pos < spans[np.maximum(i, 0), 1])
+    return int(inside.sum()), int((~inside).sum())
+
+
+def _seqs(values: list[int]) -> str:
+    if not values:
+        return "none"
+    shown = ", ".join(map(str, values[:12]))
+    return shown + (f" and {len(values) - 12} more" if len(values) > 12 else "")
+
+
+def run_demo(sample: str | None, flip_rate: float, seed: int, say: Callable[[str], None],
+             channels: Sequence[str | ChannelModel] | None = None) -> bool:
+    """Run the demo, printing with say; True if the output equals the input. The channel is
+    a BSC with flip_rate unless channels (SPECs or models, as for inject) are given."""
+    models = parse_channels(channels if channels else f"bsc:p={flip_rate!r}")
     path = Path(sample) if sample else find_sample()
     if path is None:
         raise FileNotFoundError(2, "bundled sample not found; pass --sample FILE", f"samples/{SAMPLE_NAME}")
@@ -44,8 +94,12 @@ def run_demo(sample: str | None, flip_rate: float, seed: int, say: Callable[[str
     say(f"encode     {DEFAULT_CODE} (n={code.n}, k={code.k}, d={code.d}, corrects {code.t}/codeword), "
         f"depth {DEFAULT_DEPTH}: {len(container):,} bytes, overhead {len(container) / len(data) - 1:.1%}")
 
-    damaged, flips = flip_bits(container, flip_rate, np.random.default_rng(seed))
-    say(f"channel    bsc p={flip_rate:g}, seed {seed}: {flips:,} bits flipped")
+    damaged, ledger = inject_bytes(container, models, seed)
+    say(f"inject     {' then '.join(m.spec for m in models)}, seed {ledger.seed}")
+    say(f"  ledger   {ledger.one_line()}")
+    split = flips_in_payload(ledger, payload_spans(container))
+    if split is not None:
+        say(f"           {split[0]:,} in coded payloads, {split[1]:,} in sync markers and headers")
 
     frames = []
     with Decoder(io.BytesIO(damaged), "keep", on_frame=frames.append) as dec:
@@ -53,6 +107,21 @@ def run_demo(sample: str | None, flip_rate: float, seed: int, say: Callable[[str
         summary = dec.summary
     elapsed = time.perf_counter() - started
     say(f"decode     {summary.one_line().split(': ', 1)[1]}")
+    failed = sum(f.failed_count or len(f.failed_blocks) for f in frames)
+    say(f"  report   {summary.corrected_symbols:,} bits corrected in "
+        f"{sum(f.corrected_blocks for f in frames):,} codewords, {failed:,} codewords uncorrectable, "
+        f"{summary.lost:,} frames lost")
+    if split is not None:
+        agree = "equal" if split[0] == summary.corrected_symbols and not failed else "differ"
+        say(f"compare    payload flips in the ledger ({split[0]:,}) and bits corrected in the report "
+            f"({summary.corrected_symbols:,}) {agree}")
+    elif ledger.frames_dropped:
+        dropped = [f["seq"] for stage in ledger.stages for f in (stage.get("dropped_frames") or [])]
+        lost = [f.seq for f in frames if f.status == "lost"]
+        received = [f.seq for f in frames if f.status != "lost"]
+        tail = "" if summary.end_seen else "; the end of the stream is missing" + (
+            " (its last frame was dropped)" if dropped and (not received or max(dropped) > max(received)) else "")
+        say(f"compare    frames dropped in the ledger: {_seqs(dropped)}; lost in the report: {_seqs(lost)}{tail}")
     fixed = [f for f in frames if f.status == "corrected"]
     if fixed:
         worst = max(fixed, key=lambda f: f.corrected_symbols)

@@ -1,9 +1,15 @@
-"""Coded segments: bytes -> k-bit messages -> codewords -> bit-interleaved groups, and back.
+"""Coded segments: bytes -> k-symbol messages -> codewords -> interleaved groups, and back.
 
-A segment holds G groups of D codewords. Message bits are taken from the input bytes in
-order (k per codeword, zero-padded to G*D*k), and codeword i of a group places its bit j
-at group bit j*D + i. Any run of D*t consecutive channel bits inside one group therefore
-hits every codeword of that group at most t times, which the code corrects.
+A segment holds G groups of D codewords. Message symbols are taken from the input bytes in
+order (k per codeword, zero-padded to G*D*k), and codeword i of a group places its symbol
+j at group symbol j*D + i. A symbol is a bit for binary codes (the generic engine and
+BCH) and a byte for Reed-Solomon codes. Any run of D*t consecutive channel symbols inside
+one group therefore hits every codeword of that group at most t times, which the code
+corrects.
+
+Binary linear codes with k <= 64 run through kernels.blockcode (fused, word at a time).
+BCH and Reed-Solomon codes bring their own row kernels (`encode_rows`, `decode_rows`);
+this module moves their symbols between the stream and codeword rows.
 """
 
 from __future__ import annotations
@@ -14,8 +20,10 @@ from functools import lru_cache
 import numpy as np
 
 from bitmend.codes.linear import BinaryLinearCode
-from bitmend.kernels import small
-from bitmend.kernels.loader import compiled
+from bitmend.kernels import cyclic_small, small
+from bitmend.kernels.loader import compiled, compiled_cyclic
+
+FAILED = 255  # block status of an uncorrectable (or, in a truncated segment, missing) block
 
 
 @dataclass(frozen=True)
@@ -24,16 +32,30 @@ class SegmentLayout:
 
     groups: int
     depth: int
-    n: int
-    k: int
+    n: int  # symbols per codeword
+    k: int  # message symbols per codeword
+    symbol_bits: int = 1  # 1 for binary codes, 8 for Reed-Solomon
 
     @property
     def blocks(self) -> int:
         return self.groups * self.depth
 
     @property
+    def block_bits(self) -> int:
+        """Coded bits of one codeword."""
+        return self.n * self.symbol_bits
+
+    @property
+    def block_message_bits(self) -> int:
+        return self.k * self.symbol_bits
+
+    @property
+    def group_bits(self) -> int:
+        return self.depth * self.block_bits
+
+    @property
     def coded_bits(self) -> int:
-        return self.blocks * self.n
+        return self.blocks * self.block_bits
 
     @property
     def coded_bytes(self) -> int:
@@ -42,10 +64,12 @@ class SegmentLayout:
 
 @lru_cache(maxsize=256)
 def layout(code: BinaryLinearCode, depth: int, message_bytes: int) -> SegmentLayout:
-    """G = ceil(8 * message_bytes / (D k)) groups; at least one, so every segment carries a check."""
-    per_group = depth * code.k
+    """G = ceil(8 * message_bytes / (D k s)) groups (s bits per symbol); at least one, so
+    every segment carries a check."""
+    bits = getattr(code, "symbol_bits", 1)
+    per_group = depth * code.k * bits
     groups = max(1, -(-8 * message_bytes // per_group))
-    return SegmentLayout(groups, depth, code.n, code.k)
+    return SegmentLayout(groups, depth, code.n, code.k, bits)
 
 
 CHUNK_BLOCKS = 1 << 16  # codewords per compiled call: bounds the temporary arrays to about 2 MiB
@@ -62,6 +86,8 @@ def _chunks(lay: SegmentLayout) -> list[tuple[int, int]]:
 def encode_segment(code: BinaryLinearCode, depth: int, message: bytes) -> bytes:
     """Encode and interleave message; returns layout(...).coded_bytes bytes."""
     lay = layout(code, depth, len(message))
+    if _has_row_kernels(code):
+        return _encode_rows_segment(code, lay, bytes(message))
     kernels = compiled(lay.coded_bits)
     if kernels is None:
         return small.encode(message, code.P, depth, lay.groups)
@@ -83,6 +109,8 @@ def decode_segment(code: BinaryLinearCode, depth: int, coded: bytes | np.ndarray
     """
     lay = layout(code, depth, message_bytes)
     raw = np.frombuffer(coded, dtype=np.uint8) if not isinstance(coded, np.ndarray) else coded
+    if _has_row_kernels(code):
+        return _decode_rows_segment(code, lay, raw, message_bytes)
     lead_m, lead_p, weight = code.leader_tables
     kernels = compiled(lay.coded_bits)
     if kernels is None:
@@ -95,3 +123,101 @@ def decode_segment(code: BinaryLinearCode, depth: int, coded: bytes | np.ndarray
                                    out[first * depth * code.k // 64:])
               for first, groups in _chunks(lay)]
     return bitfields.to_bytes(out, message_bytes), status[0] if len(status) == 1 else np.concatenate(status)
+
+
+# ---- codes with their own row kernels (BCH, Reed-Solomon) ------------------------------------------
+
+def _has_row_kernels(code: object) -> bool:
+    """BCH and Reed-Solomon codes correct whole codeword rows themselves."""
+    return hasattr(code, "decode_rows")
+
+
+def _symbol_rows(raw: np.ndarray, groups: int, depth: int, n: int) -> np.ndarray:
+    """(groups*depth, n) byte-symbol rows from interleaved groups: row g*D + i, symbol j
+    is group g's byte j*D + i. Missing bytes read as zero."""
+    size = groups * depth * n
+    data = raw[:size]
+    if data.size < size:
+        data = np.concatenate([data, np.zeros(size - data.size, dtype=np.uint8)])
+    if depth == 1:
+        return data.reshape(groups, n).copy()
+    return np.ascontiguousarray(data.reshape(groups, n, depth).transpose(0, 2, 1)).reshape(groups * depth, n)
+
+
+def _interleave_symbol_rows(rows: np.ndarray, depth: int) -> bytes:
+    if depth == 1:
+        return rows.tobytes()
+    blocks, n = rows.shape
+    return rows.reshape(blocks // depth, depth, n).transpose(0, 2, 1).tobytes()
+
+
+def _bit_rows(code, data: bytes | np.ndarray, blocks: int, width: int, depth: int, kernels) -> np.ndarray:
+    """Packed rows of `width` bits for `blocks` codewords read from the stream at depth."""
+    if kernels is None:
+        return cyclic_small.gather_bits(data, blocks, width, depth, code.row_bytes)
+    from bitmend.kernels import bitfields
+
+    return kernels.gather_bits(bitfields.to_words(data, blocks * width), 0, blocks, width, depth, code.row_bytes)
+
+
+def _bit_stream(rows: np.ndarray, width: int, depth: int, nbytes: int, kernels) -> bytes:
+    """The first `width` bits of every row, interleaved at depth, as nbytes stream bytes."""
+    if kernels is None:
+        return cyclic_small.scatter_bits(rows, width, depth)[:nbytes]
+    from bitmend.kernels import bitfields
+
+    out = bitfields.empty_words(rows.shape[0] * width)
+    kernels.scatter_bits(rows, width, depth, out)
+    return bitfields.to_bytes(out, nbytes)
+
+
+def _encode_rows_segment(code, lay: SegmentLayout, message: bytes) -> bytes:
+    if lay.symbol_bits == 8:
+        messages = np.frombuffer(message.ljust(lay.blocks * lay.k, b"\0"), dtype=np.uint8).reshape(lay.blocks, lay.k)
+        return _interleave_symbol_rows(code.encode_rows(messages), lay.depth)
+    kernels = compiled_cyclic(lay.coded_bits)
+    rows = _bit_rows(code, message, lay.blocks, lay.k, 1, kernels)
+    code.encode_rows(rows)
+    return _bit_stream(rows, lay.n, lay.depth, lay.coded_bytes, kernels)
+
+
+def _decode_rows_segment(code, lay: SegmentLayout, raw: np.ndarray, message_bytes: int) -> tuple[bytes, np.ndarray]:
+    if lay.symbol_bits == 8:
+        rows = _symbol_rows(raw, lay.groups, lay.depth, lay.n)
+        status = code.decode_rows(rows)
+        return rows[:, : lay.k].tobytes()[:message_bytes], status
+    kernels = compiled_cyclic(lay.coded_bits)
+    rows = _bit_rows(code, raw[: lay.coded_bytes], lay.blocks, lay.n, lay.depth, kernels)
+    status = code.decode_rows(rows)
+    return _bit_stream(rows, lay.k, 1, message_bytes, kernels), status
+
+
+def decode_truncated(code: BinaryLinearCode, depth: int, coded: bytes | np.ndarray, message_bytes: int,
+                     received_bits: int, wanted_bytes: int | None = None) -> tuple[bytes, np.ndarray]:
+    """Decode what arrived of a segment cut short after received_bits coded bits.
+
+    Returns (message prefix, status of the blocks decoded). The prefix holds at most
+    wanted_bytes (default message_bytes) bytes, all carried by leading blocks that were
+    decoded: blocks of the groups that arrived whole and, for Reed-Solomon codes, blocks
+    of the group the cut went through, decoded with their missing symbols as erasures
+    (2e + f <= n - k) up to the first one that could not be rebuilt. Work and memory
+    follow the bits present, not the length the segment would have had."""
+    lay = layout(code, depth, message_bytes)
+    wanted = message_bytes if wanted_bytes is None else min(wanted_bytes, message_bytes)
+    whole = min(lay.groups, received_bits // lay.group_bits)
+    raw = np.frombuffer(coded, dtype=np.uint8) if not isinstance(coded, np.ndarray) else coded
+    if lay.symbol_bits == 8 and whole < lay.groups and received_bits // 8 > whole * lay.group_bits // 8:
+        n, D = lay.n, lay.depth
+        rows = _symbol_rows(raw, whole + 1, D, n)
+        status = np.empty(rows.shape[0], dtype=np.uint8)
+        status[: whole * D] = code.decode_rows(rows[: whole * D])
+        arrived = received_bits // 8 - whole * D * n  # symbols of the cut group that arrived
+        missing = (np.arange(n)[None, :] * D + np.arange(D)[:, None]) >= arrived
+        status[whole * D:] = code.decode_rows(rows[whole * D:], missing)
+        failed = np.nonzero(status[whole * D:] == FAILED)[0]
+        usable = whole * D + (int(failed[0]) if failed.size else D)
+        return rows[:usable, : lay.k].tobytes()[:wanted], status
+    covered = min(wanted, whole * lay.depth * lay.block_message_bits // 8)
+    if not covered:
+        return b"", np.zeros(0, dtype=np.uint8)
+    return decode_segment(code, depth, raw, covered)

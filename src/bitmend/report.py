@@ -13,7 +13,9 @@ class FrameReport:
     """What happened to one frame.
 
     offset is the frame's byte offset in the input (None for a lost frame); out_offset and
-    bytes say where its data went in the output (bytes = 0 when nothing was written)."""
+    bytes say where its data went in the output (bytes = 0 when nothing was written). For
+    a lost frame, missing_bytes is its payload size when the stream's frame size is known:
+    the data missing from the output at out_offset (zero-filled there with on_error=zero)."""
 
     seq: int
     offset: int | None
@@ -26,6 +28,8 @@ class FrameReport:
     out_offset: int
     bytes: int
     truncated: bool = False
+    failed_count: int = 0  # all uncorrectable blocks; failed_blocks lists at most 4096
+    missing_bytes: int | None = None  # lost frame: payload bytes it carried, when known
 
     def to_json(self) -> str:
         return json.dumps({"type": "frame", **asdict(self)}, separators=(",", ":"))

@@ -108,3 +108,39 @@ def binomial_interval(events: int, trials: int, confidence: float = 0.95) -> tup
     low = 0.0 if events == 0 else float(beta.ppf(alpha / 2, events, trials - events + 1))
     high = 1.0 if events == trials else float(beta.ppf(1 - alpha / 2, events + 1, trials - events))
     return low, high
+
+
+def gilbert_elliott_hit(bits: int, enter: float, leave: float, bad: float, good: float = 0.0) -> float:
+    """P(at least one of `bits` consecutive bits flips) on a stationary Gilbert-Elliott chain
+    (state good/bad; per bit the chain moves good -> bad with probability `enter` and
+    bad -> good with `leave`; a bit flips with probability `good` or `bad` by state).
+
+    With pi the stationary distribution, Q = diag(1 - flip) the chance a bit passes clean
+    in each state and T the transition matrix, P(all clean) = pi Q (T Q)^(bits-1) 1, the
+    forward recursion of the hidden Markov chain taken as a matrix power (log2(bits)
+    products). Used for the uncoded line: a raw block or frame hit at least once."""
+    if bits <= 0:
+        return 0.0
+    import numpy as np  # numpy is a core dependency; imported here to keep this module's import light
+
+    total = enter + leave
+    pi_bad = 0.0 if total == 0 else enter / total
+    pi = np.array([1.0 - pi_bad, pi_bad])
+    clean = np.diag([1.0 - good, 1.0 - bad])
+    step = np.array([[1.0 - enter, enter], [leave, 1.0 - leave]])
+    through = pi @ clean @ np.linalg.matrix_power(step @ clean, bits - 1)
+    return float(min(1.0, max(0.0, 1.0 - through.sum())))
+
+
+def symbol_error(p: float, symbol_bits: int = 8) -> float:
+    """P(an s-bit symbol arrives wrong) on a BSC with bit flip probability p: at least one
+    of its s bits flips, q = 1 - (1-p)^s."""
+    return uncoded_block_error(symbol_bits, p)
+
+
+def bsc_symbol_block_error(n: int, t: int, p: float, symbol_bits: int = 8) -> float:
+    """Block error rate on a BSC of a code of n symbols of s bits that corrects any t symbol
+    errors (Reed-Solomon over GF(2^8): s = 8) with bounded-distance decoding. Bit flips are
+    independent, so symbols are wrong independently with q = symbol_error(p, s), and
+    P_B = sum_{i>t} C(n,i) q^i (1-q)^(n-i)."""
+    return bsc_block_error(n, t, symbol_error(p, symbol_bits))

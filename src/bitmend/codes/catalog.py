@@ -2,6 +2,10 @@
 
 Ids are part of the container format (docs/FORMAT.md): never renumber; add new codes
 with new ids. Id 0 is reserved for codes defined inside the stream.
+
+Ids 1-11 are binary linear codes of the generic engine (codes.linear); 12-21 binary BCH
+codes (codes.bch), 22-26 Reed-Solomon codes over GF(2^8) (codes.reed_solomon), whose
+symbols are bytes.
 """
 
 from __future__ import annotations
@@ -11,7 +15,9 @@ from functools import lru_cache
 from typing import Callable
 
 from bitmend.codes import families
+from bitmend.codes.bch import BCHCode
 from bitmend.codes.linear import BinaryLinearCode
+from bitmend.codes.reed_solomon import ReedSolomonCode
 
 DEFAULT_CODE = "golay-24-12"
 DEFAULT_DEPTH = 8
@@ -38,6 +44,23 @@ CATALOG: tuple[CatalogEntry, ...] = (
     CatalogEntry("secded-72-64", 9, lambda: families.hsiao_secded(64, 8), "64-bit words, memory-style ECC"),
     CatalogEntry("golay-23-12", 10, families.golay23, "perfect, corrects 3 per 23 bits"),
     CatalogEntry("golay-24-12", 11, families.golay24, "default: corrects 3, detects 4, byte aligned"),
+    # binary BCH: t = 2..4 at each length, from short words to long low-overhead blocks
+    CatalogEntry("bch-15-7", 12, lambda: BCHCode(4, 2), "short words: 2 errors per 15 bits"),
+    CatalogEntry("bch-15-5", 13, lambda: BCHCode(4, 3), "very noisy links: 3 errors per 15 bits"),
+    CatalogEntry("bch-31-21", 14, lambda: BCHCode(5, 2), "2 errors per 31 bits"),
+    CatalogEntry("bch-31-16", 15, lambda: BCHCode(5, 3), "3 errors per 31 bits, about half rate"),
+    CatalogEntry("bch-63-51", 16, lambda: BCHCode(6, 2), "2 errors per 63 bits"),
+    CatalogEntry("bch-63-45", 17, lambda: BCHCode(6, 3), "3 errors per 63 bits"),
+    CatalogEntry("bch-127-113", 18, lambda: BCHCode(7, 2), "2 errors per 127 bits, 12% overhead"),
+    CatalogEntry("bch-255-239", 19, lambda: BCHCode(8, 2), "2 errors per 255 bits, 7% overhead"),
+    CatalogEntry("bch-255-223", 20, lambda: BCHCode(8, 4), "4 errors per 255 bits, 14% overhead"),
+    CatalogEntry("bch-144-128", 21, lambda: BCHCode(8, 2, 144), "shortened: 16 bytes in 18, 2 errors per block"),
+    # Reed-Solomon over GF(2^8): t counts byte errors, any bits wrong inside a byte
+    CatalogEntry("rs-255-239", 22, lambda: ReedSolomonCode(255, 239), "8 byte errors per 255, 7% overhead"),
+    CatalogEntry("rs-255-223", 23, lambda: ReedSolomonCode(255, 223), "16 byte errors per 255, 14% overhead"),
+    CatalogEntry("rs-204-188", 24, lambda: ReedSolomonCode(204, 188), "shortened: 188-byte packets, 8 byte errors"),
+    CatalogEntry("rs-128-96", 25, lambda: ReedSolomonCode(128, 96), "shortened: 16 byte errors per 128, 33% overhead"),
+    CatalogEntry("rs-32-28", 26, lambda: ReedSolomonCode(32, 28), "shortened: small packets, 2 byte errors per 32"),
 )
 
 _BY_NAME = {e.name: e for e in CATALOG}

@@ -60,16 +60,17 @@ class Assembler:
         setattr(c, report.status, getattr(c, report.status) + 1)
         c.bytes_out += report.bytes
         c.corrected_symbols += report.corrected_symbols
-        c.failed_blocks += len(report.failed_blocks)
+        c.failed_blocks += report.failed_count
 
     def _lost(self, first: int, stop: int) -> Iterator[tuple[bytes, FrameReport]]:
         count = stop - first
         if count > MAX_LOST_LISTED:
             self._notes.append(f"{count} frames lost from sequence {first}; the first {MAX_LOST_LISTED} are listed")
         for seq in range(first, first + min(count, MAX_LOST_LISTED)):
-            length = self._full_length or 0
-            data = bytes(length) if self.on_error == "zero" else b""
-            report = FrameReport(seq, None, LOST, 0, 0, 0, [], False, self._counts.bytes_out, len(data))
+            length = self._full_length  # lost frames inside a stream are full-size ones
+            data = bytes(length or 0) if self.on_error == "zero" else b""
+            report = FrameReport(seq, None, LOST, 0, 0, 0, [], False, self._counts.bytes_out, len(data),
+                                 missing_bytes=length)
             self._record(report)
             yield data, report
             if self.on_error == "fail":
@@ -105,7 +106,8 @@ class Assembler:
                     data = b""
             report = FrameReport(header.seq, frame.offset, status, len(frame.block_status),
                                  frame.corrected_blocks, frame.corrected_symbols, frame.failed_blocks,
-                                 frame.crc_ok, self._counts.bytes_out, len(data), frame.truncated)
+                                 frame.crc_ok, self._counts.bytes_out, len(data), frame.truncated,
+                                 frame.failed_count)
             self._record(report)
             yield data, report
             if status == DAMAGED and self.on_error == "fail":

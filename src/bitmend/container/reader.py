@@ -11,7 +11,7 @@ they touch and the scanner resumes at the next marker.
 from __future__ import annotations
 
 import struct
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import cached_property
 from typing import BinaryIO, Iterator
 
@@ -19,11 +19,13 @@ import numpy as np
 from bitarray import bitarray
 
 from bitmend.container import format as fmt
-from bitmend.interleave import decode_segment, layout
+from bitmend.interleave import decode_segment, decode_truncated
 from bitmend.kernels import small
 from bitmend.kernels.loader import compiled
 
 READ_CHUNK = 1 << 20
+_NO_BLOCKS = np.zeros(0, dtype=np.uint8)
+MAX_LISTED_FAILED = 4096  # failed block indexes listed per frame report
 SEARCH_PIECE = 1 << 16  # bytes scanned per marker-search step
 SMALL_SEARCH_PIECE = 1 << 11  # the same while the compiled kernels are not loaded
 LOOKBACK_BITS = 8 * fmt.MAX_FRAME_WIRE_BYTES  # window kept behind a search, for look-back recovery
@@ -57,10 +59,18 @@ class DecodedFrame:
         return int(s[s < 255].sum(dtype=np.int64))
 
     @cached_property
-    def failed_blocks(self) -> list[int]:
+    def failed_count(self) -> int:
         if not self.block_status.any():
+            return 0
+        return int(np.count_nonzero(self.block_status == 255))
+
+    @cached_property
+    def failed_blocks(self) -> list[int]:
+        """Indexes of uncorrectable blocks, the first MAX_LISTED_FAILED of them (a report
+        line stays small however badly a frame is hit; failed_count has the total)."""
+        if not self.failed_count:
             return []
-        return [int(i) for i in np.nonzero(self.block_status == 255)[0]]
+        return [int(i) for i in np.nonzero(self.block_status == 255)[0][:MAX_LISTED_FAILED]]
 
 
 @dataclass
@@ -179,10 +189,33 @@ class FrameScanner:
             return None
         return self._decode_frame(start, header, from_copy=True)
 
+    def _frame_code(self, bit: int, header: fmt.FrameHeader) -> tuple[fmt.FrameHeader, bool]:
+        """(header, True) for a catalog code. For code id 0: the header with the code read
+        from the frame's definition block, or from its copy before the header copy; if
+        neither decodes, (header, False) and a note."""
+        if header.code_id != fmt.CUSTOM_CODE_ID or header.defined_code is not None:
+            return header, True
+        size = header.definition_bytes
+        leading = bit + MARKER_BITS + HEADER_BITS
+        trailing = bit + 8 * (header.frame_bytes - fmt.HEADER_BYTES - size)
+        for place in (leading, trailing):
+            if place + 8 * size > self._end_bit():
+                continue
+            try:
+                code = fmt.decode_definition(self._bytes_at(place, size), header.shape)
+            except fmt.HeaderError as exc:
+                self.stats.header_errors.append(str(exc))
+                code = None
+            if code is not None:
+                return replace(header, defined_code=code), True
+        self.stats.header_errors.append(f"frame {header.seq}: its code definition was hit in both copies; "
+                                        "payload read without correction")
+        return header, False
+
     def _decode_frame(self, bit: int, header: fmt.FrameHeader, from_copy: bool) -> DecodedFrame:
         total = header.frame_bytes
         complete = self._fill(bit + 8 * total)
-        payload_bit = bit + MARKER_BITS + HEADER_BITS
+        payload_bit = bit + MARKER_BITS + HEADER_BITS + 8 * header.definition_bytes
         coded_len = header.coded_bytes
         available_bits = max(0, min(self._end_bit() - payload_bit, 8 * coded_len))
         marker = int.from_bytes(self._bytes_at(bit, 8), "big")
@@ -190,19 +223,23 @@ class FrameScanner:
         if not self._decode_payloads:  # inspection: headers only
             return DecodedFrame(header, bit >> 3, bit, b"", np.zeros(0, np.uint8), False, not complete,
                                 from_copy, marker_distance)
-        coded = self._bytes_at(payload_bit, coded_len)
-        code = header.code
-        message, status = decode_segment(code, header.depth, coded, header.length + fmt.CRC_BYTES)
-        payload, check = message[: header.length], message[header.length:]
-        crc_ok = complete and struct.unpack(">I", check)[0] == fmt.crc32c(payload)
-        if not complete:
-            # keep only bytes whose codewords arrived whole; the rest never existed here
-            lay = layout(code, header.depth, header.length + fmt.CRC_BYTES)
-            whole_groups = available_bits // (header.depth * code.n)
-            covered = min(header.length, whole_groups * header.depth * code.k // 8)
-            payload = payload[:covered]
-            status = status.copy()
-            status[whole_groups * header.depth: lay.blocks] = 255
+        header, checked = self._frame_code(bit, header)
+        code = header.code if checked else fmt.unchecked_reading_code(*header.shape)
+        if complete:
+            coded = self._bytes_at(payload_bit, coded_len)
+            message, status = decode_segment(code, header.depth, coded, header.length + fmt.CRC_BYTES)
+            payload, check = message[: header.length], message[header.length:]
+            crc_ok = struct.unpack(">I", check)[0] == fmt.crc32c(payload)
+        else:
+            # the input ended inside the frame: decode only the groups that arrived whole, and
+            # for Reed-Solomon the cut group too, its missing tail as erasures (work and
+            # memory follow the bytes present, not the length the header claims)
+            coded = self._bytes_at(payload_bit, (available_bits + 7) // 8)
+            payload, status = decode_truncated(code, header.depth, coded, header.length + fmt.CRC_BYTES,
+                                               available_bits, header.length)
+            crc_ok = False
+        if not checked:  # no block could be checked; only the CRC speaks for the data
+            status = np.full(len(status), 255, dtype=np.uint8)
         return DecodedFrame(header, bit >> 3, bit, payload, status, crc_ok, not complete, from_copy,
                             marker_distance)
 

@@ -4,8 +4,21 @@ from __future__ import annotations
 
 from typing import BinaryIO
 
-from bitmend.codes.catalog import MAX_DEPTH, code_id
+from bitmend.codes.catalog import MAX_DEPTH, code_id, code_names, get_code
+from bitmend.codes.linear import BinaryLinearCode
 from bitmend.container import format as fmt
+
+
+def resolve_code(code: str | BinaryLinearCode) -> tuple[int, BinaryLinearCode | None]:
+    """(catalog id, None) for a catalog name or the catalog's own code object; else
+    (CUSTOM_CODE_ID, code): a code that travels in the frames' definition blocks."""
+    if isinstance(code, str):
+        return code_id(code), None
+    if getattr(code, "name", None) in code_names() and get_code(code.name) is code:
+        return code_id(code.name), None
+    if not isinstance(code, BinaryLinearCode):
+        raise TypeError(f"a code is a catalog name or a BinaryLinearCode, got {type(code).__name__}")
+    return fmt.CUSTOM_CODE_ID, code
 
 
 class FrameWriter:
@@ -16,13 +29,20 @@ class FrameWriter:
     An empty stream still gets one empty closing frame, which decodes to empty output.
     """
 
-    def __init__(self, sink: BinaryIO, code: str, depth: int, frame_bytes: int = fmt.DEFAULT_FRAME_BYTES) -> None:
+    def __init__(self, sink: BinaryIO, code: str | BinaryLinearCode, depth: int,
+                 frame_bytes: int = fmt.DEFAULT_FRAME_BYTES) -> None:
         if not 1 <= depth <= MAX_DEPTH:
             raise ValueError(f"depth must be 1..{MAX_DEPTH}, got {depth}")
         if not 1 <= frame_bytes <= fmt.MAX_PAYLOAD_BYTES:
             raise ValueError(f"frame size must be 1..{fmt.MAX_PAYLOAD_BYTES} bytes, got {frame_bytes}")
         self._sink = sink
-        self._code_id = code_id(code)
+        self._code_id, self._defined_code = resolve_code(code)
+        if self._defined_code is not None:
+            largest = fmt.FrameHeader.for_defined_code(self._defined_code, depth, 0, frame_bytes).frame_bytes
+            if largest > fmt.MAX_FRAME_WIRE_BYTES:
+                raise ValueError(f"frames of {frame_bytes} bytes coded with {self._defined_code.name} would take "
+                                 f"{largest} bytes, above the {fmt.MAX_FRAME_WIRE_BYTES} a reader accepts; "
+                                 "use a smaller frame size")
         self._depth = depth
         self._frame_bytes = frame_bytes
         self._pending = bytearray()
@@ -32,7 +52,10 @@ class FrameWriter:
         self.closed = False
 
     def _emit(self, payload: bytes, last: bool) -> None:
-        header = fmt.FrameHeader(self._code_id, self._depth, self._seq, len(payload), last)
+        if self._defined_code is not None:
+            header = fmt.FrameHeader.for_defined_code(self._defined_code, self._depth, self._seq, len(payload), last)
+        else:
+            header = fmt.FrameHeader(self._code_id, self._depth, self._seq, len(payload), last)
         frame = fmt.encode_frame(header, payload)
         self._sink.write(frame)
         self.bytes_out += len(frame)

@@ -25,3 +25,13 @@ def compiled(work_bits: int) -> tuple[ModuleType, ModuleType] | None:
 
         return bitfields, blockcode
     return None
+
+
+def compiled_cyclic(work_bits: int) -> ModuleType | None:
+    """kernels.cyclic (BCH and Reed-Solomon) on the same terms as compiled(): once numba
+    is loaded anyway, or when work_bits is large; else None (use kernels.cyclic_small)."""
+    if "bitmend.kernels.cyclic" in sys.modules or compiled_loaded() or work_bits >= SMALL_WORK_BITS:
+        from bitmend.kernels import cyclic
+
+        return cyclic
+    return None

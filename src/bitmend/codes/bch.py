@@ -1,0 +1,294 @@
+"""Binary BCH codes: primitive, narrow-sense, of length 2^m - 1 (3 <= m <= 8), and their
+shortened forms.
+
+The code of designed distance 2t + 1 has the generator g(x) = lcm(M_1(x), ..., M_2t(x)),
+the M_s minimal polynomials of alpha^s over GF(2) computed from the field (kernels.gf2m),
+so its roots include alpha^1 .. alpha^2t. Any 2t consecutive roots bound the minimum
+distance from below by 2t + 1 (the BCH bound); the true minimum distance can be larger,
+which is why `d` is called the designed distance and `distance_kind` says "designed".
+
+Encoding is systematic: the k message bits, then the r = n - k bits of m(x) x^r mod g(x),
+the first bit sent the highest-degree coefficient. A shortened code bch-N-K (N < 2^m - 1)
+is the set of codewords whose first 2^m - 1 - N positions are zero, with those positions
+not sent; it keeps n - k, t and the designed distance.
+
+Decoding is algebraic (kernels.cyclic): syndromes, Berlekamp-Massey, Chien search; up to t
+bit errors per codeword are corrected and a word that cannot be brought within t of a
+codeword is reported as FAILED (255), never guessed.
+"""
+
+from __future__ import annotations
+
+from functools import cached_property
+from math import comb
+
+import numpy as np
+
+from bitmend.analysis.weights import WeightDistribution, macwilliams
+from bitmend.kernels import cyclic_small
+from bitmend.kernels.gf2m import GF2m, bch_designed_range, bch_generator, binary_register_table, field
+from bitmend.kernels.loader import compiled_cyclic
+
+FAILED = 255
+LISTING_LIMIT_BITS = 20  # weight distributions list at most 2^20 words (of the code or of its dual)
+
+
+class BCHParameterError(ValueError):
+    """(n, k) that no primitive narrow-sense binary BCH code (or shortening of one) has."""
+
+
+class BCHCode:
+    """A binary BCH code: m, designed t, and the (possibly shortened) length n.
+
+    The array API mirrors BinaryLinearCode: `encode` takes 0/1 message bits of shape (k,)
+    or (N, k); `decode` takes received bits (n,) or (N, n) and returns (messages, status)
+    with status 0 clean, w bits corrected, FAILED (255) uncorrectable.
+    """
+
+    family = "bch"
+    symbol_bits = 1  # errors are counted in bits
+    distance_kind = "designed"  # d = 2t + 1 is a guaranteed lower bound
+
+    def __init__(self, m: int, t: int, n: int | None = None, description: str = "") -> None:
+        gf = field(m)
+        mother = gf.order
+        if t < 1:
+            raise BCHParameterError(f"t must be at least 1, got {t}")
+        g = bch_generator(gf, t)
+        r = g.bit_length() - 1
+        if r >= mother:
+            raise BCHParameterError(f"t = {t} leaves no message bits at length {mother}")
+        # a larger t may give the same generator (its extra roots were conjugates already):
+        # the designed distance is that of the largest such t
+        t = max([t] + [t2 for t2, r2 in bch_designed_range(m) if r2 == r])
+        n = mother if n is None else n
+        if not r < n <= mother:
+            raise BCHParameterError(f"length {n} must be {r + 1}..{mother} for m = {m}, t = {t}")
+        self.field: GF2m = gf
+        self.m = m
+        self._t = t
+        self._n = n
+        self._k = n - r
+        self.generator = g  # binary polynomial, bit i = coefficient of x^i
+        self.name = f"bch-{n}-{n - r}"
+        self.description = description or (
+            f"binary BCH, designed distance {2 * t + 1}" + (f", shortened from length {mother}" if n < mother else ""))
+
+    @classmethod
+    def from_nk(cls, n: int, k: int) -> "BCHCode":
+        """The code called bch-n-k: the smallest m with 2^m - 1 >= n, and the designed t
+        whose generator has degree n - k (the largest such t if several give one code)."""
+        if not 1 <= k < n:
+            raise BCHParameterError(f"bch-{n}-{k}: need 1 <= k < n")
+        m = max(3, n.bit_length())
+        if m > 8:
+            raise BCHParameterError(f"bch-{n}-{k}: lengths up to 255 are supported")
+        for t, r in bch_designed_range(m):
+            if r == n - k:
+                return cls(m, t, n)
+        ks = [n - r for _, r in bch_designed_range(m) if n - r >= 1]
+        raise BCHParameterError(f"bch-{n}-{k}: no BCH code of length {n} has k = {k}; possible k: "
+                                + ", ".join(map(str, ks)))
+
+    # ---- parameters ----------------------------------------------------------------------------
+    @property
+    def n(self) -> int:
+        return self._n
+
+    @property
+    def k(self) -> int:
+        return self._k
+
+    @property
+    def r(self) -> int:
+        return self._n - self._k
+
+    @property
+    def rate(self) -> float:
+        return self._k / self._n
+
+    @property
+    def t(self) -> int:
+        """Bit errors corrected per codeword (the designed t)."""
+        return self._t
+
+    @property
+    def d(self) -> int:
+        """Designed distance 2t + 1: the minimum distance is at least this."""
+        return 2 * self._t + 1
+
+    @property
+    def detects(self) -> int:
+        """Errors always detected while correcting up to t: d - 1 - t (from the designed d)."""
+        return self.d - 1 - self._t
+
+    @property
+    def is_perfect(self) -> bool:
+        """Hamming bound met with equality (only the t = 1 codes, which are Hamming codes)."""
+        return sum(comb(self._n, i) for i in range(self._t + 1)) == 1 << self.r
+
+    @property
+    def mother_n(self) -> int:
+        return self.field.order
+
+    @property
+    def shortened_by(self) -> int:
+        return self.field.order - self._n
+
+    @property
+    def generator_octal(self) -> str:
+        """g(x) in octal, highest degree first, the form of the published BCH tables."""
+        return format(self.generator, "o")
+
+    # ---- matrices --------------------------------------------------------------------------------
+    @cached_property
+    def _parity_rows(self) -> list[int]:
+        """Row i of P as an r-bit integer: the parity of message bit i, x^(n-1-i) mod g."""
+        g, r = self.generator, self.r
+        rem = g ^ (1 << r)  # x^r mod g
+        out = [rem]
+        for _ in range(self._k - 1):  # x^(r+1) .. x^(n-1) mod g
+            rem <<= 1
+            if rem >> r & 1:
+                rem ^= g
+            out.append(rem)
+        return out[::-1]  # message bit 0 is the highest degree
+
+    @property
+    def P(self) -> np.ndarray:
+        """Parity part (k x r) of the systematic generator."""
+        r = self.r
+        return np.array([[(row >> (r - 1 - j)) & 1 for j in range(r)] for row in self._parity_rows], dtype=np.uint8)
+
+    @property
+    def G(self) -> np.ndarray:
+        """Systematic generator [I_k | P] (k x n)."""
+        return np.hstack([np.eye(self._k, dtype=np.uint8), self.P])
+
+    @property
+    def H(self) -> np.ndarray:
+        """Systematic parity-check matrix [P^T | I_r] (r x n)."""
+        return np.hstack([self.P.T, np.eye(self.r, dtype=np.uint8)])
+
+    # ---- weight distribution --------------------------------------------------------------------
+    @property
+    def weight_distribution_available(self) -> bool:
+        return min(self._k, self.r) <= LISTING_LIMIT_BITS
+
+    @property
+    def weight_distribution_note(self) -> str:
+        if self.weight_distribution_available:
+            return ""
+        return (f"not available: neither the code (2^{self._k} words) nor its dual (2^{self.r} words) is small "
+                "enough to list")
+
+    @cached_property
+    def weight_distribution(self) -> WeightDistribution | None:
+        """Exact distribution, by listing the 2^k codewords or the 2^r words of the dual
+        and the MacWilliams identity, whichever is fewer; None when both are too many (see
+        weight_distribution_note)."""
+        if not self.weight_distribution_available:
+            return None
+        k, r, n = self._k, self.r, self._n
+        rows = self._parity_rows
+        if k <= r:  # codeword (m, m P): its parity is the XOR of the rows m selects
+            m = np.arange(1 << k, dtype=np.uint64)
+            words = -(-r // 64)
+            parity = np.zeros((1 << k, words), dtype=np.uint64)
+            for i, row in enumerate(rows):
+                selected = ((m >> np.uint64(k - 1 - i)) & np.uint64(1)).astype(bool)
+                for w in range(words):
+                    parity[selected, w] ^= np.uint64((row >> (64 * w)) & 0xFFFFFFFFFFFFFFFF)
+            weights = np.bitwise_count(m).astype(np.int64) + np.bitwise_count(parity).sum(axis=1, dtype=np.int64)
+            counts = np.bincount(weights, minlength=n + 1)
+            return WeightDistribution(tuple(int(c) for c in counts), "enumeration")
+        u = np.arange(1 << r, dtype=np.uint64)  # dual word for u: (u P^T, u)
+        weights = np.bitwise_count(u).astype(np.int64)
+        for row in rows:
+            weights += np.bitwise_count(u & np.uint64(row)).astype(np.int64) & 1
+        dual = [int(c) for c in np.bincount(weights, minlength=n + 1)]
+        return WeightDistribution(tuple(macwilliams(dual, n)), "macwilliams")
+
+    @property
+    def minimum_distance(self) -> int | None:
+        """The true minimum distance when the weight distribution is available, else None."""
+        wd = self.weight_distribution
+        return None if wd is None else wd.minimum_distance
+
+    # ---- kernel tables ----------------------------------------------------------------------------
+    @cached_property
+    def register_table(self) -> np.ndarray:
+        return binary_register_table(self.generator)
+
+    @property
+    def row_bytes(self) -> int:
+        """Bytes of one packed codeword row."""
+        return (self._n + 7) // 8
+
+    def encode_rows(self, rows: np.ndarray) -> None:
+        """Fill in the parity bits of packed rows (N x row_bytes) holding messages in
+        their first k bits and zeros after."""
+        kernels = compiled_cyclic(8 * rows.size)
+        (kernels or cyclic_small).bch_encode_rows(rows, self._k, self.r, self.register_table)
+
+    def decode_rows(self, rows: np.ndarray) -> np.ndarray:
+        """Correct packed rows in place; per-row status (0, bits corrected, or FAILED)."""
+        status = np.zeros(rows.shape[0], dtype=np.uint8)
+        if rows.shape[0] == 0:
+            return status
+        gf = self.field
+        kernels = compiled_cyclic(8 * rows.size)
+        (kernels or cyclic_small).bch_decode_rows(rows, self._n, self.r, self._t, self.register_table,
+                                                  gf.mul_table, gf.inv_table, gf.exp, gf.order, status)
+        return status
+
+    # ---- bit-array API ------------------------------------------------------------------------------
+    def encode(self, messages: object) -> np.ndarray:
+        """Codewords (message bits, then parity bits) for messages (k,) or (N, k)."""
+        m = _as_bit_rows(messages, self._k, "messages")
+        rows = np.zeros((m.shape[0], 8 * self.row_bytes), dtype=np.uint8)
+        rows[:, : self._k] = m
+        packed = np.packbits(rows, axis=1)
+        self.encode_rows(packed)
+        out = np.unpackbits(packed, axis=1)[:, : self._n]
+        return out[0] if np.ndim(messages) == 1 else out
+
+    def decode(self, received: object) -> tuple[np.ndarray, np.ndarray]:
+        """(message bits, status) for received words (n,) or (N, n)."""
+        c = _as_bit_rows(received, self._n, "received words")
+        padded = np.zeros((c.shape[0], 8 * self.row_bytes), dtype=np.uint8)
+        padded[:, : self._n] = c
+        packed = np.packbits(padded, axis=1)
+        status = self.decode_rows(packed)
+        out = np.unpackbits(packed, axis=1)[:, : self._k]
+        if np.ndim(received) == 1:
+            return out[0], status[:1]
+        return out, status
+
+    def syndromes(self, received: object) -> np.ndarray:
+        """Power-sum syndromes S_j = r(alpha^j), j = 1 .. 2t, as field elements (N, 2t)."""
+        c = _as_bit_rows(received, self._n, "received words").astype(np.int64)
+        gf = self.field
+        degrees = np.arange(self._n - 1, -1, -1)
+        out = np.zeros((c.shape[0], 2 * self._t), dtype=np.int64)
+        for j in range(1, 2 * self._t + 1):
+            powers = gf.exp[(degrees * j) % gf.order]
+            out[:, j - 1] = np.bitwise_xor.reduce(c * powers, axis=1)
+        return out
+
+    def __repr__(self) -> str:
+        return f"<BCHCode {self.name} m={self.m} t={self._t}>"
+
+
+def _as_bit_rows(values: object, width: int, what: str) -> np.ndarray:
+    a = np.atleast_2d(np.asarray(values))
+    if a.ndim != 2 or a.shape[1] != width:
+        raise ValueError(f"{what} must have shape ({width},) or (N, {width}), got {np.shape(values)}")
+    if not np.isin(a, (0, 1)).all():
+        raise ValueError(f"{what} must hold only 0 and 1")
+    return a.astype(np.uint8)
+
+
+def bch(n: int, k: int) -> BCHCode:
+    """The BCH code called bch-n-k (see BCHCode.from_nk)."""
+    return BCHCode.from_nk(n, k)

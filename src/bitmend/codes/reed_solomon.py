@@ -1,0 +1,221 @@
+"""Reed-Solomon codes over GF(2^8): symbols are bytes.
+
+Field: GF(2^8) modulo p(x) = x^8 + x^4 + x^3 + x^2 + 1 (0x11D), alpha = x (the byte 0x02).
+Generator: g(x) = (x - alpha^c)(x - alpha^(c+1)) ... (x - alpha^(c+r-1)), r = n - k, with
+first root exponent c = 1 (narrow sense). These are the defaults of the galois library's
+ReedSolomon(255, k), so its codewords are the same as ours.
+
+The code called rs-n-k has n <= 255 symbols; n < 255 is the code of length 255 shortened
+by 255 - n leading zero symbols (not sent). n - k must be even: t = (n - k) / 2 symbol
+errors are corrected, or any e errors and f erasures (symbols known to be unreliable)
+with 2e + f <= n - k. Reed-Solomon codes are MDS: d = n - k + 1 exactly, and their weight
+distribution has a closed form (MacWilliams & Sloane, The Theory of Error-Correcting
+Codes, ch. 11, Theorem 6):
+
+    A_w = C(n, w) (q - 1) sum_{j=0}^{w-d} (-1)^j C(w - 1, j) q^(w-d-j),   d <= w <= n.
+
+Encoding is systematic: the k message symbols, then the r symbols of m(x) x^r mod g(x),
+the first symbol sent the highest-degree coefficient.
+"""
+
+from __future__ import annotations
+
+from functools import cached_property
+from math import comb
+
+import numpy as np
+
+from bitmend.analysis.weights import WeightDistribution
+from bitmend.kernels import cyclic_small
+from bitmend.kernels.gf2m import GF2m, field, rs_generator, symbol_register_table
+from bitmend.kernels.loader import compiled_cyclic
+
+FAILED = 255
+RS_FIELD_POLYNOMIAL = 0x11D
+RS_FIRST_ROOT = 1
+
+
+class ReedSolomonParameterError(ValueError):
+    """(n, k) that this family does not provide."""
+
+
+def mds_weight_distribution(n: int, k: int, q: int) -> tuple[int, ...]:
+    """Symbol-weight distribution A_0 .. A_n of an (n, k) MDS code over GF(q)."""
+    d = n - k + 1
+    counts = [0] * (n + 1)
+    counts[0] = 1
+    for w in range(d, n + 1):
+        counts[w] = comb(n, w) * (q - 1) * sum((-1) ** j * comb(w - 1, j) * q ** (w - d - j)
+                                               for j in range(w - d + 1))
+    return tuple(counts)
+
+
+class ReedSolomonCode:
+    """rs-n-k over GF(2^8). `encode` takes message symbols (k,) or (N, k) (integers
+    0..255); `decode` takes received symbols (n,) or (N, n) and optional erasure marks of
+    the same shape, and returns (messages, status) with status 0 clean, s symbols
+    corrected, FAILED (255) uncorrectable."""
+
+    family = "rs"
+    symbol_bits = 8  # errors are counted in 8-bit symbols
+    distance_kind = "exact"  # MDS: d = n - k + 1
+
+    def __init__(self, n: int, k: int, description: str = "") -> None:
+        if not 2 <= n <= 255:
+            raise ReedSolomonParameterError(f"rs-{n}-{k}: n must be 2..255 over GF(2^8)")
+        if not 1 <= k < n or (n - k) % 2:
+            raise ReedSolomonParameterError(f"rs-{n}-{k}: need 1 <= k < n with n - k even")
+        self.field: GF2m = field(8, RS_FIELD_POLYNOMIAL)
+        self.first_root = RS_FIRST_ROOT
+        self._n, self._k = n, k
+        self.generator_poly: list[int] = rs_generator(self.field, n - k, self.first_root)
+        self.name = f"rs-{n}-{k}"
+        self.description = description or (
+            "Reed-Solomon over GF(2^8)" + (", shortened from length 255" if n < 255 else ""))
+
+    # ---- parameters --------------------------------------------------------------------------------
+    @property
+    def n(self) -> int:
+        return self._n
+
+    @property
+    def k(self) -> int:
+        return self._k
+
+    @property
+    def r(self) -> int:
+        return self._n - self._k
+
+    @property
+    def rate(self) -> float:
+        return self._k / self._n
+
+    @property
+    def t(self) -> int:
+        """Symbol errors corrected per codeword."""
+        return self.r // 2
+
+    @property
+    def d(self) -> int:
+        """Minimum distance in symbols, n - k + 1 (MDS)."""
+        return self.r + 1
+
+    @property
+    def detects(self) -> int:
+        """Symbol errors always detected while correcting up to t: d - 1 - t."""
+        return self.d - 1 - self.t
+
+    @property
+    def is_perfect(self) -> bool:
+        """q-ary Hamming bound met with equality: sum_{i<=t} C(n,i) 255^i == 256^(n-k)."""
+        return sum(comb(self._n, i) * 255 ** i for i in range(self.t + 1)) == 256 ** self.r
+
+    @property
+    def shortened_by(self) -> int:
+        return 255 - self._n
+
+    # ---- weight distribution ------------------------------------------------------------------------
+    weight_distribution_available = True
+    weight_distribution_note = "symbol weights, closed form for MDS codes"
+
+    @cached_property
+    def weight_distribution(self) -> WeightDistribution:
+        """Distribution of codeword symbol weights (closed form for MDS codes)."""
+        return WeightDistribution(mds_weight_distribution(self._n, self._k, 256), "closed form (MDS)")
+
+    @property
+    def minimum_distance(self) -> int:
+        return self.d
+
+    # ---- matrices over GF(2^8) ------------------------------------------------------------------
+    @property
+    def G(self) -> np.ndarray:
+        """Systematic generator (k x n, symbols): row i is the codeword of the i-th unit message."""
+        return self.encode(np.eye(self._k, dtype=np.uint8))
+
+    @property
+    def H(self) -> np.ndarray:
+        """Systematic parity-check matrix [P^T | I_r] (r x n, symbols); G H^T = 0 over GF(2^8)
+        (in characteristic 2, -P^T = P^T)."""
+        P = self.G[:, self._k:]
+        return np.hstack([P.T, np.eye(self.r, dtype=np.uint8)])
+
+    # ---- kernel tables ----------------------------------------------------------------------------
+    @cached_property
+    def register_table(self) -> np.ndarray:
+        return symbol_register_table(self.field, self.generator_poly)
+
+    @property
+    def row_bytes(self) -> int:
+        return self._n
+
+    def encode_rows(self, messages: np.ndarray) -> np.ndarray:
+        """Codeword rows (N x n) for message rows (N x k), uint8."""
+        messages = np.ascontiguousarray(messages, dtype=np.uint8)
+        rows = np.empty((messages.shape[0], self._n), dtype=np.uint8)
+        kernels = compiled_cyclic(8 * rows.size)
+        (kernels or cyclic_small).rs_encode_rows(messages, self.r, self.register_table, rows)
+        return rows
+
+    def decode_rows(self, rows: np.ndarray, erasures: np.ndarray | None = None) -> np.ndarray:
+        """Correct rows (N x n, uint8) in place; per-row status (0, symbols corrected, FAILED).
+        erasures: optional (N x n) marks of symbols known to be unreliable."""
+        status = np.zeros(rows.shape[0], dtype=np.uint8)
+        if rows.shape[0] == 0:
+            return status
+        marks = np.zeros((0, self._n), dtype=np.uint8) if erasures is None else \
+            np.ascontiguousarray(erasures, dtype=np.uint8)
+        gf = self.field
+        kernels = compiled_cyclic(8 * rows.size)
+        (kernels or cyclic_small).rs_decode_rows(rows, self.r, self.first_root, self.register_table, gf.mul_table,
+                                                 gf.inv_table, gf.exp, gf.order, marks, status)
+        return status
+
+    # ---- symbol-array API -------------------------------------------------------------------------
+    def encode(self, messages: object) -> np.ndarray:
+        m = _as_symbol_rows(messages, self._k, "messages")
+        out = self.encode_rows(m)
+        return out[0] if np.ndim(messages) == 1 else out
+
+    def decode(self, received: object, erasures: object = None) -> tuple[np.ndarray, np.ndarray]:
+        """(message symbols, status). erasures: 0/1 or bool of the received shape, or None."""
+        c = _as_symbol_rows(received, self._n, "received words").copy()
+        marks = None
+        if erasures is not None:
+            marks = np.atleast_2d(np.asarray(erasures)).astype(np.uint8)
+            if marks.shape != c.shape:
+                raise ValueError(f"erasures must have the shape of the received words {c.shape}, got {marks.shape}")
+        status = self.decode_rows(c, marks)
+        out = c[:, : self._k]
+        if np.ndim(received) == 1:
+            return out[0], status[:1]
+        return out, status
+
+    def syndromes(self, received: object) -> np.ndarray:
+        """S_j = r(alpha^j), j = c .. c + n - k - 1, as field elements (N, n - k)."""
+        c = _as_symbol_rows(received, self._n, "received words")
+        gf = self.field
+        out = np.zeros((c.shape[0], self.r), dtype=np.int64)
+        for idx in range(self.r):
+            x = gf.alpha(self.first_root + idx)
+            acc = np.zeros(c.shape[0], dtype=np.int64)
+            for j in range(self._n):
+                acc = gf.mul_table[acc, x].astype(np.int64) ^ c[:, j]
+            out[:, idx] = acc
+        return out
+
+    def __repr__(self) -> str:
+        return f"<ReedSolomonCode {self.name} t={self.t}>"
+
+
+def _as_symbol_rows(values: object, width: int, what: str) -> np.ndarray:
+    a = np.atleast_2d(np.asarray(values))
+    if a.ndim != 2 or a.shape[1] != width:
+        raise ValueError(f"{what} must have shape ({width},) or (N, {width}), got {np.shape(values)}")
+    if a.size and (a.min() < 0 or a.max() > 255):
+        raise ValueError(f"{what} must hold symbols 0..255")
+    return np.ascontiguousarray(a, dtype=np.uint8)
+
+
+def reed_solomon(n: int, k: int) -> ReedSolomonCode:
+    return ReedSolomonCode(n, k)

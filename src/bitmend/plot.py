@@ -1,0 +1,109 @@
+"""Charts of simulation results: measured points with their intervals, theory, the uncoded line.
+
+matplotlib is an optional dependency (`pip install 'bitmend[plot]'`) and is imported only
+inside `plot_results`, so nothing else pays for it.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from bitmend.channel.spec import parse_channels, sweep_channels
+from bitmend.codes.linear import BinaryLinearCode
+from bitmend.simulate import SimulationResult, SweepResult, theory_for
+
+FORMATS = (".png", ".svg")
+PANELS = (("bit_error", "residual bit error rate"), ("block_error", "block (codeword) error rate"))
+
+
+class PlotUnavailableError(RuntimeError):
+    """matplotlib is not installed."""
+
+
+def plotting_available() -> bool:
+    import importlib.util
+
+    return importlib.util.find_spec("matplotlib") is not None
+
+
+def check_plot_path(path: str) -> None:
+    """Refuse a file type we do not draw, before any work is done."""
+    if Path(path).suffix.lower() not in FORMATS:
+        raise ValueError(f"plot file must end in {' or '.join(FORMATS)}, got {path!r}")
+    if not plotting_available():
+        raise PlotUnavailableError("plotting needs matplotlib: pip install 'bitmend[plot]'")
+
+
+def _curves(result: SimulationResult, code: BinaryLinearCode | None, parameter: str,
+            xs: np.ndarray) -> dict[str, list[float | None]]:
+    """Theory and uncoded values at xs for each panel (None where no closed form)."""
+    out: dict[str, list[float | None]] = {f"{kind}_{name}": [] for kind in ("theory", "uncoded") for name, _ in PANELS}
+    models = parse_channels(result.channels)
+    for x in xs:
+        expected, uncoded = theory_for(code, result.depth, sweep_channels(models, parameter, float(x)),
+                                       result.frame_bytes)
+        for name, _ in PANELS:
+            out[f"theory_{name}"].append(getattr(expected, name))
+            out[f"uncoded_{name}"].append(getattr(uncoded, name))
+    return out
+
+
+def plot_results(results: SimulationResult | SweepResult, path: str, code: BinaryLinearCode | None = None) -> None:
+    """Draw residual bit error and block error against the swept parameter (or the single
+    point) into path (.png or .svg): measured rates with their exact intervals as bars
+    (a run with no error event shows its upper bound as a downward triangle), the theory
+    curve where a closed form exists, and the uncoded channel for comparison."""
+    check_plot_path(path)
+    import matplotlib
+
+    matplotlib.use("Agg")  # files only, never a window
+    import matplotlib.pyplot as plt
+
+    from bitmend.codes.catalog import get_code
+
+    if isinstance(results, SweepResult):
+        parameter, xs, points = results.parameter, np.array(results.values), results.points
+    else:
+        points = (results,)
+        models = parse_channels(results.channels)
+        parameter = next((name for m in models for name in ("p", "bad", "enter") if name in m.parameter_names()), "p")
+        xs = np.array([next(m.params[parameter] for m in models if parameter in m.parameter_names())])
+    first = points[0]
+    if code is None:
+        try:
+            code = get_code(first.code)
+        except KeyError:
+            code = None
+    dense = np.logspace(np.log10(xs.min()), np.log10(xs.max()), 120) if xs.min() > 0 and len(xs) > 1 else xs
+    curves = _curves(first, code, parameter, dense) if code is not None else None
+
+    fig, axes = plt.subplots(1, 2, figsize=(11, 4.4), constrained_layout=True)
+    for ax, (name, label) in zip(axes, PANELS):
+        measured = [p.measured(name) for p in points]
+        rate = np.array([m.rate for m in measured])
+        low = np.array([m.low for m in measured])
+        high = np.array([m.high for m in measured])
+        seen = rate > 0
+        if seen.any():
+            ax.errorbar(xs[seen], rate[seen], yerr=[rate[seen] - low[seen], high[seen] - rate[seen]], fmt="o",
+                        color="C0", capsize=3, label=f"measured ({first.confidence:.0%} interval)")
+        if (~seen).any():
+            ax.plot(xs[~seen], high[~seen], "v", color="C0", mfc="none", label="no event: upper bound")
+        if curves is not None:
+            for kind, style, color, text in (("theory", "-", "C1", "theory"), ("uncoded", "--", "C7", "uncoded")):
+                ys = np.array([np.nan if v is None else v for v in curves[f"{kind}_{name}"]], dtype=float)
+                if np.isfinite(ys).any():
+                    ax.plot(dense, ys, style, color=color, label=text)
+        ax.set_xscale("log")
+        ax.set_yscale("log")
+        ax.set_xlabel(f"channel {parameter}")
+        ax.set_ylabel(label)
+        ax.grid(True, which="both", alpha=0.3)
+        ax.legend(fontsize="small")
+    channels = results.channels_text if isinstance(results, SweepResult) else " then ".join(first.channels)
+    fig.suptitle(f"{first.code} at depth {first.depth} on {channels} "
+                 f"({first.payload_bits:,} payload bits per point, seed {first.seed})", fontsize="medium")
+    fig.savefig(path)
+    plt.close(fig)

@@ -1,0 +1,199 @@
+"""Everything `bitmend codes show` says about one code: matrices, distance, bounds, weight
+distribution and error probabilities on a binary symmetric channel.
+
+The numbers come from `analysis` (pure formulas on n, k, d and the weight distribution);
+this module only gathers them for a code object, a catalog name or a custom code. It
+reads codes by their common attributes (n, k, t, d, G, H, weight_distribution), so code
+families beside BinaryLinearCode are shown too; what a family cannot supply (a weight
+distribution too large to list, matrices over a bigger field) is left out and said so.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from bitmend.analysis import theory
+from bitmend.analysis.bounds import CodeBounds, code_bounds
+from bitmend.codes.catalog import code_names, entry, get_code
+
+#: bit flip probabilities of the table in `codes show`: a log grid, plus 1/2 (pure noise)
+BSC_GRID = (1e-6, 1e-5, 1e-4, 1e-3, 1e-2, 1e-1, 0.5)
+
+UNDETECTED_FORMULA = "P_ud(p) = sum_{w>0} A_w p^w (1-p)^(n-w)"
+BLOCK_ERROR_FORMULA = "P_B(p) = sum_{i>t} C(n,i) p^i (1-p)^(n-i)"
+
+
+@dataclass(frozen=True)
+class BscPoint:
+    """Per-codeword probabilities at one bit flip probability p (None: needs the weight
+    distribution, which is not available)."""
+
+    p: float
+    undetected: float | None  # the code used for detection only: the error is a non-zero codeword
+    block_error: float  # correcting up to t: more than t errors
+    miscorrected: float | None  # of which decoded to a wrong codeword
+    detected: float | None  # of which flagged uncorrectable
+
+    def to_dict(self) -> dict:
+        return {"p": self.p, "undetected": self.undetected, "block_error": self.block_error,
+                "miscorrected": self.miscorrected, "detected": self.detected}
+
+
+def _weights(code) -> tuple[int, ...] | None:
+    try:
+        wd = code.weight_distribution
+    except (AttributeError, ValueError):
+        return None
+    return None if wd is None else tuple(wd.counts)
+
+
+def _is_catalog(code) -> bool:
+    name = getattr(code, "name", None)
+    return name in code_names() and get_code(name) is code
+
+
+@dataclass(frozen=True)
+class CodeProfile:
+    code: object  # BinaryLinearCode or another code family with the same attributes
+    catalog: bool
+    use: str
+    d: int  # the minimum distance (or, where it cannot be listed, the designed distance)
+    d_exact: bool
+    bounds: CodeBounds
+    bsc: tuple[BscPoint, ...]
+    weights: tuple[int, ...] | None
+
+    @property
+    def name(self) -> str:
+        return self.code.name
+
+    @property
+    def symbol_bits(self) -> int:
+        return getattr(self.code, "symbol_bits", 1)
+
+    @property
+    def weight_method(self) -> str | None:
+        return None if self.weights is None else self.code.weight_distribution.method
+
+    @property
+    def weight_method_text(self) -> str:
+        code = self.code
+        if self.weights is None:
+            return getattr(code, "weight_distribution_note", "") or "not available"
+        q = 2 ** self.symbol_bits
+        if self.weight_method == "enumeration":
+            return f"by enumeration of the {q}^{code.k} codewords"
+        if self.weight_method == "macwilliams":
+            return (f"from the {q}^{code.n - code.k} words of the dual code through the MacWilliams identity, "
+                    f"fewer to list than the {q}^{code.k} codewords")
+        return str(self.weight_method)
+
+    @property
+    def column_order(self) -> tuple[int, ...] | None:
+        order = getattr(self.code, "column_order", None)
+        return None if order is None or tuple(order) == tuple(range(self.code.n)) else tuple(order)
+
+    def _matrix_rows(self, which: str) -> list[str] | None:
+        if self.symbol_bits != 1:
+            return None
+        try:
+            matrix = getattr(self.code, which)
+        except (AttributeError, ValueError):
+            return None
+        return ["".join(map(str, row)) for row in matrix]
+
+    def render(self) -> list[str]:
+        """The profile as text lines for a terminal."""
+        return _render(self)
+
+    def to_dict(self) -> dict:
+        code = self.code
+        out = {"name": code.name, "n": code.n, "k": code.k, "rate": round(code.k / code.n, 6), "d": self.d,
+               "d_exact": self.d_exact, "t": code.t, "detects": self.d - 1 - code.t, "perfect": self.bounds.perfect,
+               "use": self.use, "source": "catalog" if self.catalog else "custom",
+               "symbol_bits": self.symbol_bits,
+               "weight_distribution": (None if self.weights is None else
+                                       {str(w): a for w, a in enumerate(self.weights) if a}),
+               "weight_distribution_method": self.weight_method,
+               "G": self._matrix_rows("G"), "H": self._matrix_rows("H"),
+               "bounds": self.bounds.to_dict(),
+               "bsc": [point.to_dict() for point in self.bsc],
+               "formulas": {"undetected": UNDETECTED_FORMULA, "block_error": BLOCK_ERROR_FORMULA}}
+        if self.weights is None:
+            out["weight_distribution_note"] = self.weight_method_text
+        if self.column_order:
+            out["column_order"] = list(self.column_order)
+        return out
+
+
+def code_profile(code, grid: tuple[float, ...] = BSC_GRID) -> CodeProfile:
+    """The profile of a catalog code (by name or object) or a custom code."""
+    if isinstance(code, str):
+        code = get_code(code)
+    catalog = _is_catalog(code)
+    use = entry(code.name).use if catalog else (getattr(code, "description", "") or "custom code")
+    weights = _weights(code)
+    exact = getattr(code, "minimum_distance", None)
+    if weights is not None:
+        d, d_exact = next(w for w, a in enumerate(weights) if w and a), True
+    elif isinstance(exact, int):
+        d, d_exact = exact, True
+    else:
+        d, d_exact = code.d, getattr(code, "distance_kind", "exact") != "designed"
+    symbol_bits = getattr(code, "symbol_bits", 1)
+    bounds = code_bounds(code.n, code.k, d, 2 ** symbol_bits)
+    points = []
+    if symbol_bits == 1:  # a BSC acts on bits; a symbol code's errors are counted in symbols
+        for p in grid:
+            block = theory.bsc_block_error(code.n, code.t, p)
+            undetected = miscorrected = detected = None
+            if weights is not None:
+                outcome = theory.block_outcomes(code.n, code.t, weights, p)
+                undetected, miscorrected = theory.undetected_error(weights, p), outcome.undetected
+                # detected = block error - miscorrected: a difference of two nearly equal sums
+                # for a perfect code (which detects nothing), so rounding residue shows as 0
+                detected = outcome.detected if outcome.detected > 1e-9 * outcome.block_error else 0.0
+            points.append(BscPoint(p, undetected, block, miscorrected, detected))
+    return CodeProfile(code, catalog, use, d, d_exact, bounds, tuple(points), weights)
+
+
+def _num(value: float | None) -> str:
+    return f"{'-':>12}" if value is None else f"{value:>12.3e}"
+
+
+def _render(profile: CodeProfile) -> list[str]:
+    code, b, d = profile.code, profile.bounds, profile.d
+    unit = "" if profile.symbol_bits == 1 else f" symbols of {profile.symbol_bits} bits"
+    lines = [f"{code.name}: ({code.n},{code.k}){unit} rate {code.k / code.n:.4f}, "
+             f"d {'=' if profile.d_exact else '>='} {d}, corrects t = {code.t}, detects {d - 1 - code.t} more"
+             f"{', perfect' if b.perfect else ''}",
+             f"  {'catalog' if profile.catalog else 'custom'}: {profile.use}"]
+    if profile.column_order:
+        lines.append("  columns reordered for the systematic form (an equivalent code): "
+                     + " ".join(map(str, profile.column_order)))
+    q = "2" if b.q == 2 else str(b.q)
+    volume = (f"sum_(i<={b.t}) C({b.n},i)" if b.q == 2 else f"sum_(i<={b.t}) C({b.n},i) {b.q - 1}^i")
+    lines.append("bounds:")
+    lines.append(f"  Singleton: d <= n - k + 1 = {b.singleton_d}"
+                 f"{' (met: MDS)' if b.meets_singleton else f'; this code has d = {d}'}")
+    lines.append(f"  Hamming:   V(n,t) = {volume} = {b.sphere_volume} <= {q}^(n-k) = {b.cosets} -> "
+                 f"{'met with equality: perfect' if b.perfect else f'{b.sphere_fill:.1%} of the syndromes used'}; "
+                 f"no ({b.n},{b.k}) code corrects more than t = {b.hamming_t}")
+    lines.append(f"weight distribution ({profile.weight_method_text}):")
+    if profile.weights is not None:
+        lines.append("  " + ", ".join(f"A{w}={a}" for w, a in enumerate(profile.weights) if a))
+    for label, which in (("G = [I | P]", "G"), ("H = [P^T | I]", "H")):
+        rows = profile._matrix_rows(which)
+        if rows is not None:
+            lines.append(f"{label}:")
+            lines += [f"  {row}" for row in rows]
+    if profile.bsc:
+        lines.append("on a binary symmetric channel with bit flip probability p, per codeword:")
+        lines.append(f"  {'p':>8}  {'undetected*':>12}  {'block error':>12}  {'miscorrected':>12}  {'detected':>12}")
+        for point in profile.bsc:
+            lines.append(f"  {point.p:>8.0e}  {_num(point.undetected)}  {_num(point.block_error)}  "
+                         f"{_num(point.miscorrected)}  {_num(point.detected)}")
+        lines.append(f"  * the code used to detect only: {UNDETECTED_FORMULA}")
+        lines.append(f"  correcting up to t = {code.t}: {BLOCK_ERROR_FORMULA}, split into miscorrected "
+                     "(a wrong codeword, left for the frame CRC) and detected (flagged)")
+    return lines
