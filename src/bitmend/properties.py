@@ -157,6 +157,17 @@ def code_profile(code, grid: tuple[float, ...] = BSC_GRID) -> CodeProfile:
     return CodeProfile(code, catalog, use, d, d_exact, bounds, tuple(points), weights)
 
 
+MATRIX_PRINT_LIMIT = 80 * 72  # entries; larger matrices go to --json only
+
+
+def _big(value: int) -> str:
+    """Exact below a quadrillion, else three significant figures (JSON stays exact)."""
+    if value < 10 ** 15:
+        return str(value)
+    digits = str(value)
+    return f"{digits[0]}.{digits[1:4]}e+{len(digits) - 1}"
+
+
 def _num(value: float | None) -> str:
     return f"{'-':>12}" if value is None else f"{value:>12.3e}"
 
@@ -165,7 +176,8 @@ def _render(profile: CodeProfile) -> list[str]:
     code, b, d = profile.code, profile.bounds, profile.d
     unit = "" if profile.symbol_bits == 1 else f" symbols of {profile.symbol_bits} bits"
     lines = [f"{code.name}: ({code.n},{code.k}){unit} rate {code.k / code.n:.4f}, "
-             f"d {'=' if profile.d_exact else '>='} {d}, corrects t = {code.t}, detects {d - 1 - code.t} more"
+             f"d {'=' if profile.d_exact else '>='} {d}, corrects t = {code.t}, "
+             f"detects every pattern of up to {d - 1 - code.t} errors while correcting"
              f"{', perfect' if b.perfect else ''}",
              f"  {'catalog' if profile.catalog else 'custom'}: {profile.use}"]
     if profile.column_order:
@@ -176,15 +188,17 @@ def _render(profile: CodeProfile) -> list[str]:
     lines.append("bounds:")
     lines.append(f"  Singleton: d <= n - k + 1 = {b.singleton_d}"
                  f"{' (met: MDS)' if b.meets_singleton else f'; this code has d = {d}'}")
-    lines.append(f"  Hamming:   V(n,t) = {volume} = {b.sphere_volume} <= {q}^(n-k) = {b.cosets} -> "
+    lines.append(f"  Hamming:   V(n,t) = {volume} = {_big(b.sphere_volume)} <= {q}^(n-k) = {_big(b.cosets)} -> "
                  f"{'met with equality: perfect' if b.perfect else f'{b.sphere_fill:.1%} of the syndromes used'}; "
                  f"no ({b.n},{b.k}) code corrects more than t = {b.hamming_t}")
     lines.append(f"weight distribution ({profile.weight_method_text}):")
     if profile.weights is not None:
-        lines.append("  " + ", ".join(f"A{w}={a}" for w, a in enumerate(profile.weights) if a))
+        lines.append("  " + ", ".join(f"A{w}={_big(a)}" for w, a in enumerate(profile.weights) if a))
     for label, which in (("G = [I | P]", "G"), ("H = [P^T | I]", "H")):
         rows = profile._matrix_rows(which)
-        if rows is not None:
+        if rows is not None and len(rows) * len(rows[0]) > MATRIX_PRINT_LIMIT:
+            lines.append(f"{label}: {len(rows)} x {len(rows[0])} (too large to print here; --json has it)")
+        elif rows is not None:
             lines.append(f"{label}:")
             lines += [f"  {row}" for row in rows]
     if profile.bsc:

@@ -52,6 +52,7 @@ class Summary:
     end_seen: bool
     skipped_bytes: int
     notes: list[str] = field(default_factory=list)
+    symbol_unit: str = "bits"  # what corrected_symbols counts: bits, or bytes for Reed-Solomon
 
     def to_json(self) -> str:
         return json.dumps({"type": "summary", **asdict(self)}, separators=(",", ":"))
@@ -61,7 +62,7 @@ class Summary:
         verdict = "all data verified" if self.complete else "INCOMPLETE"
         parts = [f"{self.frames} frames", f"{self.clean} clean", f"{self.corrected} corrected",
                  f"{self.damaged} damaged", f"{self.lost} lost",
-                 f"{self.corrected_symbols} bits corrected", f"{self.bytes_out} bytes out"]
+                 f"{self.corrected_symbols} {self.symbol_unit} corrected", f"{self.bytes_out} bytes out"]
         if self.skipped_bytes:
             parts.append(f"{self.skipped_bytes} bytes skipped")
         if not self.end_seen:

@@ -37,6 +37,14 @@ class _Counts:
     failed_blocks: int = 0
 
 
+def _symbol_bits(header) -> int:
+    """1 for binary codes, 8 for Reed-Solomon; 1 when the frame's code is unknown."""
+    try:
+        return getattr(header.code, "symbol_bits", 1)
+    except ValueError:  # a defined code whose definition block was lost
+        return 1
+
+
 class Assembler:
     """Iterate (data, FrameReport) pairs for a container; summary() when done."""
 
@@ -52,6 +60,7 @@ class Assembler:
         self._full_length: int | None = None  # payload size of the stream's full frames
         self._any_frame = False
         self._truncated = False
+        self._symbol_bits: set[int] = set()  # symbol sizes of the codes seen (1 binary, 8 RS)
 
     # ---- per-frame bookkeeping ---------------------------------------------------------
     def _record(self, report: FrameReport) -> None:
@@ -97,6 +106,7 @@ class Assembler:
                 yield from self._lost(0, header.seq)
             if not header.last:
                 self._full_length = max(self._full_length or 0, header.length)
+            self._symbol_bits.add(_symbol_bits(header))
             status = self._status(frame)
             data = frame.payload
             if status == DAMAGED:
@@ -126,6 +136,8 @@ class Assembler:
         c = self._counts
         complete = self._end_seen and c.damaged == 0 and c.lost == 0 and not self._truncated
         notes = list(self._notes) + list(dict.fromkeys(self.scanner.stats.header_errors))[:10]
+        units = {"bytes" if bits == 8 else "bits" for bits in self._symbol_bits} or {"bits"}
         return Summary(c.frames, c.clean, c.corrected, c.damaged, c.lost, c.bytes_out,
                        c.corrected_symbols, c.failed_blocks, complete, self._end_seen,
-                       self.scanner.stats.skipped_bytes, notes)
+                       self.scanner.stats.skipped_bytes, notes,
+                       units.pop() if len(units) == 1 else "symbols (bits or bytes)")

@@ -41,7 +41,9 @@ HEADER_CODE = "golay-24-12"
 HEADER_DEPTH = 11  # 11 codewords of 24 bits carry the 128-bit record (132 with padding)
 HEADER_BYTES = 33
 MAX_PAYLOAD_BYTES = 1 << 20  # frame payload limit: bounds every allocation a header drives
-MAX_FRAME_WIRE_BYTES = 8 + 2 * 33 + 3 * (MAX_PAYLOAD_BYTES + 4 + 255 * 3)  # largest frame (rep-3 at depth 255)
+# a bound on any frame's size on the wire (the largest catalog frames, rep-3 and bch-15-5 at
+# depth 255, stay under it; custom-code frames are refused above it): sizes the look-back window
+MAX_FRAME_WIRE_BYTES = 8 + 2 * 33 + 3 * (MAX_PAYLOAD_BYTES + 4 + 255 * 3)
 DEFAULT_FRAME_BYTES = 16384
 CRC_BYTES = 4
 FLAG_LAST = 0x01  # the frame closes its stream

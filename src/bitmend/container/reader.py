@@ -24,7 +24,6 @@ from bitmend.kernels import small
 from bitmend.kernels.loader import compiled
 
 READ_CHUNK = 1 << 20
-_NO_BLOCKS = np.zeros(0, dtype=np.uint8)
 MAX_LISTED_FAILED = 4096  # failed block indexes listed per frame report
 SEARCH_PIECE = 1 << 16  # bytes scanned per marker-search step
 SMALL_SEARCH_PIECE = 1 << 11  # the same while the compiled kernels are not loaded
