@@ -27,6 +27,7 @@ import numpy as np
 from bitmend.analysis.weights import WeightDistribution, macwilliams
 from bitmend.kernels import cyclic_small
 from bitmend.kernels.gf2m import GF2m, bch_designed_range, bch_generator, binary_register_table, field
+from bitmend.codes.base import BlockCode
 from bitmend.kernels.loader import compiled_cyclic
 
 FAILED = 255
@@ -37,7 +38,7 @@ class BCHParameterError(ValueError):
     """(n, k) that no primitive narrow-sense binary BCH code (or shortening of one) has."""
 
 
-class BCHCode:
+class BCHCode(BlockCode):
     """A binary BCH code: m, designed t, and the (possibly shortened) length n.
 
     The array API mirrors BinaryLinearCode: `encode` takes 0/1 message bits of shape (k,)
@@ -91,22 +92,6 @@ class BCHCode:
                                 + ", ".join(map(str, ks)))
 
     # ---- parameters ----------------------------------------------------------------------------
-    @property
-    def n(self) -> int:
-        return self._n
-
-    @property
-    def k(self) -> int:
-        return self._k
-
-    @property
-    def r(self) -> int:
-        return self._n - self._k
-
-    @property
-    def rate(self) -> float:
-        return self._k / self._n
-
     @property
     def t(self) -> int:
         """Bit errors corrected per codeword (the designed t)."""

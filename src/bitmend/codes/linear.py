@@ -19,6 +19,7 @@ from math import comb
 import numpy as np
 
 from bitmend.analysis.weights import WeightDistribution, weight_distribution
+from bitmend.codes.base import BlockCode
 from bitmend.kernels.gf2 import as_bit_matrix, row_reduce
 
 MAX_MESSAGE_BITS = 64  # k: a message is one uint64 in the kernels
@@ -35,7 +36,7 @@ def _bits_to_int(bits: np.ndarray) -> int:
     return int("".join("1" if b else "0" for b in bits) or "0", 2)
 
 
-class BinaryLinearCode:
+class BinaryLinearCode(BlockCode):
     """An (n, k) binary linear block code in systematic form.
 
     Build with from_generator(G) or from_parity_check(H). If the information set is not
@@ -90,23 +91,6 @@ class BinaryLinearCode:
         return cls(name, A.T.copy(), None if order == tuple(range(n)) else order, description)
 
     # ---- dimensions and matrices ----------------------------------------------------
-    @property
-    def n(self) -> int:
-        return self._n
-
-    @property
-    def k(self) -> int:
-        return self._k
-
-    @property
-    def r(self) -> int:
-        """Number of parity bits, n - k."""
-        return self._n - self._k
-
-    @property
-    def rate(self) -> float:
-        return self._k / self._n
-
     @property
     def P(self) -> np.ndarray:
         """Parity part (k x r) of the systematic generator."""

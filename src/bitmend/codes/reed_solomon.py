@@ -28,6 +28,7 @@ import numpy as np
 from bitmend.analysis.weights import WeightDistribution
 from bitmend.kernels import cyclic_small
 from bitmend.kernels.gf2m import GF2m, field, rs_generator, symbol_register_table
+from bitmend.codes.base import BlockCode
 from bitmend.kernels.loader import compiled_cyclic
 
 FAILED = 255
@@ -50,7 +51,7 @@ def mds_weight_distribution(n: int, k: int, q: int) -> tuple[int, ...]:
     return tuple(counts)
 
 
-class ReedSolomonCode:
+class ReedSolomonCode(BlockCode):
     """rs-n-k over GF(2^8). `encode` takes message symbols (k,) or (N, k) (integers
     0..255); `decode` takes received symbols (n,) or (N, n) and optional erasure marks of
     the same shape, and returns (messages, status) with status 0 clean, s symbols
@@ -74,22 +75,6 @@ class ReedSolomonCode:
             "Reed-Solomon over GF(2^8)" + (", shortened from length 255" if n < 255 else ""))
 
     # ---- parameters --------------------------------------------------------------------------------
-    @property
-    def n(self) -> int:
-        return self._n
-
-    @property
-    def k(self) -> int:
-        return self._k
-
-    @property
-    def r(self) -> int:
-        return self._n - self._k
-
-    @property
-    def rate(self) -> float:
-        return self._k / self._n
-
     @property
     def t(self) -> int:
         """Symbol errors corrected per codeword."""
