@@ -32,7 +32,7 @@ from bitmend.interleave import decode_segment, encode_segment, layout
 FORMAT_VERSION = 1
 # 64-bit sync marker: 32 ones, no run longer than 4, and for every shift s the marker
 # differs from itself shifted by s in >= 28.5 places counting unknown bits as half
-# (found by a seeded search; see docs/FORMAT.md).
+# (found by the seeded search in tools/choose_marker.py; see docs/FORMAT.md).
 MARKER = 0xA4C95BDD8544AE53
 MARKER_BYTES = MARKER.to_bytes(8, "big")
 MARKER_SEARCH_TOLERANCE = 12  # bits of 64 that may differ while searching for a frame
