@@ -239,6 +239,64 @@ def syndrome_correct(messages, parity, table, leader_message, leader_parity, lea
 
 
 @njit(cache=True)
+def encode_short_bytewise(source, blocks, k, r, depth, table, out):
+    """encode_run for n <= 16 at a depth that is a multiple of 8: each codeword fits in
+    two bytes, so eight codewords are eight rows of an 8x8 bit matrix per byte slice and
+    go out by two transposes without intermediate arrays."""
+    n = k + r
+    lanes = depth // 8
+    group_bytes = depth * n // 8
+    for first in range(0, blocks, depth):
+        base = (first // depth) * group_bytes
+        for lane in range(lanes):
+            high = U64(0)  # codeword bits 0..7 of the eight rows, row 0 in the top byte
+            low = U64(0)  # codeword bits 8..15
+            for q in range(8):
+                m = get_field(source, (first + 8 * lane + q) * k, k)
+                word = ((m << U64(r)) | parity_of(m, table)) << U64(16 - n)  # left-aligned in 16 bits
+                high = (high << U64(8)) | (word >> U64(8))
+                low = (low << U64(8)) | (word & U64(0xFF))
+            high = transpose8(high)
+            for j in range(min(n, 8)):
+                or_byte(out, base + j * lanes + lane, (high >> U64(56 - 8 * j)) & U64(0xFF))
+            if n > 8:
+                low = transpose8(low)
+                for j in range(8, n):
+                    or_byte(out, base + j * lanes + lane, (low >> U64(56 - 8 * (j - 8))) & U64(0xFF))
+
+
+@njit(cache=True)
+def decode_short_bytewise(coded, k, n, depth, blocks, word_table, out):
+    """decode_run for n <= 16 at a depth that is a multiple of 8: transpose eight
+    codewords back out of their byte columns and decode each by one word-table lookup."""
+    lanes = depth // 8
+    group_bytes = depth * n // 8
+    status = np.empty(blocks, dtype=np.uint8)
+    message_mask = (U64(1) << U64(k)) - U64(1)
+    index, acc, held = 0, U64(0), 0
+    for first in range(0, blocks, depth):
+        base = (first // depth) * group_bytes
+        for lane in range(lanes):
+            high = U64(0)
+            low = U64(0)
+            for j in range(min(n, 8)):
+                high = (high << U64(8)) | get_byte(coded, base + j * lanes + lane)
+            high = transpose8(high << U64(8 * (8 - min(n, 8))))
+            if n > 8:
+                for j in range(8, n):
+                    low = (low << U64(8)) | get_byte(coded, base + j * lanes + lane)
+                low = transpose8(low << U64(8 * (16 - n)))
+            for q in range(8):
+                shift = U64(56 - 8 * q)
+                word = ((((high >> shift) & U64(0xFF)) << U64(8)) | ((low >> shift) & U64(0xFF))) >> U64(16 - n)
+                entry = word_table[word]
+                status[first + 8 * lane + q] = np.uint8(entry >> U64(56))
+                index, acc, held = put_field(out, index, acc, held, entry & message_mask, k)
+    finish_writer(out, index, acc, held)
+    return status
+
+
+@njit(cache=True)
 def encode_run(source, blocks, k, r, depth, table, out):
     """Whole encoder in one compiled call: blocks k-bit messages from the word buffer
     source, parity added, interleaved into the zeroed word buffer out."""
@@ -250,6 +308,9 @@ def encode_run(source, blocks, k, r, depth, table, out):
             m = get_field(source, i * k, k)
             index, acc, held = put_field(out, index, acc, held, (m << U64(r)) | parity_of(m, table), n)
         finish_writer(out, index, acc, held)
+        return
+    if depth % 8 == 0 and n <= 16:
+        encode_short_bytewise(source, blocks, k, r, depth, table, out)
         return
     messages = np.empty(blocks, dtype=np.uint64)
     for i in range(blocks):
@@ -267,6 +328,8 @@ def decode_run(coded, k, r, depth, blocks, table, leader_message, leader_parity,
     word_table, when it has 2^n entries (short codes), maps every received n-bit word to
     its decoded message (low bits) and status (top byte) in one lookup."""
     n = k + r
+    if depth % 8 == 0 and n <= 16 and word_table.shape[0] == (1 << n):
+        return decode_short_bytewise(coded, k, n, depth, blocks, word_table, out)
     if depth == 1 and word_table.shape[0] == (1 << n):
         status = np.empty(blocks, dtype=np.uint8)
         message_mask = (U64(1) << U64(k)) - U64(1)
