@@ -264,16 +264,30 @@ def test_hit_leading_header_is_recovered_from_the_trailing_copy(wipe):
 
 @pytest.mark.parametrize("fill", ["zeros", "random"])
 @pytest.mark.parametrize("index", [1, 3, 5])
-def test_frame_with_both_headers_wiped_is_lost_alone(fill, index):
+def test_frame_with_both_headers_wiped_is_recovered_by_its_place_in_the_stream(fill, index):
+    # a full-size frame in the middle keeps the stream's rhythm: the reader decodes it as
+    # the frame that must come next and accepts it because its payload CRC checks
+    data = random_bytes(1000, 1)
+    blob = bytearray(encode_bytes(data, code="golay-24-12", depth=8, frame_bytes=128))
+    target = frame_spans(bytes(blob))[index]
+    blob[target.start: target.payload_start] = bytes(41) if fill == "zeros" else random_bytes(41, index)
+    blob[target.copy_start: target.end] = bytes(33) if fill == "zeros" else random_bytes(33, index + 100)
+    result = decode_bytes(bytes(blob))
+    assert result.data == data and result.report.summary.complete
+    assert all(f.status == CLEAN for f in result.report.frames)
+
+
+@pytest.mark.parametrize("fill", ["zeros", "random"])
+@pytest.mark.parametrize("index", [1, 3, 5])
+def test_frame_with_both_headers_and_its_payload_wiped_is_lost_alone(fill, index):
     data = random_bytes(1000, 1)
     blob = bytearray(encode_bytes(data, code="golay-24-12", depth=8, frame_bytes=128))
     spans = frame_spans(bytes(blob))
     slices = payload_slices(spans)
     target = spans[index]
-    head = bytes(41) if fill == "zeros" else random_bytes(41, index)
-    tail = bytes(33) if fill == "zeros" else random_bytes(33, index + 100)
-    blob[target.start: target.payload_start] = head
-    blob[target.copy_start: target.end] = tail
+    size = target.copy_start - target.start  # marker, header and the whole coded payload
+    blob[target.start: target.copy_start] = bytes(size) if fill == "zeros" else random_bytes(size, index)
+    blob[target.copy_start: target.end] = bytes(33) if fill == "zeros" else random_bytes(33, index + 100)
     result = decode_bytes(bytes(blob))
     report = result.report
     assert [f.seq for f in report.frames] == list(range(len(spans)))

@@ -74,15 +74,24 @@ def test_one_bit_flipped_anywhere_in_a_frame_marker_or_header_costs_nothing():
         assert result.data == SMALL_DATA and result.report.complete, f"bit {bit}"
 
 
-def test_one_frames_header_and_copy_wiped_costs_that_frame_alone():
+def test_one_frames_header_and_copy_wiped_is_recovered_by_the_stream_rhythm():
     container = small_container()
-    spans = frame_spans(container)
-    target = spans[2]
+    target = frame_spans(container)[2]
     damaged = bytearray(container)
     rng = np.random.default_rng(5)
     damaged[target.start: target.payload_start] = rng.integers(0, 256, target.payload_start - target.start,
                                                               dtype=np.uint8).tobytes()
     damaged[target.copy_start: target.end] = rng.integers(0, 256, fmt.HEADER_BYTES, dtype=np.uint8).tobytes()
+    result = bitmend.decode_bytes(bytes(damaged))
+    assert result.data == SMALL_DATA and result.report.complete
+
+
+def test_one_frame_wiped_whole_costs_that_frame_alone():
+    container = small_container()
+    target = frame_spans(container)[2]
+    damaged = bytearray(container)
+    rng = np.random.default_rng(5)
+    damaged[target.start: target.end] = rng.integers(0, 256, target.end - target.start, dtype=np.uint8).tobytes()
     result = bitmend.decode_bytes(bytes(damaged))
     statuses = {r.seq: r.status for r in result.report.frames}
     assert statuses[2] == "lost"

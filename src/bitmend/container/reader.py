@@ -174,6 +174,16 @@ class FrameScanner:
             return found
         return None
 
+    def _inferred_frame(self, frame_bit: int, predicted: fmt.FrameHeader) -> DecodedFrame | None:
+        """While locked, a frame whose header and header copy were both hit: decode it as
+        the frame that should follow (same code, depth and length, next sequence number).
+        Accepted only if its payload CRC-32C then checks, so a wrong guess is never
+        delivered; it costs one decode when the guess fails."""
+        if not self._decode_payloads or not self._fill(frame_bit + 8 * predicted.frame_bytes):
+            return None
+        frame = self._decode_frame(frame_bit, predicted, from_copy=True)
+        return frame if frame.crc_ok else None
+
     def _look_back(self, gap_start: int, gap_end: int) -> DecodedFrame | None:
         """A frame filling the end of the gap [gap_start, gap_end) whose leading marker or
         header was hit, found through its header copy, which ends right at gap_end."""
@@ -275,9 +285,14 @@ class FrameScanner:
             self._fill(candidate + MARKER_BITS + HEADER_BITS)
             header = self._header_at(candidate + MARKER_BITS)
             from_copy = False
+            inferred: DecodedFrame | None = None
             if header is None and locked is not None and not locked.last:
                 header = self._predicted_header(candidate, locked.next())
                 from_copy = header is not None
+                if header is None:
+                    inferred = self._inferred_frame(candidate, locked.next())
+                    if inferred is not None:
+                        header, from_copy = inferred.header, True
             if header is None:
                 if locked is None:
                     pos = candidate if was_start else candidate + 1
@@ -295,7 +310,7 @@ class FrameScanner:
                     gap_start = candidate
                     yield earlier
             self.stats.skipped_bytes += max(0, candidate - gap_start) // 8
-            frame = self._decode_frame(candidate, header, from_copy)
+            frame = inferred or self._decode_frame(candidate, header, from_copy)
             covered = candidate + 8 * header.frame_bytes
             yield frame
             if frame.truncated:
