@@ -124,6 +124,16 @@ def _open_output(path: Optional[str]) -> Iterator[BinaryIO]:
             os.unlink(tmp)
 
 
+def _open_side_file(path: Optional[str], what: str):
+    """A text file for a report or ledger beside the main output (None if not asked for)."""
+    if not path:
+        return None
+    try:
+        return open(path, "w", encoding="utf-8")
+    except OSError as exc:
+        raise CliError(f"cannot write {what} {path}: {exc.strerror}", EXIT_UNREADABLE) from None
+
+
 def _input_size(stream: BinaryIO) -> int | None:
     try:
         return os.fstat(stream.fileno()).st_size or None
@@ -277,12 +287,7 @@ def decode(
     with _errors():
         if on_error not in ON_ERROR_CHOICES:
             raise CliError(f"--on-error must be one of {', '.join(ON_ERROR_CHOICES)}, got {on_error!r}", EXIT_USAGE)
-        report_file = None
-        if report:
-            try:
-                report_file = open(report, "w", encoding="utf-8")
-            except OSError as exc:
-                raise CliError(f"cannot write report {report}: {exc.strerror}", EXIT_UNREADABLE) from None
+        report_file = _open_side_file(report, "report")
         on_frame = (lambda r: report_file.write(r.to_json() + "\n")) if report_file else None
         decoder = None
         stopped: DamagedDataError | None = None
@@ -387,12 +392,7 @@ def inject(
 
     with _errors():
         parse_channels(channel)  # a bad SPEC fails before any output is made
-        ledger_file = None
-        if ledger:
-            try:
-                ledger_file = open(ledger, "w", encoding="utf-8")
-            except OSError as exc:
-                raise CliError(f"cannot write ledger {ledger}: {exc.strerror}", EXIT_UNREADABLE) from None
+        ledger_file = _open_side_file(ledger, "ledger")
         done = False
         try:
             with _open_input(source) as inp, _open_output(output) as out:

@@ -63,18 +63,24 @@ def gilbert_elliott_steps(enter: float, leave: float, steps: int | np.ndarray) -
                      np.stack([move_to_good, 1.0 - move_to_good], -1)], -2)
 
 
-def gilbert_elliott_error_counts_by_depth(n: int, depths: np.ndarray | list[int], enter: float, leave: float,
-                                          bad: float, good: float = 0.0) -> np.ndarray:
-    """One row per depth: the distribution of the number of flips among n bits taken
-    `depth` apart from a stationary Gilbert-Elliott chain (exact). All depths advance
-    together through the n-step recursion."""
+def _chain_setup(depths, enter: float, leave: float, bad: float, good: float) -> tuple[np.ndarray, float]:
+    """Checked chain parameters: the depths as a 1-D array (each at least 1) and the
+    stationary chance pi_bad = enter / (enter + leave) of the bad state."""
     for name, value in (("enter", enter), ("leave", leave), ("bad", bad), ("good", good)):
         _check_probability(name, value)
     depths = np.asarray(depths, dtype=np.int64).reshape(-1)
     if depths.size and depths.min() < 1:
         raise ValueError(f"depth must be at least 1, got {depths.min()}")
     total = enter + leave
-    pi_bad = 0.0 if total == 0.0 else enter / total
+    return depths, 0.0 if total == 0.0 else enter / total
+
+
+def gilbert_elliott_error_counts_by_depth(n: int, depths: np.ndarray | list[int], enter: float, leave: float,
+                                          bad: float, good: float = 0.0) -> np.ndarray:
+    """One row per depth: the distribution of the number of flips among n bits taken
+    `depth` apart from a stationary Gilbert-Elliott chain (exact). All depths advance
+    together through the n-step recursion."""
+    depths, pi_bad = _chain_setup(depths, enter, leave, bad, good)
     flip = np.array([good, bad])
     step = gilbert_elliott_steps(enter, leave, depths)  # (depths, 2, 2)
     f = np.zeros((len(depths), 2, n + 1))  # f[depth, state, errors so far]
@@ -106,13 +112,7 @@ def gilbert_elliott_symbol_error_counts_by_depth(n: int, symbol_bits: int, depth
     Per symbol, with Q = diag(1 - flip) and T the one-bit transition matrix,
     K = Q (T Q)^(s-1) carries the chain through s clean bits and T^(s-1) - K through the
     rest; between symbols the chain takes the remaining D s - s + 1 steps."""
-    for name, value in (("enter", enter), ("leave", leave), ("bad", bad), ("good", good)):
-        _check_probability(name, value)
-    depths = np.asarray(depths, dtype=np.int64).reshape(-1)
-    if depths.size and depths.min() < 1:
-        raise ValueError(f"depth must be at least 1, got {depths.min()}")
-    total = enter + leave
-    pi_bad = 0.0 if total == 0.0 else enter / total
+    depths, pi_bad = _chain_setup(depths, enter, leave, bad, good)
     one = gilbert_elliott_steps(enter, leave, 1)
     clean = np.diag([1.0 - good, 1.0 - bad])
     through_clean = clean.copy()

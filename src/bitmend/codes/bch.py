@@ -27,7 +27,7 @@ import numpy as np
 from bitmend.analysis.weights import WeightDistribution, macwilliams
 from bitmend.kernels import cyclic_small
 from bitmend.kernels.gf2m import GF2m, bch_designed_range, bch_generator, binary_register_table, field
-from bitmend.codes.base import BlockCode
+from bitmend.codes.base import SystematicBinaryCode, as_rows
 from bitmend.kernels.loader import compiled_cyclic
 
 FAILED = 255
@@ -38,7 +38,7 @@ class BCHParameterError(ValueError):
     """(n, k) that no primitive narrow-sense binary BCH code (or shortening of one) has."""
 
 
-class BCHCode(BlockCode):
+class BCHCode(SystematicBinaryCode):
     """A binary BCH code: m, designed t, and the (possibly shortened) length n.
 
     The array API mirrors BinaryLinearCode: `encode` takes 0/1 message bits of shape (k,)
@@ -145,16 +145,6 @@ class BCHCode(BlockCode):
         r = self.r
         return np.array([[(row >> (r - 1 - j)) & 1 for j in range(r)] for row in self._parity_rows], dtype=np.uint8)
 
-    @property
-    def G(self) -> np.ndarray:
-        """Systematic generator [I_k | P] (k x n)."""
-        return np.hstack([np.eye(self._k, dtype=np.uint8), self.P])
-
-    @property
-    def H(self) -> np.ndarray:
-        """Systematic parity-check matrix [P^T | I_r] (r x n)."""
-        return np.hstack([self.P.T, np.eye(self.r, dtype=np.uint8)])
-
     # ---- weight distribution --------------------------------------------------------------------
     @property
     def weight_distribution_available(self) -> bool:
@@ -230,7 +220,7 @@ class BCHCode(BlockCode):
     # ---- bit-array API ------------------------------------------------------------------------------
     def encode(self, messages: object) -> np.ndarray:
         """Codewords (message bits, then parity bits) for messages (k,) or (N, k)."""
-        m = _as_bit_rows(messages, self._k, "messages")
+        m = as_rows(messages, self._k, "messages")
         rows = np.zeros((m.shape[0], 8 * self.row_bytes), dtype=np.uint8)
         rows[:, : self._k] = m
         packed = np.packbits(rows, axis=1)
@@ -240,7 +230,7 @@ class BCHCode(BlockCode):
 
     def decode(self, received: object) -> tuple[np.ndarray, np.ndarray]:
         """(message bits, status) for received words (n,) or (N, n)."""
-        c = _as_bit_rows(received, self._n, "received words")
+        c = as_rows(received, self._n, "received words")
         padded = np.zeros((c.shape[0], 8 * self.row_bytes), dtype=np.uint8)
         padded[:, : self._n] = c
         packed = np.packbits(padded, axis=1)
@@ -252,7 +242,7 @@ class BCHCode(BlockCode):
 
     def syndromes(self, received: object) -> np.ndarray:
         """Power-sum syndromes S_j = r(alpha^j), j = 1 .. 2t, as field elements (N, 2t)."""
-        c = _as_bit_rows(received, self._n, "received words").astype(np.int64)
+        c = as_rows(received, self._n, "received words").astype(np.int64)
         gf = self.field
         degrees = np.arange(self._n - 1, -1, -1)
         out = np.zeros((c.shape[0], 2 * self._t), dtype=np.int64)
@@ -263,15 +253,6 @@ class BCHCode(BlockCode):
 
     def __repr__(self) -> str:
         return f"<BCHCode {self.name} m={self.m} t={self._t}>"
-
-
-def _as_bit_rows(values: object, width: int, what: str) -> np.ndarray:
-    a = np.atleast_2d(np.asarray(values))
-    if a.ndim != 2 or a.shape[1] != width:
-        raise ValueError(f"{what} must have shape ({width},) or (N, {width}), got {np.shape(values)}")
-    if not np.isin(a, (0, 1)).all():
-        raise ValueError(f"{what} must hold only 0 and 1")
-    return a.astype(np.uint8)
 
 
 def bch(n: int, k: int) -> BCHCode:

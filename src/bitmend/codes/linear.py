@@ -19,7 +19,7 @@ from math import comb
 import numpy as np
 
 from bitmend.analysis.weights import WeightDistribution, weight_distribution
-from bitmend.codes.base import BlockCode
+from bitmend.codes.base import SystematicBinaryCode, as_rows
 from bitmend.kernels.gf2 import as_bit_matrix, row_reduce
 
 MAX_MESSAGE_BITS = 64  # k: a message is one uint64 in the kernels
@@ -36,7 +36,7 @@ def _bits_to_int(bits: np.ndarray) -> int:
     return int("".join("1" if b else "0" for b in bits) or "0", 2)
 
 
-class BinaryLinearCode(BlockCode):
+class BinaryLinearCode(SystematicBinaryCode):
     """An (n, k) binary linear block code in systematic form.
 
     Build with from_generator(G) or from_parity_check(H). If the information set is not
@@ -95,16 +95,6 @@ class BinaryLinearCode(BlockCode):
     def P(self) -> np.ndarray:
         """Parity part (k x r) of the systematic generator."""
         return self._P.copy()
-
-    @property
-    def G(self) -> np.ndarray:
-        """Systematic generator [I_k | P] (k x n)."""
-        return np.hstack([np.eye(self._k, dtype=np.uint8), self._P])
-
-    @property
-    def H(self) -> np.ndarray:
-        """Systematic parity-check matrix [P^T | I_r] (r x n); G H^T = 0."""
-        return np.hstack([self._P.T, np.eye(self.r, dtype=np.uint8)])
 
     # ---- distance properties ----------------------------------------------------------
     @cached_property
@@ -212,7 +202,7 @@ class BinaryLinearCode(BlockCode):
     # ---- bit-array API: a single vector or an (N, n) matrix --------------------------------
     def encode(self, messages: object) -> np.ndarray:
         """c = m G for m of shape (k,) or (N, k); returns 0/1 uint8 of shape (n,) or (N, n)."""
-        m = self._as_rows(messages, self._k, "messages")
+        m = as_rows(messages, self._k, "messages")
         ints = _rows_to_ints(m)
         parity = self.parity_of(ints)
         out = np.hstack([m, _ints_to_rows(parity, self.r)])
@@ -221,7 +211,7 @@ class BinaryLinearCode(BlockCode):
     def decode(self, received: object) -> tuple[np.ndarray, np.ndarray]:
         """Bounded-distance decode of (n,) or (N, n) words: (messages, status) with status
         0 clean, w corrected bits, FAILED (255) for a detected uncorrectable block."""
-        c = self._as_rows(received, self._n, "received words")
+        c = as_rows(received, self._n, "received words")
         msgs = _rows_to_ints(c[:, : self._k])
         pars = _rows_to_ints(c[:, self._k:])
         status = self.correct(msgs, pars)
@@ -232,17 +222,8 @@ class BinaryLinearCode(BlockCode):
 
     def syndromes(self, received: object) -> np.ndarray:
         """s = c H^T as r-bit integers, for (n,) or (N, n) words."""
-        c = self._as_rows(received, self._n, "received words")
+        c = as_rows(received, self._n, "received words")
         return _rows_to_ints(c[:, self._k:]) ^ self.parity_of(_rows_to_ints(c[:, : self._k]))
-
-    @staticmethod
-    def _as_rows(values: object, width: int, what: str) -> np.ndarray:
-        a = np.atleast_2d(np.asarray(values))
-        if a.ndim != 2 or a.shape[1] != width:
-            raise ValueError(f"{what} must have shape ({width},) or (N, {width}), got {np.shape(values)}")
-        if not np.isin(a, (0, 1)).all():
-            raise ValueError(f"{what} must hold only 0 and 1")
-        return a.astype(np.uint8)
 
     def __repr__(self) -> str:
         return f"<{type(self).__name__} {self.name} n={self.n} k={self.k}>"

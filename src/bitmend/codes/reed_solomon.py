@@ -28,7 +28,7 @@ import numpy as np
 from bitmend.analysis.weights import WeightDistribution
 from bitmend.kernels import cyclic_small
 from bitmend.kernels.gf2m import GF2m, field, rs_generator, symbol_register_table
-from bitmend.codes.base import BlockCode
+from bitmend.codes.base import BlockCode, as_rows
 from bitmend.kernels.loader import compiled_cyclic
 
 FAILED = 255
@@ -158,13 +158,13 @@ class ReedSolomonCode(BlockCode):
 
     # ---- symbol-array API -------------------------------------------------------------------------
     def encode(self, messages: object) -> np.ndarray:
-        m = _as_symbol_rows(messages, self._k, "messages")
+        m = as_rows(messages, self._k, "messages", symbol_bits=8)
         out = self.encode_rows(m)
         return out[0] if np.ndim(messages) == 1 else out
 
     def decode(self, received: object, erasures: object = None) -> tuple[np.ndarray, np.ndarray]:
         """(message symbols, status). erasures: 0/1 or bool of the received shape, or None."""
-        c = _as_symbol_rows(received, self._n, "received words").copy()
+        c = as_rows(received, self._n, "received words", symbol_bits=8).copy()
         marks = None
         if erasures is not None:
             marks = np.atleast_2d(np.asarray(erasures)).astype(np.uint8)
@@ -178,7 +178,7 @@ class ReedSolomonCode(BlockCode):
 
     def syndromes(self, received: object) -> np.ndarray:
         """S_j = r(alpha^j), j = c .. c + n - k - 1, as field elements (N, n - k)."""
-        c = _as_symbol_rows(received, self._n, "received words")
+        c = as_rows(received, self._n, "received words", symbol_bits=8)
         gf = self.field
         out = np.zeros((c.shape[0], self.r), dtype=np.int64)
         for idx in range(self.r):
@@ -191,15 +191,6 @@ class ReedSolomonCode(BlockCode):
 
     def __repr__(self) -> str:
         return f"<ReedSolomonCode {self.name} t={self.t}>"
-
-
-def _as_symbol_rows(values: object, width: int, what: str) -> np.ndarray:
-    a = np.atleast_2d(np.asarray(values))
-    if a.ndim != 2 or a.shape[1] != width:
-        raise ValueError(f"{what} must have shape ({width},) or (N, {width}), got {np.shape(values)}")
-    if a.size and (a.min() < 0 or a.max() > 255):
-        raise ValueError(f"{what} must hold symbols 0..255")
-    return np.ascontiguousarray(a, dtype=np.uint8)
 
 
 def reed_solomon(n: int, k: int) -> ReedSolomonCode:

@@ -287,10 +287,11 @@ class FrameScanner:
             from_copy = False
             inferred: DecodedFrame | None = None
             if header is None and locked is not None and not locked.last:
-                header = self._predicted_header(candidate, locked.next())
+                expected = locked.next()
+                header = self._predicted_header(candidate, expected)
                 from_copy = header is not None
                 if header is None:
-                    inferred = self._inferred_frame(candidate, locked.next())
+                    inferred = self._inferred_frame(candidate, expected)
                     if inferred is not None:
                         header, from_copy = inferred.header, True
             if header is None:
