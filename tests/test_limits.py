@@ -189,3 +189,39 @@ def test_block_error_of_zero_or_one_has_no_distance():
     assert limits.distance_to_limit(7, 4, 1e-3, 1.0) is None
     with pytest.raises(ValueError):
         limits.distance_to_limit(7, 4, 0.6, 0.1)
+
+
+# ---- codes show --at ---------------------------------------------------------------------------------
+
+def test_codes_show_at_gives_the_distance_to_the_limit_in_json_and_text():
+    import json
+
+    from conftest import run_cli
+
+    run = run_cli("codes", "show", "golay-23-12", "--at", "1e-2", "--json")
+    assert run.code == 0, run.err
+    limit = json.loads(run.out)["limit"]
+    assert limit["block_error"] == pytest.approx(theory.bsc_block_error(23, 3, 1e-2), rel=1e-12)
+    assert limit["capacity"] == pytest.approx(limits.capacity(1e-2))
+    assert limit["rate_converse"] == pytest.approx(12 / 23, rel=1e-9)  # perfect: meets the converse
+    assert limit["p_converse"] == pytest.approx(1e-2, rel=1e-6)
+    assert "Polyanskiy" in limit["formulas"]["source"]
+    text = run_cli("codes", "show", "bch-255-223", "--at", "1e-3").out.decode()
+    assert "distance to the limit on a BSC with p = 0.001" in text and "normal approximation" in text
+    assert "converse" in text and "RCU" in text
+
+
+def test_codes_show_at_a_symbol_code_counts_in_bits():
+    from bitmend.properties import code_profile
+
+    profile = code_profile("rs-255-223", at=1e-3)
+    assert (profile.limit.n, profile.limit.k) == (2040, 1784)
+    assert profile.limit.block_error == pytest.approx(theory.bsc_symbol_block_error(255, 16, 1e-3), rel=1e-12)
+
+
+@pytest.mark.parametrize("value", ["0.7", "0", "-1e-3"])
+def test_codes_show_at_outside_zero_to_one_half_is_a_usage_error(value):
+    from conftest import run_cli
+
+    run = run_cli("codes", "show", "hamming-7-4", f"--at={value}")
+    assert run.code == 2 and len(run.err_lines) == 1 and "--at" in run.err

@@ -1,7 +1,13 @@
 """The bitmend command line: parse, call the library, print, set the exit code.
 
 Exit codes: 0 every byte recovered and CRC-verified; 1 finished but data damaged or lost;
-2 usage error; 3 nothing decodable (not a container) or an I/O failure.
+2 usage error (also: two outputs naming the same file); 3 nothing decodable (not a container)
+or an I/O failure (a closed stdin or stdout, a full device, an output that is a directory);
+141 (128 + SIGPIPE) the reader of the output went away (`| head`): the run stops at once,
+silently for stdout, with one line for a named FIFO; 130, 143, 129 (128 + the signal's number)
+stopped by SIGINT, SIGTERM or SIGHUP. A run that stops early removes its temp files, and
+its --report or --ledger file still ends with its summary, marked "stopped".
+Where and how outputs are written: bitmend.outputs.
 """
 
 from __future__ import annotations
@@ -10,22 +16,30 @@ import io
 import json
 import os
 import sys
-import tempfile
 from contextlib import contextmanager
-from pathlib import Path
-from typing import BinaryIO, Iterator, Optional
+from typing import BinaryIO, Callable, Iterator, Optional
 
 import typer
 
+from bitmend import outputs
 from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH, MAX_DEPTH
 from bitmend.container.format import DEFAULT_FRAME_BYTES
 
 EXIT_OK, EXIT_DAMAGED, EXIT_USAGE, EXIT_UNREADABLE = 0, 1, 2, 3
+EXIT_BROKEN_PIPE = outputs.EXIT_BROKEN_PIPE  # 141
 COPY_CHUNK = 1 << 20
+
+EXIT_CODES_HELP = ("Exit codes: 0 all data verified; 1 finished, some data damaged or lost; 2 usage error; "
+                   "3 not a container, or an I/O failure; 141 the reader of the output went away; "
+                   "130/143/129 stopped by SIGINT/SIGTERM/SIGHUP (temp files removed, report and ledger "
+                   "end with their summary). -o writes a regular file through a temp file renamed at the "
+                   "end (mode kept, umask honoured); devices, FIFOs and /dev/stdout directly; symlinks "
+                   "are followed.")
 
 app = typer.Typer(add_completion=False, no_args_is_help=True, pretty_exceptions_enable=False,
                   help="Forward error correction for byte streams: wrap data in a block code, "
-                       "recover it after damage, and report exactly what was corrected and what was not.")
+                       "recover it after damage, and report exactly what was corrected and what was not.",
+                  epilog=EXIT_CODES_HELP)
 codes_app = typer.Typer(invoke_without_command=True, add_completion=False,
                         help="List the code catalog, or show one code in detail.")
 app.add_typer(codes_app, name="codes")
@@ -56,7 +70,20 @@ def _errors() -> Iterator[None]:
 
     try:
         yield
+        outputs.raise_pending_signal()  # a signal held while the outputs were committed
     except CliError as exc:
+        _fail(str(exc), exc.exit_code)
+    except outputs.OutputConflict as exc:
+        _fail(str(exc), EXIT_USAGE)
+    except outputs.BrokenOutput as exc:
+        # the reader went away (e.g. `| head`): stop now, no traceback, a status that says so
+        if exc.to_stdout:
+            outputs.silence_stdout()
+            raise typer.Exit(EXIT_BROKEN_PIPE)
+        _fail(str(exc), EXIT_BROKEN_PIPE)
+    except outputs.OutputError as exc:
+        _fail(str(exc), EXIT_UNREADABLE)
+    except outputs.Stopped as exc:
         _fail(str(exc), exc.exit_code)
     except UnknownCodeError as exc:
         _fail(str(exc), EXIT_USAGE)
@@ -71,11 +98,9 @@ def _errors() -> Iterator[None]:
     except DamagedDataError as exc:
         _fail(f"stopped: {exc}", EXIT_DAMAGED)
     except BrokenPipeError:
-        # the reader went away (e.g. `| head`): quiet exit, as shell tools do
-        try:
-            sys.stdout = open(os.devnull, "w")
-        finally:
-            raise typer.Exit(EXIT_OK)
+        # printed text (typer.echo) whose reader went away: as above
+        outputs.silence_stdout()
+        raise typer.Exit(EXIT_BROKEN_PIPE)
     except OSError as exc:
         name = f" {exc.filename}" if getattr(exc, "filename", None) else ""
         _fail(f"I/O error{name}: {exc.strerror or exc}", EXIT_UNREADABLE)
@@ -88,6 +113,9 @@ def _errors() -> Iterator[None]:
 @contextmanager
 def _open_input(path: str) -> Iterator[BinaryIO]:
     if path == "-":
+        if sys.stdin is None:  # started with stdin closed (`<&-`)
+            raise CliError("cannot read stdin: standard input is closed (name a file, or give data "
+                           "on stdin)", EXIT_UNREADABLE)
         yield sys.stdin.buffer
         return
     try:
@@ -98,40 +126,85 @@ def _open_input(path: str) -> Iterator[BinaryIO]:
         yield f
 
 
+def _open_output(path: Optional[str]):
+    """stdout, or the -o target by the rules of `bitmend.outputs`: a regular file through a temp
+    file renamed into place only on success (a failed or stopped run never leaves a half file
+    that looks whole, nor a temp file), anything else written directly."""
+    return outputs.writing(path)
+
+
 @contextmanager
-def _open_output(path: Optional[str]) -> Iterator[BinaryIO]:
-    """stdout, or a temporary file beside path renamed into place only on success, so a
-    failed run never leaves a half-written file that looks whole."""
-    if path is None or path == "-":
-        yield sys.stdout.buffer
-        sys.stdout.buffer.flush()
-        return
-    target = Path(path)
-    directory = target.parent if str(target.parent) else Path(".")
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=directory)
-    except OSError as exc:
-        raise CliError(f"cannot write {path}: {exc.strerror}", EXIT_UNREADABLE) from None
-    ok = False
-    try:
-        with os.fdopen(fd, "wb") as f:
-            yield f
-        ok = True
-    finally:
-        if ok:
-            os.replace(tmp, target)
-        else:
-            os.unlink(tmp)
-
-
-def _open_side_file(path: Optional[str], what: str):
-    """A text file for a report or ledger beside the main output (None if not asked for)."""
+def _open_side_file(path: Optional[str], what: str,
+                    last_line: Callable[[Optional[BaseException]], Optional[str]]) -> Iterator[Optional[outputs.Output]]:
+    """A report or ledger file (None if not asked for), written like -o. When the run ends,
+    normally or by an exception (a signal, a broken pipe, an error), last_line(exception or
+    None) gives its summary line: written and the file kept; None: the file is dropped."""
     if not path:
-        return None
+        yield None
+        return
+    side = outputs.open_output(path, f"{what} {path}")
+    failure: Optional[BaseException] = None
     try:
-        return open(path, "w", encoding="utf-8")
-    except OSError as exc:
-        raise CliError(f"cannot write {what} {path}: {exc.strerror}", EXIT_UNREADABLE) from None
+        yield side
+    except BaseException as exc:
+        failure = exc
+        raise
+    finally:
+        with outputs.deferred_signals():  # a signal now must not cut the summary in half
+            line = last_line(failure)
+            if line is None:
+                side.discard()
+            else:
+                try:
+                    side.write_text(line + "\n")
+                    side.commit()
+                except BaseException:
+                    side.discard()
+                    if failure is None:
+                        raise
+                    # else keep what can be kept: the error on its way up is the one to report
+
+
+def _stop_reason(exc: Optional[BaseException]) -> Optional[str]:
+    """Why a run ended early, for the "stopped" field of a report or ledger; None if it did not."""
+    if isinstance(exc, outputs.Stopped):
+        return exc.name
+    if isinstance(exc, KeyboardInterrupt):
+        return "SIGINT"
+    if isinstance(exc, outputs.BrokenOutput):
+        return "broken pipe"
+    if isinstance(exc, outputs.OutputError):
+        return "write error"
+    return None
+
+
+def _report_end(decoder, out: Optional[outputs.Output], failure: Optional[BaseException]) -> Optional[str]:
+    """The summary line that ends a decode report; a run stopped early says why, how many bytes
+    reached the output (0 for an -o file, whose temp file is removed) and is not complete."""
+    if decoder is None:
+        return None  # nothing was read: no report
+    reason = _stop_reason(failure)
+    if reason is None:
+        return decoder.summary.to_json()
+    summary = json.loads(decoder.summary.to_json())
+    delivered = 0 if out is None or out.replaces_file else out.bytes_written
+    summary.update(complete=False, stopped=reason, bytes_written=delivered)
+    return json.dumps(summary, separators=(",", ":"))
+
+
+def _ledger_end(chain, failure: Optional[BaseException]) -> Optional[str]:
+    """The ledger of an inject run: what the chain did, also when the run was stopped early
+    (marked "stopped"); None (no ledger file) when it failed for another reason."""
+    if chain is None:
+        return None
+    if failure is None:
+        return chain.ledger().to_json()
+    reason = _stop_reason(failure)
+    if reason is None:
+        return None
+    record = chain.ledger().to_dict()
+    record["stopped"] = reason
+    return json.dumps(record, indent=2)
 
 
 def _input_size(stream: BinaryIO) -> int | None:
@@ -217,15 +290,21 @@ def _load_code(name: Optional[str], code_file: Optional[str]):
 @codes_app.command("show")
 def codes_show(name: Optional[str] = typer.Argument(None, help="Catalog name, e.g. hamming-7-4."),
                code_file: Optional[str] = typer.Option(None, "--code-file", help=CODE_FILE_HELP),
-               as_json: bool = typer.Option(False, "--json", help="Machine-readable output.")) -> None:
+               as_json: bool = typer.Option(False, "--json", help="Machine-readable output."),
+               at: Optional[float] = typer.Option(None, "--at", help="Bit flip probability P of a BSC: add the "
+                                                  "code's distance to the limit there (the best code of its "
+                                                  "length at its block error).")) -> None:
     """Properties, systematic matrices, bounds, weight distribution and error probabilities
-    on a binary symmetric channel of one code."""
+    on a binary symmetric channel of one code; with --at P, how far it is from the best
+    possible code of its length."""
     from bitmend.properties import code_profile
 
     with _errors():
         if not name and not code_file:
             raise CliError("name a catalog code (see `bitmend codes`) or give --code-file", EXIT_USAGE)
-        profile = code_profile(_load_code(name, code_file))
+        if at is not None and not 0.0 < at < 0.5:
+            raise CliError(f"--at must be a bit flip probability between 0 and 0.5, got {at:g}", EXIT_USAGE)
+        profile = code_profile(_load_code(name, code_file), at=at)
         if as_json:
             typer.echo(json.dumps(profile.to_dict(), indent=2))
             return
@@ -287,31 +366,22 @@ def decode(
     with _errors():
         if on_error not in ON_ERROR_CHOICES:
             raise CliError(f"--on-error must be one of {', '.join(ON_ERROR_CHOICES)}, got {on_error!r}", EXIT_USAGE)
-        report_file = _open_side_file(report, "report")
-        on_frame = (lambda r: report_file.write(r.to_json() + "\n")) if report_file else None
-        decoder = None
+        outputs.check_distinct({"-o": output or "-", "--report": report})
+        decoder = out = None
         stopped: DamagedDataError | None = None
-        try:
-            with _open_input(source) as inp:
-                decoder = Decoder(inp, on_error, keep_frame_reports=False, on_frame=on_frame)
+        with _open_input(source) as inp, \
+                _open_side_file(report, "report", lambda failure: _report_end(decoder, out, failure)) as report_file, \
+                _open_output(output) as out:
+            on_frame = (lambda r: report_file.write_text(r.to_json() + "\n")) if report_file else None
+            decoder = Decoder(inp, on_error, keep_frame_reports=False, on_frame=on_frame)
+            with _progress("decoding", _input_size(inp), not quiet) as tick:
                 try:
-                    with _open_output(output) as out, _progress("decoding", _input_size(inp), not quiet) as tick:
-                        try:
-                            while block := decoder.read1(COPY_CHUNK):
-                                out.write(block)
-                                tick(decoder.bytes_read)
-                        except DamagedDataError as exc:
-                            stopped = exc  # --on-error fail: keep the verified part written so far
-                except Exception:
-                    if report_file and decoder is not None:
-                        report_file.write(decoder.summary.to_json() + "\n")
-                    raise
-            summary = decoder.summary
-            if report_file:
-                report_file.write(summary.to_json() + "\n")
-        finally:
-            if report_file:
-                report_file.close()
+                    while block := decoder.read1(COPY_CHUNK):
+                        out.write(block)
+                        tick(decoder.bytes_read)
+                except DamagedDataError as exc:
+                    stopped = exc  # --on-error fail: keep the verified part written so far
+        summary = decoder.summary
         if not quiet:
             typer.echo(summary.one_line(), err=True)
             for note in summary.notes:
@@ -388,24 +458,18 @@ def inject(
 ) -> None:
     """Damage any byte stream on purpose, reproducibly (a streaming filter for fault tests)."""
     from bitmend.channel.spec import parse_channels
-    from bitmend.inject import inject as run_inject
+    from bitmend.inject import make_chain, run_chain
 
     with _errors():
         parse_channels(channel)  # a bad SPEC fails before any output is made
-        ledger_file = _open_side_file(ledger, "ledger")
-        done = False
-        try:
-            with _open_input(source) as inp, _open_output(output) as out:
-                with _progress("injecting", _input_size(inp), not quiet) as tick:
-                    record = run_inject(inp, out, channel, seed, progress=tick)
-            if ledger_file:
-                ledger_file.write(record.to_json() + "\n")
-            done = True
-        finally:
-            if ledger_file:
-                ledger_file.close()
-                if not done:
-                    os.unlink(ledger)
+        outputs.check_distinct({"-o": output or "-", "--ledger": ledger})
+        chain = None
+        with _open_input(source) as inp, \
+                _open_side_file(ledger, "ledger", lambda failure: _ledger_end(chain, failure)), \
+                _open_output(output) as out:
+            chain = make_chain(channel, seed)
+            with _progress("injecting", _input_size(inp), not quiet) as tick:
+                record = run_chain(chain, inp, out, progress=tick)
         if not quiet:
             typer.echo(f"bitmend inject: seed {record.seed}: {record.one_line()}", err=True)
 
@@ -553,10 +617,38 @@ def _command_path(ctx) -> str:
     return " ".join(["bitmend", *reversed(names)])
 
 
+def _flush_stdout() -> None:
+    """Flush printed text now, so that a reader that went away is seen here, not in Python's
+    flush at exit (which would print a traceback-like warning)."""
+    if sys.stdout is None:
+        return
+    try:
+        sys.stdout.flush()
+    except OSError as exc:
+        outputs.silence_stdout()
+        if isinstance(exc, BrokenPipeError):
+            raise outputs.BrokenOutput("stdout: the reader went away (broken pipe)", True) from None
+        raise outputs.OutputError(f"cannot write stdout: {exc.strerror or exc}") from None
+
+
 def main() -> None:
-    """Console entry point: usage errors become one line and exit 2; never a traceback."""
+    """Console entry point: usage errors become one line and exit 2; never a traceback.
+    SIGINT, SIGTERM and SIGHUP stop a run cleanly (exit 128 + the signal's number)."""
+    outputs.install_signal_handlers()
     try:
         code = app(standalone_mode=False)
+        outputs.raise_pending_signal()
+        _flush_stdout()
+    except outputs.Stopped as exc:  # a signal outside a command's own error handling
+        outputs.remove_temp_files()
+        typer.echo(f"bitmend: {exc}", err=True)
+        code = exc.exit_code
+    except outputs.BrokenOutput:
+        outputs.silence_stdout()
+        code = EXIT_BROKEN_PIPE
+    except outputs.OutputError as exc:
+        typer.echo(f"bitmend: {exc}", err=True)
+        code = EXIT_UNREADABLE
     except Exception as exc:
         # typer raises its own (or click's) UsageError, whose exit_code is 2; match by shape
         # so that either packaging of click works

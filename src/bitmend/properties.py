@@ -12,7 +12,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from bitmend.analysis import theory
+from bitmend.analysis import limits, theory
 from bitmend.analysis.bounds import CodeBounds, code_bounds
 from bitmend.codes.catalog import code_names, entry, get_code
 
@@ -62,6 +62,8 @@ class CodeProfile:
     bounds: CodeBounds
     bsc: tuple[BscPoint, ...]
     weights: tuple[int, ...] | None
+    limit: limits.DistanceToLimit | None = None  # at the p of `codes show --at`
+    at: float | None = None
 
     @property
     def name(self) -> str:
@@ -123,11 +125,44 @@ class CodeProfile:
             out["weight_distribution_note"] = self.weight_method_text
         if self.column_order:
             out["column_order"] = list(self.column_order)
+        if self.at is not None:
+            out["limit"] = None if self.limit is None else {**self.limit.to_dict(), "formulas": LIMIT_FORMULAS}
         return out
 
 
-def code_profile(code, grid: tuple[float, ...] = BSC_GRID) -> CodeProfile:
-    """The profile of a catalog code (by name or object) or a custom code."""
+LIMIT_FORMULAS = {
+    "capacity": "C = 1 - h2(p)",
+    "dispersion": "V = p (1-p) log2^2((1-p)/p)",
+    "normal_approximation": "log2 M* ~ n C - sqrt(n V) Q^-1(eps) + (1/2) log2 n",
+    "achievability": "RCU: eps <= sum_t C(n,t) p^t (1-p)^(n-t) min(1, (M-1) sum_{s<=t} C(n,s) 2^-n)",
+    "converse": "M <= 1 / beta_{1-eps}: Neyman-Pearson test of the channel's output against the uniform one",
+    "source": "Polyanskiy, Poor and Verdu, Channel coding rate in the finite blocklength regime, "
+              "IEEE Trans. Inf. Theory 56(5), 2010",
+}
+
+
+def own_block_error(code, p: float) -> float:
+    """The code's block error at bit flip probability p under bounded-distance decoding, as
+    bitmend decodes it: more than t of n bits wrong, or, for a code over s-bit symbols, more
+    than t of n symbols (a symbol wrong with 1 - (1-p)^s)."""
+    symbol_bits = getattr(code, "symbol_bits", 1)
+    if symbol_bits == 1:
+        return theory.bsc_block_error(code.n, code.t, p)
+    return theory.bsc_symbol_block_error(code.n, code.t, p, symbol_bits)
+
+
+def code_limit(code, p: float) -> limits.DistanceToLimit | None:
+    """The code against the best code of its length (in bits) on a BSC at its own block error
+    at p; None where that block error is 0 or (nearly) 1."""
+    symbol_bits = getattr(code, "symbol_bits", 1)
+    return limits.distance_to_limit(code.n * symbol_bits, code.k * symbol_bits, p, own_block_error(code, p))
+
+
+def code_profile(code, grid: tuple[float, ...] = BSC_GRID, at: float | None = None) -> CodeProfile:
+    """The profile of a catalog code (by name or object) or a custom code; with `at`, its
+    distance to the limit on a BSC with that bit flip probability."""
+    if at is not None and not 0.0 < at < 0.5:
+        raise ValueError(f"--at must be a bit flip probability between 0 and 1/2, got {at:g}")
     if isinstance(code, str):
         code = get_code(code)
     catalog = _is_catalog(code)
@@ -154,7 +189,8 @@ def code_profile(code, grid: tuple[float, ...] = BSC_GRID) -> CodeProfile:
                 # for a perfect code (which detects nothing), so rounding residue shows as 0
                 detected = outcome.detected if outcome.detected > 1e-9 * outcome.block_error else 0.0
             points.append(BscPoint(p, undetected, block, miscorrected, detected))
-    return CodeProfile(code, catalog, use, d, d_exact, bounds, tuple(points), weights)
+    limit = code_limit(code, at) if at is not None else None
+    return CodeProfile(code, catalog, use, d, d_exact, bounds, tuple(points), weights, limit, at)
 
 
 MATRIX_PRINT_LIMIT = 80 * 72  # entries; larger matrices go to --json only
@@ -210,4 +246,52 @@ def _render(profile: CodeProfile) -> list[str]:
         lines.append(f"  * the code used to detect only: {UNDETECTED_FORMULA}")
         lines.append(f"  correcting up to t = {code.t}: {BLOCK_ERROR_FORMULA}, split into miscorrected "
                      "(a wrong codeword, left for the frame CRC) and detected (flagged)")
+    if profile.at is not None:
+        lines += _render_limit(profile)
+    return lines
+
+
+def _p(value: float | None) -> str:
+    return "-" if value is None else f"{value:.4g}"
+
+
+def _render_limit(profile: CodeProfile) -> list[str]:
+    """The distance-to-the-limit section of `codes show --at P`."""
+    code, g, p = profile.code, profile.limit, profile.at
+    unit = "" if profile.symbol_bits == 1 else f" ({code.n} x {profile.symbol_bits})"
+    head = [f"distance to the limit on a BSC with p = {p:g} (Polyanskiy, Poor and Verdu, IEEE Trans. IT 56(5), "
+            f"2010), counted in bits: n = {code.n * profile.symbol_bits}{unit}, k = {code.k * profile.symbol_bits}, "
+            f"rate {code.k / code.n:.4f}"]
+    own = own_block_error(code, p)
+    if g is None:
+        return head + [f"  this code's block error at p is {own:.3g}: nothing to compare (it never or always fails)"]
+    lines = head + [
+        f"  this code's block error at p (bounded-distance decoding, t = {code.t}): eps = {g.block_error:.3e}",
+        f"  capacity C = 1 - h2(p) = {g.capacity:.4f} bits per channel bit; dispersion V = p(1-p) log2^2((1-p)/p) "
+        f"= {g.dispersion:.4f}",
+        f"  best rate of any code of length {g.n} at block error eps:",
+        f"    normal approximation (nC - sqrt(nV) Q^-1(eps) + 1/2 log2 n) / n = {g.rate_normal:.4f}"]
+    if g.exact:
+        lines.append(f"    exact bounds: at least {g.rate_achievable:.4f} (RCU: some code does this well), at most "
+                     f"{g.rate_converse:.4f} (binomial converse: no code does better)")
+        most = 0.0 if abs(g.rate_gap_most) < 1e-9 else g.rate_gap_most
+        lines.append(f"  gap in rate to the best code of length {g.n}: at most {most:+.4f} "
+                     f"({most * g.n:.1f} of {g.n} bits, converse); {g.rate_gap:+.4f} by the normal "
+                     "approximation")
+    else:
+        lines.append(f"    (exact bounds skipped: n > {limits.EXACT_MAX_N})")
+        lines.append(f"  gap in rate to the best code of length {g.n}: {g.rate_gap:+.4f} by the normal approximation")
+    ratio = "" if g.p_normal is None else f", {g.p_normal / p:.3g} x this p"
+    line = f"  the best ({g.n}, {g.k}) code reaches eps at p = {_p(g.p_normal)} (normal approximation{ratio})"
+    if g.exact:
+        line += (f"; at most {_p(g.p_converse)} (converse), at least "
+                 + (f"{_p(g.p_achievable)} (RCU)" if g.p_achievable is not None else
+                    "- (random coding reaches eps at no p for this size)"))
+    lines.append(line)
+    if g.normal_within_bounds is False:
+        lines.append("  the normal approximation disagrees with the exact bounds here (short block, or a block "
+                     "error far in the tail: outside its regime): trust the bounds")
+    if g.exact and abs(g.rate_gap_most) < 1e-9:
+        lines.append("  this code meets the converse with equality: no code of its length and size has a lower "
+                     "block error (a perfect code)")
     return lines

@@ -277,10 +277,26 @@ class DistanceToLimit:
     def exact(self) -> bool:
         return self.rate_converse is not None
 
+    @property
+    def normal_within_bounds(self) -> bool | None:
+        """Whether the normal approximation agrees with the exact bounds (rate within half a
+        bit per block of them, p not beyond the converse nor below the RCU); None without
+        the bounds. Outside, the approximation is outside its regime (short block, tiny or
+        huge block error) and the bounds are the guide."""
+        if not self.exact:
+            return None
+        slack = 0.5 / self.n
+        rate_ok = self.rate_achievable - slack <= self.rate_normal <= self.rate_converse + slack
+        p_ok = self.p_normal is not None and self.p_converse is not None and \
+            self.p_normal <= self.p_converse * 1.01 and \
+            (self.p_achievable is None or self.p_normal >= self.p_achievable / 1.01)
+        return rate_ok and p_ok
+
     def to_dict(self) -> dict:
         out = asdict(self)
         out.update(rate=self.rate, rate_gap=self.rate_gap, rate_gap_most=self.rate_gap_most,
-                   bits_gap=self.rate_gap * self.n, p_ratio=None if self.p_normal is None else self.p_normal / self.p)
+                   bits_gap=self.rate_gap * self.n, normal_within_bounds=self.normal_within_bounds,
+                   p_ratio=None if self.p_normal is None else self.p_normal / self.p)
         return out
 
 
