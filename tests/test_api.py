@@ -142,11 +142,11 @@ def test_decode_bytes_of_garbage_raises_not_a_container():
 @given(chunks=st.lists(st.binary(max_size=90), max_size=12), frame_bytes=st.integers(1, 120))
 def test_writes_in_any_pieces_give_the_same_container_as_one_write(chunks, frame_bytes):
     sink = io.BytesIO()
-    with bitmend.open(sink, "wb", frame_bytes=frame_bytes) as f:
+    with bitmend.open(sink, "wb", frame_bytes=frame_bytes, stream_id=0x6A) as f:
         for c in chunks:
             f.write(c)
     whole = b"".join(chunks)
-    assert sink.getvalue() == bitmend.encode_bytes(whole, frame_bytes=frame_bytes)
+    assert sink.getvalue() == bitmend.encode_bytes(whole, frame_bytes=frame_bytes, stream_id=0x6A)
     assert len(frame_spans(sink.getvalue())) == max(1, -(-len(whole) // frame_bytes))
 
 

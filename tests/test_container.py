@@ -15,7 +15,7 @@ import bitmend
 from bitmend import DamagedDataError, NotAContainerError, decode_bytes, encode_bytes
 from bitmend.codes.catalog import code_id, get_code
 from bitmend.container import format as fmt
-from bitmend.interleave import layout
+from bitmend.interleave import encode_segment, layout
 from bitmend.report import CLEAN, CORRECTED, DAMAGED, LOST
 
 from conftest import (ALL_CODES, SECDED_CODES, check_report_lines, delete_bit, flip_run, frame_spans, insert_bit,
@@ -45,33 +45,69 @@ def test_crc32c_is_not_plain_crc32():
 
 @settings(max_examples=60, deadline=None)
 @given(code=st.sampled_from(ALL_CODES), depth=st.integers(1, 255), seq=st.integers(0, 2**32 - 1),
-       length=st.integers(0, fmt.MAX_PAYLOAD_BYTES), last=st.booleans())
-def test_header_round_trips_through_its_33_coded_bytes(code, depth, seq, length, last):
-    header = fmt.FrameHeader(code_id(code), depth, seq, length, last)
+       length=st.integers(0, fmt.MAX_PAYLOAD_BYTES), last=st.booleans(), stream_id=st.integers(0, 2**64 - 1),
+       position=st.integers(0, 2**48 - 1))
+def test_header_round_trips_through_its_60_coded_bytes(code, depth, seq, length, last, stream_id, position):
+    header = fmt.FrameHeader(code_id(code), depth, seq, length, last, stream_id=stream_id, position=position)
     coded = fmt.encode_header(header)
-    assert len(coded) == fmt.HEADER_BYTES == 33
+    assert len(coded) == fmt.HEADER_BYTES == 60  # 20 golay-24-12 codewords of the 30-byte record
+    assert fmt.decode_header(coded) == header
+
+
+@settings(max_examples=30, deadline=None)
+@given(code=st.sampled_from(ALL_CODES), depth=st.integers(1, 255), seq=st.integers(0, 2**32 - 1),
+       length=st.integers(0, fmt.MAX_PAYLOAD_BYTES), last=st.booleans())
+def test_version_1_header_still_round_trips_through_its_33_coded_bytes(code, depth, seq, length, last):
+    header = fmt.FrameHeader(code_id(code), depth, seq, length, last, version=1)
+    coded = fmt.encode_header(header)
+    assert len(coded) == 33 and header.header_bytes == 33
+    assert fmt.decode_header(coded + bytes(27)) == header  # read from a window sized for either version
     assert fmt.decode_header(coded) == header
 
 
 def test_header_record_layout_is_big_endian_with_crc():
-    header = fmt.FrameHeader(code_id("hamming-7-4"), 9, 0x01020304, 0x0A0B0C0D, last=True)
+    header = fmt.FrameHeader(code_id("hamming-7-4"), 9, 0x01020304, 0x0A0B0C0D, last=True,
+                             stream_id=0x1122334455667788, position=0xA1A2A3A4A5A6)
+    record = header.record()
+    assert len(record) == 30
+    assert record[:26] == bytes([2, 1, 2, 9, 0x11, 0x22, 0x33, 0x44, 0x55, 0x66, 0x77, 0x88, 1, 2, 3, 4,
+                                 0xA1, 0xA2, 0xA3, 0xA4, 0xA5, 0xA6, 0x0A, 0x0B, 0x0C, 0x0D])
+    assert struct.unpack(">I", record[26:])[0] == fmt.crc32c(record[:26])
+
+
+def test_version_1_record_layout_is_unchanged():
+    header = fmt.FrameHeader(code_id("hamming-7-4"), 9, 0x01020304, 0x0A0B0C0D, last=True, version=1)
     record = header.record()
     assert record[:12] == bytes([1, 1, 2, 9, 1, 2, 3, 4, 0x0A, 0x0B, 0x0C, 0x0D])
     assert struct.unpack(">I", record[12:])[0] == fmt.crc32c(record[:12])
 
 
-@pytest.mark.parametrize("start", [0, 7, 100, 264 - 33])
-def test_header_survives_any_33_bit_burst(start):
+def _coded_record(body: bytes, layout: fmt.HeaderLayout) -> bytes:
+    """A coded header holding any record body (its CRC-32C appended), for hostile values."""
+    return encode_segment(fmt.header_code(), layout.depth, body + struct.pack(">I", fmt.crc32c(body)))
+
+
+def test_a_newer_version_in_either_header_size_is_refused_by_name():
+    v2 = fmt.FrameHeader(11, 8, 0, 10).record()[:-4]
+    with pytest.raises(fmt.UnsupportedVersionError, match="version 3"):
+        fmt.decode_header(_coded_record(bytes([3]) + v2[1:], fmt.HEADER_LAYOUTS[2]))
+    v1 = fmt.FrameHeader(11, 8, 0, 10, version=1).record()[:-4]
+    with pytest.raises(fmt.UnsupportedVersionError, match="version 2"):
+        fmt.decode_header(_coded_record(bytes([2]) + v1[1:], fmt.HEADER_LAYOUTS[1]))
+
+
+@pytest.mark.parametrize("start", [0, 7, 100, 480 - 60])
+def test_header_survives_any_60_bit_burst(start):
     header = fmt.FrameHeader(code_id("golay-24-12"), 8, 77, 4096)
-    coded = flip_run(fmt.encode_header(header), start, 33)
+    coded = flip_run(fmt.encode_header(header), start, 60)
     assert fmt.decode_header(coded) == header
 
 
 def test_random_bytes_are_not_taken_for_a_header():
     rng = np.random.default_rng(0)
     for _ in range(200):
-        assert fmt.decode_header(rng.integers(0, 256, 33, dtype=np.uint8).tobytes()) is None
-    assert fmt.decode_header(bytes(33)) is None
+        assert fmt.decode_header(rng.integers(0, 256, 60, dtype=np.uint8).tobytes()) is None
+    assert fmt.decode_header(bytes(60)) is None
 
 
 @pytest.mark.parametrize("header, error, words", [
@@ -79,9 +115,12 @@ def test_random_bytes_are_not_taken_for_a_header():
     (fmt.FrameHeader(11, 8, 0, 2**32 - 1), fmt.HeaderError, "length"),
     (fmt.FrameHeader(11, 0, 0, 10), fmt.HeaderError, "depth"),
     (fmt.FrameHeader(99, 8, 0, 10), fmt.HeaderError, "code"),
-    (fmt.FrameHeader(11, 8, 0, 10, version=2), fmt.UnsupportedVersionError, "version"),
+    (fmt.FrameHeader(11, 8, 0, 10, version=1), None, None),
 ])
 def test_hostile_header_values_raise_a_clear_header_error(header, error, words):
+    if error is None:  # a version 1 header is not hostile: it is read as version 1
+        assert fmt.decode_header(fmt.encode_header(header)) == header
+        return
     with pytest.raises(error, match=words):
         fmt.decode_header(fmt.encode_header(header))
 
@@ -97,11 +136,11 @@ def test_frame_size_is_marker_two_headers_and_coded_payload():
     header = fmt.FrameHeader(code_id("hamming-15-11"), 5, 0, 100)
     groups = -(-8 * (100 + 4) // (5 * 11))
     assert header.coded_bytes == (groups * 5 * 15 + 7) // 8
-    assert header.frame_bytes == 8 + 33 + header.coded_bytes + 33
+    assert header.frame_bytes == 8 + 60 + header.coded_bytes + 60
     frame = fmt.encode_frame(header, random_bytes(100, 1))
     assert len(frame) == header.frame_bytes
     assert frame[:8] == fmt.MARKER_BYTES
-    assert frame[8:41] == frame[-33:] == fmt.encode_header(header)
+    assert frame[8:68] == frame[-60:] == fmt.encode_header(header)
 
 
 def test_frame_refuses_payload_of_the_wrong_length():
@@ -140,7 +179,7 @@ def test_empty_input_gives_one_closing_frame_that_decodes_to_nothing():
     blob = encode_bytes(b"")
     spans = frame_spans(blob)
     assert len(spans) == 1 and spans[0].length == 0
-    header = fmt.decode_header(blob[8:41])
+    header = fmt.decode_header(blob[8:68])
     assert header.last and header.seq == 0
     result = decode_bytes(blob)
     assert result.data == b""
@@ -251,11 +290,11 @@ def test_hit_leading_header_is_recovered_from_the_trailing_copy(wipe):
     blob = bytearray(encode_bytes(data, code="golay-24-12", depth=8, frame_bytes=128))
     target = frame_spans(bytes(blob))[3]
     if wipe == "zeros":
-        blob[target.header_start: target.payload_start] = bytes(33)
+        blob[target.header_start: target.payload_start] = bytes(fmt.HEADER_BYTES)
     elif wipe == "random":
-        blob[target.header_start: target.payload_start] = random_bytes(33, 9)
+        blob[target.header_start: target.payload_start] = random_bytes(fmt.HEADER_BYTES, 9)
     else:
-        blob[target.start: target.payload_start] = random_bytes(41, 9)
+        blob[target.start: target.payload_start] = random_bytes(8 + fmt.HEADER_BYTES, 9)
     result = decode_bytes(bytes(blob))
     assert result.data == data
     assert result.report.summary.complete
@@ -270,8 +309,8 @@ def test_frame_with_both_headers_wiped_is_recovered_by_its_place_in_the_stream(f
     data = random_bytes(1000, 1)
     blob = bytearray(encode_bytes(data, code="golay-24-12", depth=8, frame_bytes=128))
     target = frame_spans(bytes(blob))[index]
-    blob[target.start: target.payload_start] = bytes(41) if fill == "zeros" else random_bytes(41, index)
-    blob[target.copy_start: target.end] = bytes(33) if fill == "zeros" else random_bytes(33, index + 100)
+    blob[target.start: target.payload_start] = bytes(8 + fmt.HEADER_BYTES) if fill == "zeros" else random_bytes(8 + fmt.HEADER_BYTES, index)
+    blob[target.copy_start: target.end] = bytes(fmt.HEADER_BYTES) if fill == "zeros" else random_bytes(fmt.HEADER_BYTES, index + 100)
     result = decode_bytes(bytes(blob))
     assert result.data == data and result.report.summary.complete
     assert all(f.status == CLEAN for f in result.report.frames)
@@ -287,7 +326,7 @@ def test_frame_with_both_headers_and_its_payload_wiped_is_lost_alone(fill, index
     target = spans[index]
     size = target.copy_start - target.start  # marker, header and the whole coded payload
     blob[target.start: target.copy_start] = bytes(size) if fill == "zeros" else random_bytes(size, index)
-    blob[target.copy_start: target.end] = bytes(33) if fill == "zeros" else random_bytes(33, index + 100)
+    blob[target.copy_start: target.end] = bytes(fmt.HEADER_BYTES) if fill == "zeros" else random_bytes(fmt.HEADER_BYTES, index + 100)
     result = decode_bytes(bytes(blob))
     report = result.report
     assert [f.seq for f in report.frames] == list(range(len(spans)))
@@ -386,7 +425,7 @@ def test_truncated_stream_delivers_a_prefix_covering_every_complete_frame(cut):
     try:
         result = decode_bytes(blob[:cut])
     except NotAContainerError:
-        assert not whole and cut < 8 + 33  # not even the first header arrived
+        assert not whole and cut < 8 + fmt.HEADER_BYTES  # not even the first header arrived
         return
     assert data.startswith(result.data)
     assert len(result.data) >= sum(s.length for s in whole)

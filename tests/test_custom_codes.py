@@ -217,34 +217,60 @@ def test_custom_frames_record_k_and_n_minus_k_in_the_length_field():
     code = parse_code_definition("parity-check\n" + _rows(CATALOG_H74))
     header = fmt.FrameHeader.for_defined_code(code, 9, 5, 1000, last=True)
     record = header.record()
-    assert record[:4] == bytes([1, 1, 0, 9])
-    # (k - 1) << 26 | (r - 1) << 21 | length = 3 << 26 | 2 << 21 | 1000
-    assert int.from_bytes(record[8:12], "big") == (3 << 26) | (2 << 21) | 1000
+    assert record[:4] == bytes([2, 1, 0, 9])
+    # (k - 1) << 26 | (r - 1) << 21 | length = 3 << 26 | 2 << 21 | 1000, at bytes 22..25 in version 2
+    assert int.from_bytes(record[22:26], "big") == (3 << 26) | (2 << 21) | 1000
+    v1 = fmt.FrameHeader(fmt.CUSTOM_CODE_ID, 9, 5, 1000, True, 1, (4, 3)).record()
+    assert int.from_bytes(v1[8:12], "big") == (3 << 26) | (2 << 21) | 1000  # version 1: bytes 8..11
     decoded = fmt.decode_header(fmt.encode_header(header))
     assert decoded == header and decoded.shape == (4, 3) and decoded.defined_code is None
     assert decoded.frame_bytes == header.frame_bytes == len(fmt.encode_frame(header, bytes(1000)))
 
 
-def test_definition_block_survives_any_33_bit_burst_like_the_header(h74_file):
+@pytest.mark.parametrize("version, size", [(2, 60), (1, 33)])
+def test_definition_block_survives_any_burst_the_header_survives(h74_file, version, size):
+    # version 2: 20 golay-24-12 codewords, as the header (60-bit bursts); version 1: 11 (33 bits)
     code = bitmend.load_code_file(h74_file)
-    block = fmt.encode_definition(code)
-    assert len(block) == fmt.definition_coded_bytes(4, 3) == 33  # 11 golay-24-12 codewords, as the header
-    for start in range(0, 8 * len(block) - 33, 17):
-        assert np.array_equal(fmt.decode_definition(flip_run(block, start, 33), (4, 3)).P, code.P)
+    block = fmt.encode_definition(code, version)
+    assert len(block) == fmt.definition_coded_bytes(4, 3, version) == size
+    for start in range(0, 8 * len(block) - size, 17):
+        assert np.array_equal(fmt.decode_definition(flip_run(block, start, size), (4, 3), version).P, code.P)
 
 
 def test_hostile_custom_header_values_are_refused():
     too_wide = fmt.FrameHeader(fmt.CUSTOM_CODE_ID, 8, 0, 10, shape=(4, 3))
     record = bytearray(too_wide.record())
-    record[8:12] = ((3 << 26) | (25 << 21) | 10).to_bytes(4, "big")  # n - k = 26 > 20
-    record[12:] = fmt.crc32c(bytes(record[:12])).to_bytes(4, "big")
+    record[22:26] = ((3 << 26) | (25 << 21) | 10).to_bytes(4, "big")  # n - k = 26 > 20
+    record[26:] = fmt.crc32c(bytes(record[:26])).to_bytes(4, "big")
     coded = encode_segment(fmt.header_code(), fmt.HEADER_DEPTH, bytes(record))
     with pytest.raises(fmt.HeaderError, match="n - k"):
         fmt.decode_header(coded)
 
 
 def test_catalog_frames_are_byte_identical_to_the_format_documents_worked_examples():
-    # the two containers printed in docs/FORMAT.md ("Worked example"), format version 1
+    # the two containers printed in docs/FORMAT.md ("Worked example"), format version 2,
+    # written with the stream identity 0x09A7E5C0FFEE2026 given (it is random otherwise)
+    stream = 0x09A7E5C0FFEE2026
+    worked = bytes.fromhex(
+        "a4c95bdd8544ae531a0010a0000a00550007160050e004970012c0020c0061d002570021400e2700"
+        "65000bef006f400c5400c77009f9002e6005780009b00ad400edc00866f198f78a99bc66a8b0032f"
+        "0b007865e25663d9bc66a8b00323cb703294c9667a74cc019a655b5a401a0010a0000a0055000716"
+        "0050e004970012c0020c0061d002570021400e270065000bef006f400c5400c77009f9002e600578"
+        "0009b00ad400edc008")
+    empty = bytes.fromhex(
+        "a4c95bdd8544ae531a0010a0010a00150003160060e006970032c0030c0071d00257005140012700"
+        "250005ef001f40035400777002f9002e6001780029b007d4002dc007000000000000001a0010a001"
+        "0a00150003160060e006970032c0030c0071d00257005140012700250005ef001f40035400777002"
+        "f9002e6001780029b007d4002dc007")
+    assert bitmend.encode_bytes(b"gauge 7 stage 1.42m", code="hamming-7-4", depth=1, stream_id=stream) == worked
+    assert bitmend.encode_bytes(b"", code="hamming-7-4", depth=1, stream_id=stream) == empty
+    # a catalog code passed as an object is written by its catalog id, not defined in the frame
+    assert bitmend.encode_bytes(b"gauge 7 stage 1.42m", code=get_code("hamming-7-4"), depth=1,
+                                stream_id=stream) == worked
+
+
+def test_version_1_worked_examples_still_decode_to_their_payloads():
+    # the two version 1 containers docs/FORMAT.md printed before version 2 (kept there)
     worked = bytes.fromhex(
         "a4c95bdd8544ae5300a0140220000c00c0150e0000090400ea0882b82f0b405c0b8770de0a015052"
         "0066f198f78a99bc66a8b0032f0b007865e25663d9bc66a8b00323cb703294c9667a74cc019a655b"
@@ -252,10 +278,10 @@ def test_catalog_frames_are_byte_identical_to_the_format_documents_worked_exampl
     empty = bytes.fromhex(
         "a4c95bdd8544ae5300c01c0320100e00c02d0100000100006a0080b83703401c1383705e0600502a"
         "070000000000000000c01c0320100e00c02d0100000100006a0080b83703401c1383705e0600502a07")
-    assert bitmend.encode_bytes(b"gauge 7 stage 1.42m", code="hamming-7-4", depth=1) == worked
-    assert bitmend.encode_bytes(b"", code="hamming-7-4", depth=1) == empty
-    # a catalog code passed as an object is written by its catalog id, not defined in the frame
-    assert bitmend.encode_bytes(b"gauge 7 stage 1.42m", code=get_code("hamming-7-4"), depth=1) == worked
+    for blob, payload in ((worked, b"gauge 7 stage 1.42m"), (empty, b"")):
+        result = bitmend.decode_bytes(blob)
+        assert result.data == payload and result.report.complete
+        assert result.report.frames[0].stream is None  # version 1 frames name no stream
 
 
 def test_open_writes_and_reads_a_custom_code_stream(h74_file, tmp_path, gauge_log):

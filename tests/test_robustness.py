@@ -122,15 +122,19 @@ def test_random_inserted_or_deleted_bytes_cost_only_the_frames_they_touch(seed):
 
 # ---- hostile headers -------------------------------------------------------------------------
 
-def _hostile(version=1, flags=0, code_id=11, depth=8, seq=0, length=100) -> bytes:
-    """A marker and a header whose CRC checks but whose values are chosen by an attacker."""
+def _hostile(version=2, flags=0, code_id=11, depth=8, seq=0, length=100, layout=2) -> bytes:
+    """A marker and a header whose CRC checks but whose values are chosen by an attacker,
+    in the record layout of format version `layout` (2: 30 bytes, 1: 16 bytes)."""
     import struct
 
-    body = struct.pack(">BBBBII", version, flags, code_id, depth, seq, length)
+    if layout == 1:
+        body = struct.pack(">BBBBII", version, flags, code_id, depth, seq, length)
+    else:
+        body = struct.pack(">BBBBQI", version, flags, code_id, depth, 0x5EED, seq) + bytes(6) + struct.pack(">I", length)
     record = body + struct.pack(">I", fmt.crc32c(body))
     from bitmend.interleave import encode_segment
 
-    return fmt.MARKER_BYTES + encode_segment(fmt.header_code(), fmt.HEADER_DEPTH, record)
+    return fmt.MARKER_BYTES + encode_segment(fmt.header_code(), fmt.HEADER_LAYOUTS[layout].depth, record)
 
 
 @pytest.mark.parametrize("fields, words", [
@@ -140,8 +144,10 @@ def _hostile(version=1, flags=0, code_id=11, depth=8, seq=0, length=100) -> byte
     ({"depth": 0}, "depth 0"),
     ({"flags": 0x80}, "unknown flags"),
 ])
-def test_hostile_header_values_get_one_clear_error_line(fields, words):
-    run = run_cli("decode", stdin=_hostile(**fields) + bytes(200))
+@pytest.mark.parametrize("layout", [2, 1])
+def test_hostile_header_values_get_one_clear_error_line(fields, words, layout):
+    version = fields.get("version", layout)
+    run = run_cli("decode", stdin=_hostile(**{**fields, "version": version}, layout=layout) + bytes(200))
     assert run.code == 3
     assert len(run.err_lines) == 1 and words in run.err_lines[0], run.err
     assert "Traceback" not in run.err

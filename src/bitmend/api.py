@@ -46,10 +46,11 @@ class Encoder(io.BufferedIOBase):
     """Writable binary file object: bytes written are framed, coded and sent to fileobj."""
 
     def __init__(self, fileobj: BinaryIO, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
-                 frame_bytes: int = DEFAULT_FRAME_BYTES, close_fileobj: bool = False) -> None:
+                 frame_bytes: int = DEFAULT_FRAME_BYTES, close_fileobj: bool = False,
+                 stream_id: int | None = None) -> None:
         super().__init__()
         self._fileobj = fileobj
-        self._writer = FrameWriter(fileobj, code, depth, frame_bytes)
+        self._writer = FrameWriter(fileobj, code, depth, frame_bytes, stream_id)
         self._close_fileobj = close_fileobj
 
     def writable(self) -> bool:
@@ -64,6 +65,11 @@ class Encoder(io.BufferedIOBase):
         """Send buffered bytes as a frame now (use at packet boundaries)."""
         if not self.closed and not self._writer.closed:
             self._writer.flush()
+
+    @property
+    def stream_id(self) -> int:
+        """The identity every frame of this stream carries (64 bits, random unless given)."""
+        return self._writer.stream_id
 
     @property
     def bytes_in(self) -> int:
@@ -130,10 +136,11 @@ class Decoder(io.BufferedReader):
 
     def _data_chunks(self) -> Iterator[bytes]:
         for data, report in self._assembler:
-            if self._keep:
-                self._frame_reports.append(report)
-            if self._on_frame:
-                self._on_frame(report)
+            if report is not None:  # None: more data of the frame reported just before
+                if self._keep:
+                    self._frame_reports.append(report)
+                if self._on_frame:
+                    self._on_frame(report)
             if data:
                 yield data
 
@@ -162,11 +169,13 @@ class Decoder(io.BufferedReader):
 
 
 def open(file: PathOrFile, mode: str = "rb", *, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
-         frame_bytes: int = DEFAULT_FRAME_BYTES, on_error: str = "keep") -> Encoder | Decoder:
+         frame_bytes: int = DEFAULT_FRAME_BYTES, on_error: str = "keep",
+         stream_id: int | None = None) -> Encoder | Decoder:
     """Open a bitmend container for reading ('rb') or writing ('wb'), from a path or a
     binary file object; code, depth and frame_bytes apply to writing, on_error to reading.
     code is a catalog name or a code object (e.g. from load_code_file): a code outside the
-    catalog is written into every frame, so reading needs nothing but the container."""
+    catalog is written into every frame, so reading needs nothing but the container.
+    stream_id (writing) is the stream's 64-bit identity, drawn at random unless given."""
     if mode not in ("rb", "r", "wb", "w"):
         raise ValueError(f"mode must be 'rb' or 'wb', got {mode!r}")
     writing = mode.startswith("w")
@@ -178,7 +187,7 @@ def open(file: PathOrFile, mode: str = "rb", *, code: CodeChoice = DEFAULT_CODE,
     else:
         raise TypeError("file must be a path or a binary file object")
     if writing:
-        return Encoder(fileobj, code, depth, frame_bytes, close_fileobj=owned)
+        return Encoder(fileobj, code, depth, frame_bytes, close_fileobj=owned, stream_id=stream_id)
     return Decoder(fileobj, on_error, close_fileobj=owned)
 
 
@@ -191,10 +200,11 @@ class Decoded:
 
 
 def encode_bytes(data: bytes, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
-                 frame_bytes: int = DEFAULT_FRAME_BYTES) -> bytes:
-    """The container for data (one-shot); code is a catalog name or a code object."""
+                 frame_bytes: int = DEFAULT_FRAME_BYTES, stream_id: int | None = None) -> bytes:
+    """The container for data (one-shot); code is a catalog name or a code object;
+    stream_id is drawn at random unless given (give one only to make output reproducible)."""
     sink = io.BytesIO()
-    with Encoder(sink, code, depth, frame_bytes) as enc:
+    with Encoder(sink, code, depth, frame_bytes, stream_id=stream_id) as enc:
         enc.write(data)
     return sink.getvalue()
 

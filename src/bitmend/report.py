@@ -13,9 +13,17 @@ class FrameReport:
     """What happened to one frame.
 
     offset is the frame's byte offset in the input (None for a lost frame); out_offset and
-    bytes say where its data went in the output (bytes = 0 when nothing was written). For
-    a lost frame, missing_bytes is its payload size when the stream's frame size is known:
-    the data missing from the output at out_offset (zero-filled there with on_error=zero)."""
+    bytes say where its data went in the output (bytes = 0 when nothing was written).
+    stream is the stream's identity in hex (None for version 1 frames, which carry none)
+    and stream_index counts the streams of the input from 0. reordered: the frame arrived
+    after one numbered later and was put back in place.
+
+    A lost frame belongs to a run of gap_frames consecutive lost frames; gap_bytes is the
+    payload the whole run carried, known from the stream positions of the frames either
+    side (None when no frame follows the run, and for version 1). missing_bytes is this
+    frame's own payload size when that is known (a run of one). With on_error=zero the
+    run's gap_bytes zeros are written at the first lost frame of the run (its `bytes`);
+    a run of unknown size is never zero-filled."""
 
     seq: int
     offset: int | None
@@ -30,6 +38,11 @@ class FrameReport:
     truncated: bool = False
     failed_count: int = 0  # all uncorrectable blocks; failed_blocks lists at most 4096
     missing_bytes: int | None = None  # lost frame: payload bytes it carried, when known
+    gap_frames: int | None = None  # lost frame: frames in its run of consecutive lost frames
+    gap_bytes: int | None = None  # lost frame: payload bytes of the whole run, when known
+    stream: str | None = None  # stream identity (16 hex digits); None for version 1 frames
+    stream_index: int = 0  # which stream of the input, counted from 0
+    reordered: bool = False  # arrived after a frame numbered later; put back in place
 
     def to_json(self) -> str:
         return json.dumps({"type": "frame", **asdict(self)}, separators=(",", ":"))
@@ -37,8 +50,10 @@ class FrameReport:
 
 @dataclass(frozen=True)
 class Summary:
-    """The whole run. complete is true only when every frame arrived and verified and the
-    stream's closing frame was seen."""
+    """The whole run. complete is true only when the output is exactly the stream(s) that
+    were written: every frame arrived once and verified, every stream's closing frame was
+    seen, and no frame of another stream was found among them (duplicates dropped and
+    reordered frames put back in place do not spoil it)."""
 
     frames: int
     clean: int
@@ -53,6 +68,12 @@ class Summary:
     skipped_bytes: int
     notes: list[str] = field(default_factory=list)
     symbol_unit: str = "bits"  # what corrected_symbols counts: bits, or bytes for Reed-Solomon
+    duplicates: int = 0  # second copies of a frame, dropped
+    foreign: int = 0  # frames of another stream found inside a stream, skipped
+    reordered: int = 0  # frames that arrived after one numbered later, put back in place
+    late: int = 0  # frames that came after they had been declared lost, dropped
+    streams: int = 0  # streams found in the input
+    rebuilt: int = 0  # frames rebuilt from repair frames
 
     def to_json(self) -> str:
         return json.dumps({"type": "summary", **asdict(self)}, separators=(",", ":"))
@@ -60,14 +81,24 @@ class Summary:
     def one_line(self) -> str:
         """The human summary printed to stderr."""
         verdict = "all data verified" if self.complete else "INCOMPLETE"
-        parts = [f"{self.frames} frames", f"{self.clean} clean", f"{self.corrected} corrected",
+        parts = [_count(self.frames, "frame"), f"{self.clean} clean", f"{self.corrected} corrected",
                  f"{self.damaged} damaged", f"{self.lost} lost",
-                 f"{self.corrected_symbols} {self.symbol_unit} corrected", f"{self.bytes_out} bytes out"]
+                 f"{self.corrected_symbols} {self.symbol_unit} corrected", _count(self.bytes_out, "byte") + " out"]
+        for value, what in ((self.duplicates, "duplicate"), (self.reordered, "reordered"),
+                            (self.foreign, "foreign"), (self.late, "late")):
+            if value:
+                parts.append(f"{value} {what}")
+        if self.streams > 1:
+            parts.append(f"{self.streams} streams")
         if self.skipped_bytes:
-            parts.append(f"{self.skipped_bytes} bytes skipped")
+            parts.append(_count(self.skipped_bytes, "byte") + " skipped")
         if not self.end_seen:
             parts.append("end of stream missing")
         return f"bitmend decode: {verdict}: " + ", ".join(parts)
+
+
+def _count(value: int, noun: str) -> str:
+    return f"{value} {noun}{'' if value == 1 else 's'}"
 
 
 @dataclass

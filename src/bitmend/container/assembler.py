@@ -1,8 +1,9 @@
 """Turn found frames into output bytes and frame reports, applying the on-error policy.
 
-Sequence numbers reveal lost frames; the closing flag tells a finished stream from a
-truncated one; a stream that starts again at sequence 0 (concatenated containers) is
-decoded as a continuation.
+The scanner finds frames in input order; the sequencer (container/delivery.py) puts each
+stream's frames in sequence order, once each, keeps other streams' frames out and names
+the frames that never came. This module turns those events into output bytes and
+FrameReports, and keeps the counts for the summary.
 """
 
 from __future__ import annotations
@@ -10,11 +11,14 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import BinaryIO, Iterator
 
+from bitmend.container import format as fmt
+from bitmend.container.delivery import Delivered, Event, LostRun, Sequencer, StreamEnded
 from bitmend.container.reader import DecodedFrame, FrameScanner
 from bitmend.report import CLEAN, CORRECTED, DAMAGED, LOST, FrameReport, Summary
 
 ON_ERROR_CHOICES = ("keep", "zero", "drop", "fail")
 MAX_LOST_LISTED = 100_000  # a gap wider than this is listed only up to this many frames
+ZERO_CHUNK = 1 << 20  # zeros for a lost run are produced in pieces of this size
 
 
 class NotAContainerError(ValueError):
@@ -37,7 +41,7 @@ class _Counts:
     failed_blocks: int = 0
 
 
-def _symbol_bits(header) -> int:
+def _symbol_bits(header: fmt.FrameHeader) -> int:
     """1 for binary codes, 8 for Reed-Solomon; 1 when the frame's code is unknown."""
     try:
         return getattr(header.code, "symbol_bits", 1)
@@ -45,21 +49,28 @@ def _symbol_bits(header) -> int:
         return 1
 
 
+def _stream_name(header: fmt.FrameHeader) -> str | None:
+    return f"{header.stream_id:016x}" if header.identified else None
+
+
 class Assembler:
-    """Iterate (data, FrameReport) pairs for a container; summary() when done."""
+    """Iterate (data, FrameReport | None) pairs for a container, in stream order; a None
+    report carries more data of the frame reported just before (zeros of a long lost
+    run). summary() when done."""
 
     def __init__(self, source: BinaryIO, on_error: str = "keep") -> None:
         if on_error not in ON_ERROR_CHOICES:
             raise ValueError(f"on_error must be one of {', '.join(ON_ERROR_CHOICES)}, got {on_error!r}")
         self.on_error = on_error
         self.scanner = FrameScanner(source)
+        self.sequencer = Sequencer()
         self._counts = _Counts()
         self._notes: list[str] = []
-        self._expected: int | None = None  # next sequence number expected
-        self._end_seen = False
-        self._full_length: int | None = None  # payload size of the stream's full frames
         self._any_frame = False
         self._truncated = False
+        self._streams_closed = 0
+        self._streams_ended = 0
+        self._stream_names: dict[int, str | None] = {}
         self._symbol_bits: set[int] = set()  # symbol sizes of the codes seen (1 binary, 8 RS)
 
     # ---- per-frame bookkeeping ---------------------------------------------------------
@@ -71,73 +82,102 @@ class Assembler:
         c.corrected_symbols += report.corrected_symbols
         c.failed_blocks += report.failed_count
 
-    def _lost(self, first: int, stop: int) -> Iterator[tuple[bytes, FrameReport]]:
-        count = stop - first
-        if count > MAX_LOST_LISTED:
-            self._notes.append(f"{count} frames lost from sequence {first}; the first {MAX_LOST_LISTED} are listed")
-        for seq in range(first, first + min(count, MAX_LOST_LISTED)):
-            length = self._full_length  # lost frames inside a stream are full-size ones
-            data = bytes(length or 0) if self.on_error == "zero" else b""
-            report = FrameReport(seq, None, LOST, 0, 0, 0, [], False, self._counts.bytes_out, len(data),
-                                 missing_bytes=length)
-            self._record(report)
-            yield data, report
-            if self.on_error == "fail":
-                raise DamagedDataError(f"frame {seq} lost")
-
     def _status(self, frame: DecodedFrame) -> str:
         if not frame.crc_ok:
             return DAMAGED
         # CRC-verified; blocks that failed can only lie in the zero padding, still worth a flag
         return CORRECTED if frame.corrected_symbols or frame.failed_blocks else CLEAN
 
-    def __iter__(self) -> Iterator[tuple[bytes, FrameReport]]:
+    def _delivered(self, event: Delivered) -> Iterator[tuple[bytes, FrameReport | None]]:
+        frame = event.frame
+        header = frame.header
+        self._stream_names[event.stream_index] = _stream_name(header)
+        self._symbol_bits.add(_symbol_bits(header))
+        status = self._status(frame)
+        data = frame.payload
+        if status == DAMAGED:
+            if self.on_error == "zero":
+                data = bytes(len(frame.payload))
+            elif self.on_error in ("drop", "fail"):
+                data = b""
+        report = FrameReport(header.seq, frame.offset, status, len(frame.block_status),
+                             frame.corrected_blocks, frame.corrected_symbols, frame.failed_blocks,
+                             frame.crc_ok, self._counts.bytes_out, len(data), frame.truncated,
+                             frame.failed_count, stream=_stream_name(header), stream_index=event.stream_index,
+                             reordered=event.reordered)
+        self._record(report)
+        yield data, report
+        self._truncated = self._truncated or frame.truncated
+        if status == DAMAGED and self.on_error == "fail":
+            raise DamagedDataError(f"frame {header.seq} at byte {frame.offset} is damaged")
+
+    def _lost(self, run: LostRun) -> Iterator[tuple[bytes, FrameReport | None]]:
+        count, gap = run.count, run.gap_bytes
+        if gap is not None and gap > count * fmt.MAX_PAYLOAD_BYTES:
+            # positions either side disagree with any legal frame sizes: not believed
+            self._notes.append(f"frames {run.first_seq}..: stream positions do not fit {count} lost frames; "
+                               "missing bytes unknown")
+            gap = None
+        if count > MAX_LOST_LISTED:
+            self._notes.append(f"{count} frames lost from sequence {run.first_seq}; the first {MAX_LOST_LISTED} "
+                               "are listed")
+        stream = self._stream_names.get(run.stream_index)
+        fill = gap if (self.on_error == "zero" and gap is not None) else 0
+        for i in range(min(count, MAX_LOST_LISTED)):
+            seq = (run.first_seq + i) % fmt.SEQ_MODULUS
+            written = fill if i == 0 else 0
+            report = FrameReport(seq, None, LOST, 0, 0, 0, [], False, self._counts.bytes_out, written,
+                                 missing_bytes=gap if count == 1 else None, gap_frames=count, gap_bytes=gap,
+                                 stream=stream, stream_index=run.stream_index)
+            self._record(report)
+            first = min(written, ZERO_CHUNK)
+            yield bytes(first), report
+            for start in range(first, written, ZERO_CHUNK):  # a long run's zeros, in bounded pieces
+                yield bytes(min(ZERO_CHUNK, written - start)), None
+            if self.on_error == "fail":
+                raise DamagedDataError(f"frame {seq} lost")
+
+    def _handle(self, event: Event) -> Iterator[tuple[bytes, FrameReport | None]]:
+        if isinstance(event, Delivered):
+            yield from self._delivered(event)
+        elif isinstance(event, LostRun):
+            yield from self._lost(event)
+        elif isinstance(event, StreamEnded):
+            self._streams_ended += 1
+            if event.closed:
+                self._streams_closed += 1
+            else:
+                name = f"stream {event.stream_id:016x}" if event.stream_id is not None else "the stream"
+                self._notes.append(f"{name} ended without its closing frame")
+
+    def __iter__(self) -> Iterator[tuple[bytes, FrameReport | None]]:
         for frame in self.scanner.frames():
             self._any_frame = True
-            header = frame.header
-            if self._expected is not None and header.seq != self._expected:
-                if header.seq > self._expected:
-                    yield from self._lost(self._expected, header.seq)
-                elif header.seq == 0:
-                    self._notes.append("a stream ended without its closing frame; a new one began")
-                else:
-                    self._notes.append(f"frame {header.seq} arrived out of order")
-            elif self._expected is None and header.seq > 0:
-                yield from self._lost(0, header.seq)
-            if not header.last:
-                self._full_length = max(self._full_length or 0, header.length)
-            self._symbol_bits.add(_symbol_bits(header))
-            status = self._status(frame)
-            data = frame.payload
-            if status == DAMAGED:
-                if self.on_error == "zero":
-                    data = bytes(len(frame.payload))
-                elif self.on_error in ("drop", "fail"):
-                    data = b""
-            report = FrameReport(header.seq, frame.offset, status, len(frame.block_status),
-                                 frame.corrected_blocks, frame.corrected_symbols, frame.failed_blocks,
-                                 frame.crc_ok, self._counts.bytes_out, len(data), frame.truncated,
-                                 frame.failed_count)
-            self._record(report)
-            yield data, report
-            if status == DAMAGED and self.on_error == "fail":
-                raise DamagedDataError(f"frame {header.seq} at byte {frame.offset} is damaged")
-            self._truncated = self._truncated or frame.truncated
-            self._end_seen = header.last
-            self._expected = 0 if header.last else (header.seq + 1) & 0xFFFFFFFF
+            for event in self.sequencer.push(frame):
+                yield from self._handle(event)
+        for event in self.sequencer.finish():
+            yield from self._handle(event)
         if not self._any_frame:
             errors = self.scanner.stats.header_errors
             detail = f" ({errors[0]})" if errors else ""
             raise NotAContainerError(f"no decodable bitmend frame found in the input{detail}")
-        if not self._end_seen and self.on_error == "fail":
+        if self._streams_closed < self._streams_ended and self.on_error == "fail":
             raise DamagedDataError("the stream ends without its closing frame (truncated?)")
 
     def summary(self) -> Summary:
         c = self._counts
-        complete = self._end_seen and c.damaged == 0 and c.lost == 0 and not self._truncated
-        notes = list(self._notes) + list(dict.fromkeys(self.scanner.stats.header_errors))[:10]
+        d = self.sequencer.counts
+        end_seen = self._streams_ended > 0 and self._streams_closed == self._streams_ended
+        complete = (end_seen and c.damaged == 0 and c.lost == 0 and not self._truncated
+                    and d.foreign == 0 and d.late == 0)
+        notes = list(self._notes) + list(self.sequencer.notes)
+        if d.repair_ignored:
+            notes.append(f"{d.repair_ignored} repair frames skipped (this bitmend does not rebuild from them)")
+        notes += list(dict.fromkeys(self.scanner.stats.header_errors))[:10]
         units = {"bytes" if bits == 8 else "bits" for bits in self._symbol_bits} or {"bits"}
         return Summary(c.frames, c.clean, c.corrected, c.damaged, c.lost, c.bytes_out,
-                       c.corrected_symbols, c.failed_blocks, complete, self._end_seen,
+                       c.corrected_symbols, c.failed_blocks, complete, end_seen,
                        self.scanner.stats.skipped_bytes, notes,
-                       units.pop() if len(units) == 1 else "symbols (bits or bytes)")
+                       units.pop() if len(units) == 1 else "symbols (bits or bytes)",
+                       duplicates=d.duplicates, foreign=d.foreign, reordered=d.reordered, late=d.late,
+                       streams=d.streams, rebuilt=0)

@@ -1,9 +1,15 @@
 """Frame layout, header record and checks of the bitmend container (docs/FORMAT.md).
 
-    frame  = marker (8) | header (33) | coded payload (C) | header copy (33)
-    header = golay-24-12 at depth 11 of the 16-byte record
-    record = version, flags, code id, depth, sequence (u32), payload length (u32),
-             CRC-32C of the first 12 bytes (u32), all big-endian
+Version 2 (written now):
+
+    frame  = marker (8) | header (60) | coded payload (C) | header copy (60)
+    header = golay-24-12 at depth 20 of the 30-byte record
+    record = version, flags, code id, depth, stream id (u64), sequence (u32),
+             position (u48), payload length (u32), CRC-32C of the first 26 bytes (u32),
+             all big-endian
+
+Version 1 (read forever): the 16-byte record (version, flags, code id, depth, sequence,
+length, CRC-32C) coded at depth 11 into a 33-byte header; no stream id, no position.
 
 The coded payload is the payload followed by its CRC-32C, encoded with the frame's code
 and interleaved at the frame's depth (bitmend.interleave).
@@ -29,24 +35,45 @@ from bitmend.codes.catalog import MAX_DEPTH, code_by_id, get_code
 from bitmend.codes.linear import MAX_MESSAGE_BITS, MAX_PARITY_BITS, BinaryLinearCode, CodeDefinitionError
 from bitmend.interleave import decode_segment, encode_segment, layout
 
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2  # the version this bitmend writes; it reads every version in HEADER_LAYOUTS
 # 64-bit sync marker: 32 ones, no run longer than 4, and for every shift s the marker
 # differs from itself shifted by s in >= 28.5 places counting unknown bits as half
 # (found by the seeded search in tools/choose_marker.py; see docs/FORMAT.md).
 MARKER = 0xA4C95BDD8544AE53
 MARKER_BYTES = MARKER.to_bytes(8, "big")
 MARKER_SEARCH_TOLERANCE = 12  # bits of 64 that may differ while searching for a frame
-RECORD_BYTES = 16
 HEADER_CODE = "golay-24-12"
-HEADER_DEPTH = 11  # 11 codewords of 24 bits carry the 128-bit record (132 with padding)
-HEADER_BYTES = 33
+
+
+class HeaderLayout(NamedTuple):
+    """Size of a version's header record, and its coding: golay-24-12, all codewords in one
+    interleaved group of `depth`, so any burst of up to 3 * depth bits inside it is corrected."""
+
+    version: int
+    record_bytes: int
+    depth: int
+    coded_bytes: int
+
+
+HEADER_LAYOUTS = {
+    2: HeaderLayout(2, 30, 20, 60),  # 240 record bits = exactly 20 Golay messages; 60-bit bursts
+    1: HeaderLayout(1, 16, 11, 33),  # 128 record bits + 4 padding bits in 11 messages; 33-bit bursts
+}
+RECORD_BYTES = HEADER_LAYOUTS[FORMAT_VERSION].record_bytes
+HEADER_DEPTH = HEADER_LAYOUTS[FORMAT_VERSION].depth
+HEADER_BYTES = HEADER_LAYOUTS[FORMAT_VERSION].coded_bytes
+MAX_HEADER_BYTES = max(layout_.coded_bytes for layout_ in HEADER_LAYOUTS.values())
 MAX_PAYLOAD_BYTES = 1 << 20  # frame payload limit: bounds every allocation a header drives
 # a bound on any frame's size on the wire (the largest catalog frames, rep-3 and bch-15-5 at
 # depth 255, stay under it; custom-code frames are refused above it): sizes the look-back window
-MAX_FRAME_WIRE_BYTES = 8 + 2 * 33 + 3 * (MAX_PAYLOAD_BYTES + 4 + 255 * 3)
+MAX_FRAME_WIRE_BYTES = 8 + 2 * 60 + 3 * (MAX_PAYLOAD_BYTES + 4 + 255 * 3)
 DEFAULT_FRAME_BYTES = 16384
 CRC_BYTES = 4
 FLAG_LAST = 0x01  # the frame closes its stream
+FLAG_REPAIR = 0x02  # (version 2) a repair frame across the data frames of a group: docs/FORMAT.md
+KNOWN_FLAGS = {1: FLAG_LAST, 2: FLAG_LAST | FLAG_REPAIR}
+POSITION_BITS = 48  # (version 2) stream byte offset of a data frame's first payload byte, mod 2^48
+SEQ_MODULUS = 1 << 32
 CUSTOM_CODE_ID = 0  # the frame carries its own code in a code-definition block
 CUSTOM_LENGTH_BITS = 21  # code id 0: the length field is (k-1) << 26 | (r-1) << 21 | length
 DEFINITION_KIND_BINARY = 1  # definition block kind: binary linear code, systematic parity part P
@@ -103,12 +130,30 @@ class FrameHeader:  # noqa: PLW1641 (cached_property needs __dict__; frozen stil
     version: int = FORMAT_VERSION
     shape: tuple[int, int] | None = None  # (k, r) of a code defined in the frame (code id 0 only)
     defined_code: BinaryLinearCode | None = field(default=None, compare=False, repr=False)
+    stream_id: int = 0  # (version 2) the stream's identity, drawn at random by its encoder
+    position: int = 0  # (version 2) stream offset of the first payload byte, mod 2^48
+    repair: bool = False  # (version 2) a repair frame: `position` holds its group fields
 
     @classmethod
     def for_defined_code(cls, code: BinaryLinearCode, depth: int, seq: int, length: int,
-                         last: bool = False) -> "FrameHeader":
+                         last: bool = False, stream_id: int = 0, position: int = 0) -> "FrameHeader":
         """The header of a frame that carries `code` in its own definition block."""
-        return cls(CUSTOM_CODE_ID, depth, seq, length, last, FORMAT_VERSION, (code.k, code.r), code)
+        return cls(CUSTOM_CODE_ID, depth, seq, length, last, FORMAT_VERSION, (code.k, code.r), code,
+                   stream_id, position)
+
+    @property
+    def layout(self) -> HeaderLayout:
+        return HEADER_LAYOUTS[self.version]
+
+    @property
+    def header_bytes(self) -> int:
+        """Size of one coded header (and of its copy) in this frame's version."""
+        return self.layout.coded_bytes
+
+    @property
+    def identified(self) -> bool:
+        """True when the frame names its stream (version 2 on); version 1 frames do not."""
+        return self.version >= 2
 
     @property
     def code(self) -> BinaryLinearCode:
@@ -131,7 +176,7 @@ class FrameHeader:  # noqa: PLW1641 (cached_property needs __dict__; frozen stil
         """Size of one code-definition block (0 for catalog codes)."""
         if self.code_id != CUSTOM_CODE_ID:
             return 0
-        return definition_coded_bytes(*self._shape())
+        return definition_coded_bytes(*self._shape(), version=self.version)
 
     @cached_property
     def coded_bytes(self) -> int:
@@ -143,7 +188,7 @@ class FrameHeader:  # noqa: PLW1641 (cached_property needs __dict__; frozen stil
     @cached_property
     def frame_bytes(self) -> int:
         """Whole frame size on the wire."""
-        return len(MARKER_BYTES) + 2 * HEADER_BYTES + 2 * self.definition_bytes + self.coded_bytes
+        return len(MARKER_BYTES) + 2 * self.header_bytes + 2 * self.definition_bytes + self.coded_bytes
 
     def _shape(self) -> tuple[int, int]:
         if self.shape is None:
@@ -154,19 +199,25 @@ class FrameHeader:  # noqa: PLW1641 (cached_property needs __dict__; frozen stil
         return k, r
 
     def record(self) -> bytes:
-        flags = FLAG_LAST if self.last else 0
+        flags = (FLAG_LAST if self.last else 0) | (FLAG_REPAIR if self.repair else 0)
         length = self.length
         if self.code_id == CUSTOM_CODE_ID:
             k, r = self._shape()
             if length >= 1 << CUSTOM_LENGTH_BITS:
                 raise ValueError(f"payload length {length} does not fit a frame with code id 0")
             length |= (k - 1) << 26 | (r - 1) << CUSTOM_LENGTH_BITS
-        body = struct.pack(">BBBBII", self.version, flags, self.code_id, self.depth, self.seq, length)
+        if self.version == 1:
+            body = struct.pack(">BBBBII", self.version, flags, self.code_id, self.depth, self.seq, length)
+        else:
+            body = (struct.pack(">BBBBQI", self.version, flags, self.code_id, self.depth, self.stream_id, self.seq)
+                    + (self.position % (1 << POSITION_BITS)).to_bytes(6, "big") + struct.pack(">I", length))
         return body + struct.pack(">I", crc32c(body))
 
     def next(self) -> "FrameHeader":
-        """The header a full frame after this one would carry (used to predict a lost header)."""
-        return replace(self, seq=(self.seq + 1) & 0xFFFFFFFF, last=False)
+        """The header a full frame after this one would carry (used to predict a lost header):
+        same stream, code, depth and length, the next sequence number and stream position."""
+        return replace(self, seq=(self.seq + 1) % SEQ_MODULUS, last=False,
+                       position=(self.position + self.length) % (1 << POSITION_BITS))
 
 
 @lru_cache(maxsize=1)
@@ -175,26 +226,54 @@ def header_code() -> BinaryLinearCode:
 
 
 def encode_header(header: FrameHeader) -> bytes:
-    coded = encode_segment(header_code(), HEADER_DEPTH, header.record())
-    assert len(coded) == HEADER_BYTES
+    layout_ = header.layout
+    coded = encode_segment(header_code(), layout_.depth, header.record())
+    assert len(coded) == layout_.coded_bytes
     return coded
 
 
-def decode_header(coded: bytes) -> FrameHeader | None:
-    """The header in 33 coded bytes, or None when it cannot be corrected or fails its
-    CRC. Raises HeaderError for a checked header with values out of range."""
-    record, status = decode_segment(header_code(), HEADER_DEPTH, coded, RECORD_BYTES)
+def _checked_record(coded: bytes, layout_: HeaderLayout) -> bytes | None:
+    """The record in a coded header of this layout, or None if a Golay codeword is
+    uncorrectable or the record's CRC-32C fails."""
+    record, status = decode_segment(header_code(), layout_.depth, coded[: layout_.coded_bytes], layout_.record_bytes)
     if (status == 255).any():
         return None
-    body, check = record[:12], struct.unpack(">I", record[12:])[0]
-    if crc32c(body) != check:
-        return None
-    version, flags, code_id, depth, seq, length = struct.unpack(">BBBBII", body)
+    body, check = record[:-CRC_BYTES], struct.unpack(">I", record[-CRC_BYTES:])[0]
+    return bytes(body) if crc32c(body) == check else None
+
+
+def decode_header(coded: bytes) -> FrameHeader | None:
+    """The header at the start of `coded` (at least MAX_HEADER_BYTES, or 33 for a version 1
+    header), or None when no version's header corrects and checks there. The version 2
+    layout is tried first, then version 1: a record is believed only after its Golay
+    decoding and its CRC-32C pass, so a header of one layout is never taken for the other
+    (short of a 2^-32 CRC collision). Raises HeaderError for a checked header with values
+    out of range, UnsupportedVersionError for a newer writer's."""
+    for layout_ in HEADER_LAYOUTS.values():
+        if len(coded) < layout_.coded_bytes:
+            continue
+        body = _checked_record(coded, layout_)
+        if body is not None:
+            return _parse_record(body, layout_)
+    return None
+
+
+def _parse_record(body: bytes, layout_: HeaderLayout) -> FrameHeader:
+    version = body[0]
+    if version != layout_.version:
+        # a newer writer (or a record size this bitmend does not know): say so rather than
+        # treating the stream as noise
+        known = " and ".join(str(v) for v in sorted(HEADER_LAYOUTS))
+        raise UnsupportedVersionError(f"frame format version {version}; this bitmend reads versions {known}")
+    stream_id = position = 0
+    if version == 1:
+        _, flags, code_id, depth, seq, length = struct.unpack(">BBBBII", body)
+    else:
+        _, flags, code_id, depth, stream_id, seq = struct.unpack(">BBBBQI", body[:16])
+        position = int.from_bytes(body[16:22], "big")
+        (length,) = struct.unpack(">I", body[22:26])
     shape = None
-    if version != FORMAT_VERSION:
-        # a newer writer: say so rather than treating the stream as noise
-        raise UnsupportedVersionError(f"frame format version {version}; this bitmend reads version {FORMAT_VERSION}")
-    if flags & ~FLAG_LAST:
+    if flags & ~KNOWN_FLAGS[version]:
         raise HeaderError(f"frame header has unknown flags 0x{flags:02x}")
     if not 1 <= depth <= MAX_DEPTH:
         raise HeaderError(f"frame depth {depth} outside 1..{MAX_DEPTH}")
@@ -211,7 +290,8 @@ def decode_header(coded: bytes) -> FrameHeader | None:
             code_by_id(code_id)
         except KeyError:
             raise HeaderError(f"frame uses unknown code id {code_id}") from None
-    header = FrameHeader(code_id, depth, seq, length, bool(flags & FLAG_LAST), version, shape)
+    header = FrameHeader(code_id, depth, seq, length, bool(flags & FLAG_LAST), version, shape, None,
+                         stream_id, position, bool(flags & FLAG_REPAIR))
     if shape is not None and header.frame_bytes > MAX_FRAME_WIRE_BYTES:
         raise HeaderError(f"frame of {header.frame_bytes} bytes exceeds the limit {MAX_FRAME_WIRE_BYTES}")
     return header
@@ -224,15 +304,16 @@ def definition_message_bytes(k: int, r: int) -> int:
     return 3 + (k * r + 7) // 8 + CRC_BYTES
 
 
-def definition_depth(k: int, r: int) -> int:
+def definition_depth(k: int, r: int, version: int = FORMAT_VERSION) -> int:
     """Golay codewords in the block, all in one interleaved group; at least the header's
-    11, so that the block survives every burst the header survives (33 bits)."""
+    depth (20 in version 2, 11 in version 1), so that the block survives every burst the
+    header survives."""
     message_bits = 8 * definition_message_bytes(k, r)
-    return max(HEADER_DEPTH, -(-message_bits // header_code().k))
+    return max(HEADER_LAYOUTS[version].depth, -(-message_bits // header_code().k))
 
 
-def definition_coded_bytes(k: int, r: int) -> int:
-    return layout(header_code(), definition_depth(k, r), definition_message_bytes(k, r)).coded_bytes
+def definition_coded_bytes(k: int, r: int, version: int = FORMAT_VERSION) -> int:
+    return layout(header_code(), definition_depth(k, r, version), definition_message_bytes(k, r)).coded_bytes
 
 
 def definition_record(code: BinaryLinearCode) -> bytes:
@@ -243,18 +324,18 @@ def definition_record(code: BinaryLinearCode) -> bytes:
 
 
 @lru_cache(maxsize=16)
-def encode_definition(code: BinaryLinearCode) -> bytes:
+def encode_definition(code: BinaryLinearCode, version: int = FORMAT_VERSION) -> bytes:
     """The coded code-definition block of a frame with code id 0."""
-    return encode_segment(header_code(), definition_depth(code.k, code.r), definition_record(code))
+    return encode_segment(header_code(), definition_depth(code.k, code.r, version), definition_record(code))
 
 
-def decode_definition(coded: bytes, shape: tuple[int, int]) -> BinaryLinearCode | None:
+def decode_definition(coded: bytes, shape: tuple[int, int], version: int = FORMAT_VERSION) -> BinaryLinearCode | None:
     """The code in a coded definition block, or None if the block cannot be corrected,
     fails its CRC or disagrees with the header's (k, r). Raises HeaderError for a checked
     block of a kind this reader does not know."""
     k, r = shape
     size = definition_message_bytes(k, r)
-    message, status = decode_segment(header_code(), definition_depth(k, r), coded, size)
+    message, status = decode_segment(header_code(), definition_depth(k, r, version), coded, size)
     if (status == 255).any():
         return None
     body, check = message[:-CRC_BYTES], struct.unpack(">I", message[-CRC_BYTES:])[0]
@@ -292,6 +373,6 @@ def encode_frame(header: FrameHeader, payload: bytes) -> bytes:
         raise ValueError(f"payload is {len(payload)} bytes, header says {header.length}")
     coded_header = encode_header(header)
     message = payload + struct.pack(">I", crc32c(payload))
-    definition = encode_definition(header.code) if header.code_id == CUSTOM_CODE_ID else b""
+    definition = encode_definition(header.code, header.version) if header.code_id == CUSTOM_CODE_ID else b""
     return (MARKER_BYTES + coded_header + definition + encode_segment(header.code, header.depth, message)
             + definition + coded_header)

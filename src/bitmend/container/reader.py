@@ -29,7 +29,8 @@ SEARCH_PIECE = 1 << 16  # bytes scanned per marker-search step
 SMALL_SEARCH_PIECE = 1 << 11  # the same while the compiled kernels are not loaded
 LOOKBACK_BITS = 8 * fmt.MAX_FRAME_WIRE_BYTES  # window kept behind a search, for look-back recovery
 MARKER_BITS = 64
-HEADER_BITS = 8 * fmt.HEADER_BYTES
+MAX_HEADER_BITS = 8 * fmt.MAX_HEADER_BYTES  # a header of any version fits in this many bits
+V1_HEADER_BYTES = fmt.HEADER_LAYOUTS[1].coded_bytes  # the smallest header of any version
 
 
 @dataclass
@@ -156,21 +157,26 @@ class FrameScanner:
             self._drop_before(start_bit - LOOKBACK_BITS)
 
     # ---- header and payload -----------------------------------------------------------
-    def _header_at(self, bit: int) -> fmt.FrameHeader | None:
+    def _header_at(self, bit: int, coded_bytes: int = fmt.MAX_HEADER_BYTES) -> fmt.FrameHeader | None:
+        """The header of any version starting at absolute bit (fmt.decode_header tries each
+        layout that fits in coded_bytes)."""
         try:
-            return fmt.decode_header(self._bytes_at(bit, fmt.HEADER_BYTES))
+            return fmt.decode_header(self._bytes_at(bit, coded_bytes))
         except fmt.HeaderError as exc:
             self.stats.header_errors.append(str(exc))
             return None
 
     def _predicted_header(self, frame_bit: int, predicted: fmt.FrameHeader) -> fmt.FrameHeader | None:
         """Header of a frame whose leading header is hit, read from its trailing copy at the
-        place a frame shaped like `predicted` would end; accepted only if it agrees."""
-        copy_bit = frame_bit + 8 * (predicted.frame_bytes - fmt.HEADER_BYTES)
-        if not self._fill(copy_bit + HEADER_BITS):
+        place a frame shaped like `predicted` would end; accepted only if it agrees (same
+        version, stream, sequence number and frame size)."""
+        size = predicted.header_bytes
+        copy_bit = frame_bit + 8 * (predicted.frame_bytes - size)
+        if not self._fill(copy_bit + 8 * size):
             return None
-        found = self._header_at(copy_bit)
-        if found and found.seq == predicted.seq and found.frame_bytes == predicted.frame_bytes:
+        found = self._header_at(copy_bit, size)
+        if (found and found.version == predicted.version and found.stream_id == predicted.stream_id
+                and found.seq == predicted.seq and found.frame_bytes == predicted.frame_bytes):
             return found
         return None
 
@@ -186,17 +192,21 @@ class FrameScanner:
 
     def _look_back(self, gap_start: int, gap_end: int) -> DecodedFrame | None:
         """A frame filling the end of the gap [gap_start, gap_end) whose leading marker or
-        header was hit, found through its header copy, which ends right at gap_end."""
-        copy_bit = gap_end - HEADER_BITS
-        if copy_bit - gap_start < MARKER_BITS + HEADER_BITS or copy_bit < self._base:
-            return None
-        header = self._header_at(copy_bit)
-        if header is None:
-            return None
-        start = gap_end - 8 * header.frame_bytes
-        if start < max(gap_start, self._base):
-            return None
-        return self._decode_frame(start, header, from_copy=True)
+        header was hit, found through its header copy, which ends right at gap_end (a copy
+        of any version's size is tried)."""
+        for layout in fmt.HEADER_LAYOUTS.values():
+            size_bits = 8 * layout.coded_bytes
+            copy_bit = gap_end - size_bits
+            if copy_bit - gap_start < MARKER_BITS + size_bits or copy_bit < self._base:
+                continue
+            header = self._header_at(copy_bit, layout.coded_bytes)
+            if header is None or header.version != layout.version:
+                continue
+            start = gap_end - 8 * header.frame_bytes
+            if start < max(gap_start, self._base):
+                continue
+            return self._decode_frame(start, header, from_copy=True)
+        return None
 
     def _frame_code(self, bit: int, header: fmt.FrameHeader) -> tuple[fmt.FrameHeader, bool]:
         """(header, True) for a catalog code. For code id 0: the header with the code read
@@ -205,13 +215,13 @@ class FrameScanner:
         if header.code_id != fmt.CUSTOM_CODE_ID or header.defined_code is not None:
             return header, True
         size = header.definition_bytes
-        leading = bit + MARKER_BITS + HEADER_BITS
-        trailing = bit + 8 * (header.frame_bytes - fmt.HEADER_BYTES - size)
+        leading = bit + MARKER_BITS + 8 * header.header_bytes
+        trailing = bit + 8 * (header.frame_bytes - header.header_bytes - size)
         for place in (leading, trailing):
             if place + 8 * size > self._end_bit():
                 continue
             try:
-                code = fmt.decode_definition(self._bytes_at(place, size), header.shape)
+                code = fmt.decode_definition(self._bytes_at(place, size), header.shape, header.version)
             except fmt.HeaderError as exc:
                 self.stats.header_errors.append(str(exc))
                 code = None
@@ -224,7 +234,7 @@ class FrameScanner:
     def _decode_frame(self, bit: int, header: fmt.FrameHeader, from_copy: bool) -> DecodedFrame:
         total = header.frame_bytes
         complete = self._fill(bit + 8 * total)
-        payload_bit = bit + MARKER_BITS + HEADER_BITS + 8 * header.definition_bytes
+        payload_bit = bit + MARKER_BITS + 8 * (header.header_bytes + header.definition_bytes)
         coded_len = header.coded_bytes
         available_bits = max(0, min(self._end_bit() - payload_bit, 8 * coded_len))
         marker = int.from_bytes(self._bytes_at(bit, 8), "big")
@@ -265,7 +275,7 @@ class FrameScanner:
             if searched:
                 found = self._search(pos)
                 if found < 0:  # end of input: the gap may still end with a frame
-                    gap_start = max(pos, covered)
+                    gap_start = covered  # every byte since the last frame: a false marker match skipped is still skipped
                     tail = self._look_back(gap_start, self._end_bit())
                     if tail is not None:
                         self.stats.skipped_bytes += (tail.bit_offset - gap_start) // 8
@@ -275,14 +285,14 @@ class FrameScanner:
                     return
                 candidate = found
             else:
-                if not self._fill(pos + MARKER_BITS + HEADER_BITS):
+                if not self._fill(pos + MARKER_BITS + 8 * V1_HEADER_BYTES):
                     if self._end_bit() > pos:
                         locked, at_start = None, False  # a stub too short for a header: search it
                         continue
                     return
                 candidate = pos
             was_start, at_start = at_start, False
-            self._fill(candidate + MARKER_BITS + HEADER_BITS)
+            self._fill(candidate + MARKER_BITS + MAX_HEADER_BITS)
             header = self._header_at(candidate + MARKER_BITS)
             from_copy = False
             inferred: DecodedFrame | None = None
@@ -302,7 +312,7 @@ class FrameScanner:
                     if fallback is not None:
                         pos, fallback = fallback, None
                 continue
-            gap_start = max(pos, covered)
+            gap_start = covered  # every byte since the last frame: a false marker match skipped is still skipped
             if searched and candidate > gap_start:
                 # the gap before this frame may end with a frame whose leading header was hit
                 earlier = self._look_back(gap_start, candidate)

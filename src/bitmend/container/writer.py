@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import secrets
 from typing import BinaryIO
 
 from bitmend.codes.catalog import MAX_DEPTH, code_id, code_names, get_code
@@ -27,10 +28,15 @@ class FrameWriter:
     One full frame is held back until more data or close() arrives, so the final frame
     can carry the closing flag; flush() sends what is held as a (possibly short) frame.
     An empty stream still gets one empty closing frame, which decodes to empty output.
+
+    Every frame names the stream (`stream_id`, 64 bits drawn from the system's secure
+    random source unless given) and the stream offset of its first payload byte, so a
+    reader can drop replayed and foreign frames and knows exactly how many bytes a lost
+    frame carried.
     """
 
     def __init__(self, sink: BinaryIO, code: str | BinaryLinearCode, depth: int,
-                 frame_bytes: int = fmt.DEFAULT_FRAME_BYTES) -> None:
+                 frame_bytes: int = fmt.DEFAULT_FRAME_BYTES, stream_id: int | None = None) -> None:
         if not 1 <= depth <= MAX_DEPTH:
             raise ValueError(f"depth must be 1..{MAX_DEPTH}, got {depth}")
         if not 1 <= frame_bytes <= fmt.MAX_PAYLOAD_BYTES:
@@ -43,23 +49,31 @@ class FrameWriter:
                 raise ValueError(f"frames of {frame_bytes} bytes coded with {self._defined_code.name} would take "
                                  f"{largest} bytes, above the {fmt.MAX_FRAME_WIRE_BYTES} a reader accepts; "
                                  "use a smaller frame size")
+        if stream_id is not None and not 0 <= stream_id < 1 << 64:
+            raise ValueError(f"stream id must be 0..2^64 - 1, got {stream_id}")
+        self.stream_id = secrets.randbits(64) if stream_id is None else stream_id
         self._depth = depth
         self._frame_bytes = frame_bytes
         self._pending = bytearray()
         self._seq = 0
+        self._position = 0  # stream offset of the next frame's first payload byte
         self.bytes_in = 0
         self.bytes_out = 0
         self.closed = False
 
     def _emit(self, payload: bytes, last: bool) -> None:
+        position = self._position % (1 << fmt.POSITION_BITS)
         if self._defined_code is not None:
-            header = fmt.FrameHeader.for_defined_code(self._defined_code, self._depth, self._seq, len(payload), last)
+            header = fmt.FrameHeader.for_defined_code(self._defined_code, self._depth, self._seq, len(payload), last,
+                                                      self.stream_id, position)
         else:
-            header = fmt.FrameHeader(self._code_id, self._depth, self._seq, len(payload), last)
+            header = fmt.FrameHeader(self._code_id, self._depth, self._seq, len(payload), last,
+                                     stream_id=self.stream_id, position=position)
         frame = fmt.encode_frame(header, payload)
         self._sink.write(frame)
         self.bytes_out += len(frame)
-        self._seq = (self._seq + 1) & 0xFFFFFFFF
+        self._seq = (self._seq + 1) % fmt.SEQ_MODULUS
+        self._position += len(payload)
 
     def write(self, data: bytes) -> int:
         if self.closed:

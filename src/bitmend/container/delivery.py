@@ -1,0 +1,325 @@
+"""Delivery order: put the frames of a stream in sequence, once each, and keep others out.
+
+The scanner yields frames in the order they lie in the input. A link or a disk can repeat
+frames, swap them, lose them, or splice in frames of another stream. The sequencer turns
+that into the stream as it was written (docs/FORMAT.md, "Delivery rules"):
+
+- frames of the current stream are released in sequence order, each sequence number once;
+- a frame that arrives early waits in a window of at most REORDER_WINDOW frames and is put
+  back in place; a missing frame is declared lost only when a frame REORDER_WINDOW or more
+  places after it has arrived, or when the input ends;
+- a second copy of a sequence number is a duplicate: dropped and counted (a damaged copy
+  still waiting is replaced by an intact one);
+- a frame of another stream while the current one is open is held aside (at most
+  REORDER_WINDOW frames); if the current stream goes on, those frames were foreign:
+  counted and skipped. A new stream may follow a closed one at once, and an unclosed one
+  only when the new stream starts afresh (its frame 0 is among those held aside) and
+  REORDER_WINDOW frames of it arrive with none of the current stream (or the input ends);
+- version 1 frames name no stream: they form one stream that starts again after a closing
+  frame when a frame 0 follows, as version 1 readers did.
+
+Sequence numbers are compared in serial-number arithmetic modulo 2^32 (RFC 1982), so a
+stream may wrap. Work per frame is O(1) amortised (dict look-ups); memory is bounded by two
+windows of frames.
+"""
+
+from __future__ import annotations
+
+from collections import deque
+from dataclasses import dataclass, field
+from typing import Iterator
+
+from bitmend.container import format as fmt
+from bitmend.container.reader import DecodedFrame
+
+REORDER_WINDOW = 32  # frames held waiting for an earlier one, and frames of another stream held aside
+HALF_SEQ = fmt.SEQ_MODULUS // 2
+POSITION_MODULUS = 1 << fmt.POSITION_BITS
+_RECENT_STREAMS = 16  # closed streams remembered, so their late copies count as duplicates
+_RECENT_LOST = 4096  # sequence numbers declared lost remembered, so a late arrival is named as such
+
+
+@dataclass(frozen=True)
+class Delivered:
+    """The next frame of the stream, in order."""
+
+    frame: DecodedFrame
+    stream_index: int  # 0 for the first stream of the input, 1 for the next, ...
+    reordered: bool  # it had to wait for an earlier frame that arrived after it
+
+
+@dataclass(frozen=True)
+class LostRun:
+    """Consecutive sequence numbers of the current stream that never arrived.
+
+    gap_bytes is the payload the run carried, known from the stream positions of the
+    frames either side (None for version 1 frames, and when no frame follows the run)."""
+
+    stream_index: int
+    first_seq: int
+    count: int
+    gap_bytes: int | None
+
+
+@dataclass(frozen=True)
+class StreamEnded:
+    """The current stream ended; closed is False when its closing frame never came."""
+
+    stream_index: int
+    stream_id: int | None
+    closed: bool
+
+
+Event = Delivered | LostRun | StreamEnded
+
+
+def _ahead(seq: int, base: int) -> int:
+    """How far seq lies after base in serial-number order (negative: before it)."""
+    d = (seq - base) % fmt.SEQ_MODULUS
+    return d - fmt.SEQ_MODULUS if d >= HALF_SEQ else d
+
+
+@dataclass
+class _Stream:
+    key: int | None  # stream id, None for version 1 frames
+    index: int
+    expected: int = 0  # next sequence number to release
+    held: dict[int, DecodedFrame] = field(default_factory=dict)
+    overtaken: set[int] = field(default_factory=set)  # held frames that arrived after a higher one
+    highest: int | None = None  # highest sequence number seen so far
+    end_position: int | None = 0  # stream position just past the last released frame's payload
+    lost_from: int | None = None  # first sequence number of a lost run not yet reported
+    closed: bool = False
+    released: int = 0
+
+
+@dataclass
+class DeliveryCounts:
+    duplicates: int = 0
+    foreign: int = 0
+    reordered: int = 0
+    late: int = 0  # frames that came after they had been declared lost
+    repair_ignored: int = 0  # repair frames (read by a later bitmend; skipped here)
+    streams: int = 0
+    unclosed: int = 0  # streams that ended without their closing frame
+
+
+class Sequencer:
+    """Feed frames in input order with push(); take events in stream order. Call finish()
+    at the end of the input for what is still waiting."""
+
+    def __init__(self, window: int = REORDER_WINDOW) -> None:
+        if window < 1:
+            raise ValueError(f"window must be at least 1 frame, got {window}")
+        self.window = window
+        self.counts = DeliveryCounts()
+        self.notes: list[str] = []
+        self._current: _Stream | None = None
+        self._aside: list[DecodedFrame] = []  # frames of other streams while the current is open
+        self._recent_closed: deque[int] = deque(maxlen=_RECENT_STREAMS)
+        self._recent_lost: deque[tuple[int, int]] = deque(maxlen=_RECENT_LOST)
+        self._foreign_ids: dict[int, int] = {}  # stream id (-1: version 1) -> frames skipped as foreign
+        self._foreign_seen: set[int] = set()
+
+    # ---- public --------------------------------------------------------------------------
+    def push(self, frame: DecodedFrame) -> list[Event]:
+        events: list[Event] = []
+        header = frame.header
+        if header.repair:
+            self.counts.repair_ignored += 1
+            return events
+        key = header.stream_id if header.identified else None
+        current = self._current
+        if current is None:
+            self._start(key)
+        elif key != current.key:
+            if key is not None and key in self._recent_closed:
+                self.counts.duplicates += 1  # a late copy of a stream already finished
+                return events
+            if self._is_foreign(key):  # once skipped as foreign, a stream stays foreign
+                self._count_foreign(frame)
+                return events
+            if current.closed:
+                self._start(key)
+            else:
+                self._aside.append(frame)
+                if len(self._aside) >= self.window:
+                    self._resolve_aside(events, at_end=False)
+                return events
+        elif current.closed and key is None and header.seq == 0:
+            self._start(None)  # version 1: a closed stream followed by another
+        self._in_stream(frame, events)
+        return events
+
+    def finish(self) -> list[Event]:
+        """End of input: release what waits, report what never came."""
+        events: list[Event] = []
+        if self._aside:
+            self._resolve_aside(events, at_end=True)
+        current = self._current
+        if current is not None and not current.closed:
+            self._release_all(current, events)
+            self._end(current, events)
+        self._note_foreign()
+        return events
+
+    # ---- streams ---------------------------------------------------------------------------
+    def _start(self, key: int | None) -> None:
+        self._current = _Stream(key, self.counts.streams)
+        self.counts.streams += 1
+
+    def _end(self, stream: _Stream, events: list[Event]) -> None:
+        self._flush_lost(stream, None, events)
+        if not stream.closed:
+            self.counts.unclosed += 1
+        events.append(StreamEnded(stream.index, stream.key, stream.closed))
+
+    def _in_stream(self, frame: DecodedFrame, events: list[Event]) -> None:
+        stream = self._current
+        assert stream is not None
+        if self._aside:  # the current stream goes on: what was held aside was foreign
+            for other in self._aside:
+                self._count_foreign(other)
+            self._aside.clear()
+        seq = frame.header.seq
+        ahead = _ahead(seq, stream.expected)
+        if stream.closed or ahead < 0:
+            if (stream.key, seq) in self._recent_lost:
+                self.counts.late += 1
+                self.notes.append(f"frame {seq} came after it had been declared lost; dropped")
+            else:
+                self.counts.duplicates += 1
+            return
+        if seq in stream.held:
+            self.counts.duplicates += 1
+            if not stream.held[seq].crc_ok and frame.crc_ok:
+                stream.held[seq] = frame  # an intact copy replaces a damaged one still waiting
+            return
+        out_of_order = stream.highest is not None and _ahead(seq, stream.highest) < 0
+        if stream.highest is None or _ahead(seq, stream.highest) > 0:
+            stream.highest = seq
+        if ahead == 0:
+            self._release(stream, frame, out_of_order, events)
+            self._drain(stream, events)
+            return
+        stream.held[seq] = frame
+        if out_of_order:
+            stream.overtaken.add(seq)
+        # the window is full: what is more than `window` places behind the newest is not coming
+        while _ahead(seq, stream.expected) >= self.window and not stream.closed:
+            self._advance_one(stream, events)
+        self._drain(stream, events)
+
+    def _advance_one(self, stream: _Stream, events: list[Event]) -> None:
+        waiting = stream.held.pop(stream.expected, None)
+        if waiting is not None:
+            self._release(stream, waiting, self._was_overtaken(stream, stream.expected), events)
+        else:
+            if stream.lost_from is None:
+                stream.lost_from = stream.expected
+            self._recent_lost.append((stream.key, stream.expected))
+            stream.expected = (stream.expected + 1) % fmt.SEQ_MODULUS
+
+    def _drain(self, stream: _Stream, events: list[Event]) -> None:
+        while not stream.closed and stream.expected in stream.held:
+            seq = stream.expected
+            self._release(stream, stream.held.pop(seq), self._was_overtaken(stream, seq), events)
+
+    @staticmethod
+    def _was_overtaken(stream: _Stream, seq: int) -> bool:
+        if seq in stream.overtaken:
+            stream.overtaken.discard(seq)
+            return True
+        return False
+
+    def _release_all(self, stream: _Stream, events: list[Event]) -> None:
+        """End of input or of the stream: every frame still waiting is released, with the
+        frames missing before it declared lost."""
+        while stream.held and not stream.closed:
+            self._advance_one(stream, events)
+
+    def _release(self, stream: _Stream, frame: DecodedFrame, reordered: bool, events: list[Event]) -> None:
+        """reordered: the frame arrived after one with a higher sequence number."""
+        header = frame.header
+        self._flush_lost(stream, frame, events)
+        if reordered:
+            self.counts.reordered += 1
+        events.append(Delivered(frame, stream.index, reordered))
+        stream.released += 1
+        stream.expected = (header.seq + 1) % fmt.SEQ_MODULUS
+        stream.end_position = (header.position + header.length) % POSITION_MODULUS if header.identified else None
+        if header.last:
+            stream.closed = True
+            if stream.key is not None:
+                self._recent_closed.append(stream.key)
+            for seq in list(stream.held):  # frames numbered after the closing one: not of this stream
+                self._count_foreign(stream.held.pop(seq))
+            self._end(stream, events)
+            if self._aside:  # the next stream may have begun already
+                waiting, self._aside = self._aside, []
+                for other in waiting:
+                    events.extend(self.push(other))
+
+    def _flush_lost(self, stream: _Stream, following: DecodedFrame | None, events: list[Event]) -> None:
+        """Report the pending lost run, now that the frame after it (or the end) is known."""
+        if stream.lost_from is None:
+            return
+        first = stream.lost_from
+        stream.lost_from = None
+        last_missing = (following.header.seq if following is not None else stream.expected)
+        count = (last_missing - first) % fmt.SEQ_MODULUS
+        gap = None
+        if following is not None and following.header.identified and stream.end_position is not None:
+            gap = (following.header.position - stream.end_position) % POSITION_MODULUS
+        if count:
+            events.append(LostRun(stream.index, first, count, gap))
+
+    # ---- other streams -----------------------------------------------------------------------
+    def _resolve_aside(self, events: list[Event], at_end: bool) -> None:
+        """Frames of other streams arrived while the current one was open and it has not
+        come back (window full, or end of input). A stream among them that starts afresh
+        (its frame 0 is there) follows the current one, which ended unclosed; every other
+        frame aside is foreign."""
+        waiting, self._aside = self._aside, []
+        restart = next((f.header.stream_id if f.header.identified else None
+                        for f in waiting if f.header.seq == 0), "none")
+        if restart == "none" or self._is_foreign(restart):
+            for other in waiting:
+                self._count_foreign(other)
+            return
+        current = self._current
+        assert current is not None
+        self._release_all(current, events)
+        self._end(current, events)
+        self.notes.append("a stream ended without its closing frame and a new one began")
+        self._start(restart)
+        for other in waiting:
+            key = other.header.stream_id if other.header.identified else None
+            if key == restart:
+                self._in_stream(other, events)
+            else:
+                self._count_foreign(other)
+
+    def _is_foreign(self, key: int | None) -> bool:
+        return (-1 if key is None else key) in self._foreign_ids or (-1 if key is None else key) in self._foreign_seen
+
+    def _count_foreign(self, frame: DecodedFrame) -> None:
+        self.counts.foreign += 1
+        key = frame.header.stream_id if frame.header.identified else -1
+        self._foreign_ids[key] = self._foreign_ids.get(key, 0) + 1
+
+    def _note_foreign(self) -> None:
+        for key, count in list(self._foreign_ids.items())[:10]:
+            name = f"stream {key:016x}" if key >= 0 else "a version 1 stream"
+            self.notes.append(f"{count} frame{'s' if count != 1 else ''} of {name} skipped: "
+                              "they belong to another stream")
+        self._foreign_seen.update(self._foreign_ids)
+        self._foreign_ids.clear()
+
+
+def events_of(frames: Iterator[DecodedFrame], window: int = REORDER_WINDOW) -> Iterator[Event]:
+    """All delivery events for a sequence of found frames (a convenience for tests)."""
+    sequencer = Sequencer(window)
+    for frame in frames:
+        yield from sequencer.push(frame)
+    yield from sequencer.finish()
