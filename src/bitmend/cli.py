@@ -406,24 +406,30 @@ def inspect(
         with _open_input(source) as inp:
             scanner = FrameScanner(inp, decode_payloads=False)
             count = payload = wire = 0
+            streams: dict[str | None, int] = {}  # stream identity (None: version 1) -> frames
             for f in scanner.frames():
                 h = f.header
+                stream = f"{h.stream_id:016x}" if h.identified else None
                 if count == 0 and not as_json:
-                    typer.echo(f"{'seq':>8} {'offset':>12} {'code':<14}{'depth':>6}{'payload':>9}{'frame':>9}  notes")
+                    typer.echo(f"{'seq':>8} {'offset':>12} {'stream':<17}{'code':<14}{'depth':>6}{'payload':>9}"
+                               f"{'frame':>9}  notes")
                 count += 1
-                payload += h.length
+                payload += 0 if h.repair else h.length
                 wire += h.frame_bytes
-                notes = [w for w, on in (("last", h.last), ("truncated", f.truncated),
+                streams[stream] = streams.get(stream, 0) + 1
+                notes = [w for w, on in (("last", h.last), ("repair", h.repair), ("truncated", f.truncated),
                                          ("header from copy", f.header_from_copy)) if on]
                 if as_json:
                     typer.echo(json.dumps({"type": "frame", "seq": h.seq, "offset": f.offset,
+                                           "stream": stream, "version": h.version,
+                                           "position": h.position if h.identified and not h.repair else None,
                                            "code": names.get(h.code_id) or h.code_name,
                                            "depth": h.depth, "payload_bytes": h.length, "frame_bytes": h.frame_bytes,
-                                           "last": h.last, "truncated": f.truncated,
+                                           "last": h.last, "repair": h.repair, "truncated": f.truncated,
                                            "marker_distance": f.marker_distance}, separators=(",", ":")))
                 else:
-                    typer.echo(f"{h.seq:>8} {f.offset:>12} {names.get(h.code_id) or h.code_name:<14}"
-                               f"{h.depth:>6}{h.length:>9}"
+                    typer.echo(f"{h.seq:>8} {f.offset:>12} {stream or '(version 1)':<17}"
+                               f"{names.get(h.code_id) or h.code_name:<14}{h.depth:>6}{h.length:>9}"
                                f"{h.frame_bytes:>9}  {', '.join(notes)}")
             if count == 0:
                 errors = scanner.stats.header_errors
@@ -432,11 +438,14 @@ def inspect(
             overhead = wire / payload - 1 if payload else float("inf")
             if as_json:
                 typer.echo(json.dumps({"type": "summary", "frames": count, "payload_bytes": payload,
-                                       "container_bytes": wire, "skipped_bytes": scanner.stats.skipped_bytes},
+                                       "container_bytes": wire, "skipped_bytes": scanner.stats.skipped_bytes,
+                                       "streams": len(streams),
+                                       "stream_frames": [{"stream": k, "frames": v} for k, v in streams.items()]},
                                       separators=(",", ":")))
             else:
-                typer.echo(f"{count} frames, {payload} payload bytes in {wire} container bytes "
-                           f"(overhead {overhead:.1%}), {scanner.stats.skipped_bytes} bytes outside frames")
+                typer.echo(f"{count} frame{'s' if count != 1 else ''} in {len(streams)} "
+                           f"stream{'s' if len(streams) != 1 else ''}, {payload} payload bytes in {wire} container "
+                           f"bytes (overhead {overhead:.1%}), {scanner.stats.skipped_bytes} bytes outside frames")
 
 
 # ---- inject / simulate ----------------------------------------------------------------------
@@ -559,6 +568,8 @@ def plan(
     max_overhead: Optional[str] = typer.Option(None, "--max-overhead", help="Largest overhead to accept, as a "
                                                "fraction or a percentage (0.25 or 25%); counts the whole frame."),
     frame_bytes: int = typer.Option(DEFAULT_FRAME_BYTES, "--frame-bytes", help="Payload bytes per frame."),
+    max_depth: int = typer.Option(MAX_DEPTH, "--max-depth", help=f"Deepest interleaving to consider, 1..{MAX_DEPTH} "
+                                  "(latency and memory grow with the depth)."),
     code_file: Optional[list[str]] = typer.Option(None, "--code-file", help="A custom code to rank with the "
                                                   "catalog (repeatable). " + CODE_FILE_HELP),
     verify: bool = typer.Option(False, "--verify", help="Confirm the top choice with a short simulation."),
@@ -568,8 +579,9 @@ def plan(
     show: int = typer.Option(5, "--show", help="Choices to list."),
     as_json: bool = typer.Option(False, "--json", help="Machine-readable output."),
 ) -> None:
-    """Rank codes and interleaving depths that meet a residual error target on a channel, at
-    the lowest overhead; with the formulas and assumptions behind each prediction."""
+    """Rank codes that meet a residual error target on a channel by whole-frame overhead, each
+    at its cheapest interleaving depth; with the formulas and assumptions behind each
+    prediction, and on a BSC each code's distance to the best possible code."""
     from bitmend.api import load_code_file
     from bitmend.planning import make_plan
 
@@ -578,7 +590,7 @@ def plan(
             raise CliError(f"--verify-bits must be a whole number >= 1, got {verify_bits:g}", EXIT_USAGE)
         extra = [load_code_file(path) for path in code_file or ()]
         result = make_plan(channel, target, per, frame_bytes, max_overhead, extra, verify,
-                           int(verify_bits) if verify_bits else None, seed)
+                           int(verify_bits) if verify_bits else None, seed, max_depth)
         if as_json:
             typer.echo(json.dumps(result.to_dict(), indent=2))
         else:
