@@ -76,7 +76,7 @@ def test_bsc_prediction_is_the_closed_form_of_bounded_distance_decoding():
         assert c.prediction.bit_error == pytest.approx(expected_bits, rel=1e-9)
 
 
-def test_burst_channel_gets_the_smallest_depth_that_meets_the_target():
+def test_burst_channel_gets_the_depth_with_the_cheapest_whole_frame_that_meets_the_target():
     from bitmend.channel.spec import parse_channels
     from bitmend.planning import _channel, predict_depths
 
@@ -85,12 +85,78 @@ def test_burst_channel_gets_the_smallest_depth_that_meets_the_target():
     golay = next(c for c in plan.candidates if c.code == "golay-23-12")
     assert golay.meets_target and golay.depth > 1
     code = get_code("golay-23-12")
-    shallower = predict_depths(code, tuple(range(1, golay.depth + 1)), _channel(parse_channels(BURST)), 512)
-    assert [p.frame_error <= 1e-2 for p, _ in shallower] == [False] * (golay.depth - 1) + [True]
+    every = predict_depths(code, tuple(range(1, 256)), _channel(parse_channels(BURST)), 512)
+    meeting = [(header.frame_bytes, depth) for depth, (p, header) in enumerate(every, 1) if p.frame_error <= 1e-2]
+    assert (golay.frame_wire_bytes, golay.depth) == min(meeting)  # least frame, the shallower on a tie
+    assert golay.frame_wire_bytes == fmt.FrameHeader(code_id("golay-23-12"), golay.depth, 0, 512).frame_bytes
     # the depth corrects every burst up to D t bits; the plan says which share of spells that is
     assert golay.burst_covered_bits == golay.depth * code.t
     assert golay.burst_quantile == pytest.approx(1 - 0.9 ** (golay.depth * code.t))
     assert "10 bits on average" in plan.depth_rule and "99% at most 44" in plan.depth_rule
+    assert "least whole-frame overhead" in plan.depth_rule and "--max-depth" in plan.depth_rule
+    assert "whole frame" in plan.rank_rule
+
+
+def test_a_deeper_cheaper_depth_outranks_a_shallow_dearer_one_on_the_issue_burst_channel():
+    # issue 13: on this channel at 1e-9, rs-255-239 meets the target at a depth whose whole
+    # frame costs less than rs-204-188 at the smallest depth where that one meets it
+    plan = make_plan("burst:enter=1e-4,leave=0.1,bad=0.5", target=1e-9)
+    names = [c.code for c in plan.ranked]
+    assert names.index("rs-255-239") < names.index("rs-204-188")
+    rs239 = next(c for c in plan.ranked if c.code == "rs-255-239")
+    rs204 = next(c for c in plan.ranked if c.code == "rs-204-188")
+    assert rs239.overhead < rs204.overhead and rs239.depth > rs204.depth
+    for c in (rs239, rs204):  # overheads from the container's own header, whatever its version
+        assert c.frame_wire_bytes == fmt.FrameHeader(code_id(c.code), c.depth, 0, 16384).frame_bytes
+    overheads = [c.overhead for c in plan.ranked]
+    assert overheads == sorted(overheads)
+
+
+def test_max_depth_bounds_every_choice_and_is_said_in_the_output():
+    plan = make_plan("burst:enter=1e-4,leave=0.1,bad=0.5", target=1e-9, max_depth=8)
+    assert plan.max_depth == 8 and all(c.depth <= 8 for c in plan.candidates)
+    free = make_plan("burst:enter=1e-4,leave=0.1,bad=0.5", target=1e-9)
+    bounded = {c.code: c for c in plan.ranked}
+    for c in free.ranked:  # a bound never makes a choice cheaper
+        if c.code in bounded:
+            assert bounded[c.code].overhead >= c.overhead - 1e-12
+    assert "depths 1..8 (--max-depth" in "\n".join(plan.render())
+    with pytest.raises(PlanError, match="--max-depth"):
+        make_plan("bsc:p=1e-3", target=1e-6, max_depth=0)
+
+
+def test_plan_says_which_weight_distributions_were_skipped_for_cost_and_bounds_their_bit_error():
+    plan = make_plan("bsc:p=1e-2", target=0.5, per="frame", frame_bytes=1024)
+    text = " ".join(plan.assumptions)
+    code = get_code("bch-63-45")
+    assert _weights(code) is None and code.weight_distribution is not None  # listable, but past the plan's budget
+    assert "skipped for cost for" in text and "bch-63-45" in text and "upper bound" in text
+    c = next(c for c in plan.candidates if c.code == "bch-63-45")
+    assert not c.weights_known
+    exact = residual.codeword_outcome(residual.bsc_error_counts(63, 1e-2), code.t,
+                                      tuple(code.weight_distribution.counts)).bit_error
+    assert c.prediction.codeword_bit_error >= exact  # the bound holds against the listed distribution
+
+
+def test_on_a_bsc_each_choice_carries_its_rate_gap_to_the_converse():
+    from bitmend.analysis import limits
+
+    p = 1e-3
+    plan = make_plan(f"bsc:p={p}", target=1e-6, per="bit", frame_bytes=2048)
+    assert "rate gap" in "\n".join(plan.render()) and "converse" in plan.limit_note
+    for c in plan.candidates:
+        code = get_code(c.code)
+        s = getattr(code, "symbol_bits", 1)
+        if not 0 < c.prediction.block_error < limits.MAX_BLOCK_ERROR:
+            assert c.limit is None
+            continue
+        best = limits.converse_log2m(c.n * s, p, c.prediction.block_error) / (c.n * s)
+        assert c.limit_gap == pytest.approx(best - c.k / c.n, abs=1e-9)
+        assert c.limit_gap >= -1e-9  # no code beats the converse
+    hamming = next(c for c in plan.candidates if c.code == "hamming-7-4")
+    assert hamming.limit_gap == 0.0  # a perfect code meets it
+    burst = make_plan(BURST, target=1e-2, per="frame", frame_bytes=512)
+    assert all(c.limit is None for c in burst.candidates) and "memoryless BSC only" in burst.limit_note
 
 
 def test_burst_prediction_agrees_with_a_simulation_of_the_chain():
@@ -163,7 +229,8 @@ def test_plan_cli_json_and_text():
     assert run.code == 0, run.err
     plan = json.loads(run.out)
     assert plan["met"] and plan["ranked"][0]["meets_target"]
-    assert {"formulas", "assumptions", "depth_rule"} <= set(plan)
+    assert {"formulas", "assumptions", "depth_rule", "rank_rule", "max_depth", "limit_note"} <= set(plan)
+    assert plan["ranked"][0]["limit"]["rate_converse"] >= plan["ranked"][0]["limit"]["rate"] - 1e-9
     assert plan["ranked"][0]["predicted"]["frame_error"] <= 1e-3
     text = run_cli("plan", "--channel", BURST, "--target", "1e-6")
     assert text.code == 0, text.err
@@ -176,6 +243,7 @@ def test_plan_cli_json_and_text():
     ("plan", "--channel", "bsc:q=1e-3", "--target", "1e-6"),
     ("plan", "--channel", "bsc:p=1e-3", "--target", "1e-6", "--max-overhead", "cheap"),
     ("plan", "--channel", "bsc:p=1e-3"),
+    ("plan", "--channel", "bsc:p=1e-3", "--target", "1e-6", "--max-depth", "256"),
 ])
 def test_plan_usage_errors_exit_2_with_one_line(args):
     run = run_cli(*args)

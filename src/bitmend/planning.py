@@ -22,10 +22,18 @@ Overhead counts everything on the wire for a full frame: marker, header and its 
 codewords and to whole bytes, and, for a code defined in the stream, its two
 definition blocks. `FrameHeader(...).frame_bytes` gives the exact size.
 
-The depth for a channel with memory (bursts, byte substitutions) is the smallest of 1..255
-that meets the target; all depths are evaluated at once. The plan then says which share of
-the chain's bad spells it covers: depth D corrects every burst of up to D t bits, and spell
-lengths are geometric with mean 1/leave.
+Every depth 1..max_depth (255 unless `--max-depth` bounds it: latency and memory grow with
+the depth) is evaluated at once; each code runs at the depth that meets the target with the
+least whole-frame overhead (the shallower on a tie), and codes are ranked by that overhead.
+The overhead is not monotone in the depth (padding to whole groups of D codewords), so the
+smallest depth that meets the target is not always the cheapest. On a burst channel the plan
+says which share of the chain's bad spells the depth covers: depth D corrects every burst of
+up to D t bits, and spell lengths are geometric with mean 1/leave.
+
+On a binary symmetric channel each choice also carries its distance to the limit
+(`analysis.limits`): the best rate any code of its length could have at its block error
+(the binomial converse of Polyanskiy, Poor and Verdu, 2010; the normal approximation beyond
+EXACT_MAX_N bits), minus its own rate.
 
 Codes over bytes (Reed-Solomon) are planned in wrong symbols instead of wrong bits; codes
 whose weight distribution is not listed count every failure as a miscorrection, so their
@@ -41,7 +49,7 @@ from typing import Sequence
 
 import numpy as np
 
-from bitmend.analysis import residual
+from bitmend.analysis import limits, residual
 from bitmend.channel.models import BSC, BitSlip, ByteSubstitution, ChannelModel, FrameDrop, GilbertElliott
 from bitmend.channel.spec import ChannelSpecError, parse_channels
 from bitmend.codes.catalog import MAX_DEPTH, code_names, get_code
@@ -105,6 +113,16 @@ class Candidate:
     burst_covered_bits: int | None = None  # D t, on a burst channel
     burst_quantile: float | None = None  # share of bad spells no longer than D t
     weights_known: bool = True  # False: every failure counted as a miscorrection (bit error a bound)
+    limit: limits.DistanceToLimit | None = None  # on a BSC: the best code of the same length, same block error
+
+    @property
+    def limit_gap(self) -> float | None:
+        """Best rate of a code of the same length at the same block error minus this code's
+        rate: the converse (no code does better) where computed, else the normal approximation."""
+        if self.limit is None:
+            return None
+        gap = self.limit.rate_gap_most if self.limit.exact else self.limit.rate_gap
+        return 0.0 if abs(gap) < 1e-9 else gap
 
     @property
     def times_target(self) -> float:
@@ -117,7 +135,8 @@ class Candidate:
                "overhead": self.overhead, "rate": self.rate, "times_target": self.times_target,
                "meets_target": self.meets_target, "within_overhead": self.within_overhead,
                "weights_known": self.weights_known,
-               "predicted": self.prediction.to_dict()}
+               "predicted": self.prediction.to_dict(),
+               "limit": None if self.limit is None else {**self.limit.to_dict(), "rate_gap_shown": self.limit_gap}}
         if self.burst_covered_bits is not None:
             out["burst_covered_bits"] = self.burst_covered_bits
             out["burst_quantile"] = self.burst_quantile
@@ -170,6 +189,9 @@ class Plan:
     depth_rule: str
     skipped: tuple[str, ...] = ()
     verification: Verification | None = None
+    max_depth: int = MAX_DEPTH
+    rank_rule: str = ""
+    limit_note: str = ""
 
     @property
     def top(self) -> Candidate | None:
@@ -183,7 +205,8 @@ class Plan:
                 "closest": [c.to_dict() for c in self.closest],
                 "over_budget": [c.to_dict() for c in self.over_budget],
                 "formulas": list(self.formulas), "assumptions": list(self.assumptions),
-                "depth_rule": self.depth_rule, "skipped": list(self.skipped),
+                "depth_rule": self.depth_rule, "rank_rule": self.rank_rule, "max_depth": self.max_depth,
+                "limit_note": self.limit_note, "skipped": list(self.skipped),
                 "verification": self.verification.to_dict() if self.verification else None}
 
     def render(self, shown: int = SHOWN) -> list[str]:
@@ -362,6 +385,17 @@ class _Setup:
     per: str
     frame_bytes: int
     max_overhead: float | None
+    max_depth: int = MAX_DEPTH
+
+    @property
+    def bsc_p(self) -> float | None:
+        """The crossover probability when the flips are those of a memoryless BSC (one or
+        several combined); None for channels with memory, where the limits do not apply."""
+        flips = self.channel.flips
+        if not flips or not all(isinstance(m, BSC) for m in flips):
+            return None
+        p = (1.0 - math.prod(1.0 - 2.0 * m.p for m in flips)) / 2.0
+        return p if 0.0 < p < 0.5 else None
 
 
 def _candidate(setup: _Setup, code, custom: bool, depth: int, prediction: Prediction,
@@ -379,24 +413,33 @@ def _candidate(setup: _Setup, code, custom: bool, depth: int, prediction: Predic
         # burst inside D t whole symbols, which any burst of s (D t - 1) + 1 bits is
         covered = depth * code.t if bits == 1 else bits * (depth * code.t - 1) + 1
         quantile = min(residual.burst_length_quantile(m.leave, covered) for m in bursts)
+    limit = None
+    p = setup.bsc_p
+    if p is not None:
+        bits = _symbol_bits(code)
+        limit = limits.distance_to_limit(code.n * bits, code.k * bits, p, prediction.block_error)
     return Candidate(code.name, code.n, code.k, code.d, code.t, depth, custom, header.frame_bytes, _blocks(header),
                      overhead, prediction, rate, rate <= setup.target,
                      setup.max_overhead is None or overhead <= setup.max_overhead + 1e-12, setup.target,
-                     covered, quantile, weights_known)
+                     covered, quantile, weights_known, limit)
 
 
-def _best_depth(setup: _Setup, code, custom: bool) -> Candidate:
-    """The code at the smallest depth that meets the target, or at the depth that comes
-    closest. Every depth is evaluated (the error counts of all depths come out of one
-    recursion): the frame rate is not monotone in the depth at fine grain, because the
-    padding to whole groups changes the number of codewords per frame."""
-    depths = tuple(range(1, MAX_DEPTH + 1)) if setup.channel.has_memory else (1,)
-    # independent errors: the depth changes only the padding, and depth 1 pads least
+def _cheapest_depth(setup: _Setup, code, custom: bool) -> Candidate:
+    """The code at the depth of 1..max_depth that meets the target with the least
+    whole-frame overhead (the shallower on a tie: less latency and memory), or, when none
+    meets it, at the depth that comes closest. Every depth is evaluated (the error counts of
+    all depths come out of one recursion; on a memoryless channel they are the same at every
+    depth): neither the rate nor the overhead is monotone in the depth at fine grain, because
+    the padding to whole groups changes the number of codewords per frame."""
+    depths = tuple(range(1, setup.max_depth + 1))
     weights = _weights(code)
     predictions = predict_depths(code, depths, setup.channel, setup.frame_bytes, custom, weights)
     rates = [prediction.rate(setup.per) for prediction, _ in predictions]
     meeting = [i for i, rate in enumerate(rates) if rate <= setup.target]
-    pick = meeting[0] if meeting else min(range(len(depths)), key=lambda i: (rates[i], i))
+    if meeting:
+        pick = min(meeting, key=lambda i: (predictions[i][1].frame_bytes, i))
+    else:
+        pick = min(range(len(depths)), key=lambda i: (rates[i], i))
     return _candidate(setup, code, custom, depths[pick], *predictions[pick], weights_known=weights is not None)
 
 
@@ -418,8 +461,9 @@ def parse_overhead(text: str | float | None) -> float | None:
 def make_plan(channels: str | ChannelModel | Sequence[str | ChannelModel], target: float, per: str = "bit",
               frame_bytes: int = fmt.DEFAULT_FRAME_BYTES, max_overhead: float | str | None = None,
               extra_codes: Sequence[BinaryLinearCode] = (), verify: bool = False, verify_bits: int | None = None,
-              seed: int = 1) -> Plan:
-    """Rank catalog codes (and extra_codes) with their depths against the target."""
+              seed: int = 1, max_depth: int = MAX_DEPTH) -> Plan:
+    """Rank catalog codes (and extra_codes), each at its cheapest depth of 1..max_depth that
+    meets the target, by whole-frame overhead."""
     try:
         models = parse_channels(channels)
     except ChannelSpecError as exc:
@@ -430,9 +474,11 @@ def make_plan(channels: str | ChannelModel | Sequence[str | ChannelModel], targe
         raise PlanError(f"--per must be bit or frame, got {per!r}")
     if not 1 <= frame_bytes <= fmt.MAX_PAYLOAD_BYTES:
         raise PlanError(f"--frame-bytes must be 1..{fmt.MAX_PAYLOAD_BYTES}, got {frame_bytes}")
+    if not 1 <= max_depth <= MAX_DEPTH:
+        raise PlanError(f"--max-depth must be 1..{MAX_DEPTH}, got {max_depth}")
     limit = parse_overhead(max_overhead)
     channel = _channel(models)
-    setup = _Setup(channel, float(target), per, frame_bytes, limit)
+    setup = _Setup(channel, float(target), per, frame_bytes, limit, int(max_depth))
 
     codes: list[tuple[BinaryLinearCode, bool]] = []
     skipped = []
@@ -447,7 +493,7 @@ def make_plan(channels: str | ChannelModel | Sequence[str | ChannelModel], targe
     candidates = []
     for code, custom in codes:
         try:
-            candidates.append(_best_depth(setup, code, custom))
+            candidates.append(_cheapest_depth(setup, code, custom))
         except ValueError as exc:  # e.g. a custom code's frames too large for the reader's limit
             skipped.append(f"{code.name}: {exc}")
     ranked = sorted((c for c in candidates if c.meets_target and c.within_overhead),
@@ -460,9 +506,10 @@ def make_plan(channels: str | ChannelModel | Sequence[str | ChannelModel], targe
                 frame_bytes, limit, tuple(candidates), tuple(ranked), closest, tuple(over[:3]),
                 _formulas(channel, per, any(_symbol_bits(code) > 1 for code, _ in codes)),
                 _assumptions(channel, per, any(custom for _, custom in codes),
-                             [code.name for code, _ in codes if _weights(code) is None and _symbol_bits(code) == 1],
+                             [code for code, _ in codes if _weights(code) is None and _symbol_bits(code) == 1],
                              any(_symbol_bits(code) > 1 for code, _ in codes)),
-                _depth_rule(channel), tuple(skipped))
+                _depth_rule(channel, setup.max_depth), tuple(skipped), max_depth=setup.max_depth,
+                rank_rule=RANK_RULE, limit_note=_limit_note(setup))
     if verify and ranked:
         plan = Plan(**{**plan.__dict__, "verification": verify_candidate(plan, ranked[0], extra_codes,
                                                                           verify_bits, seed)})
@@ -561,7 +608,22 @@ def _formulas(channel: _Channel, per: str, symbols: bool = False) -> tuple[str, 
     return tuple(lines)
 
 
-def _assumptions(channel: _Channel, per: str, custom: bool, unweighted: Sequence[str] = (),
+def _unweighted_text(unweighted: Sequence) -> str:
+    """Which binary codes go without a weight distribution, and why: skipped for cost (it
+    could be listed, at more work than the plan spends on one code) or not known at all."""
+    costly = [c.name for c in unweighted if getattr(c, "weight_distribution_available", True)]
+    unknown = [c.name for c in unweighted if c.name not in costly]
+    parts = []
+    if costly:
+        parts.append(f"weight distribution skipped for cost for {', '.join(costly)} (listing 2^min(k, n-k) words of "
+                     f"n bits exceeds the {WEIGHT_WORK_LIMIT:,} bit-words the plan spends on one code)")
+    if unknown:
+        parts.append(f"no weight distribution known for {', '.join(unknown)} (too large to list)")
+    return ("; ".join(parts) + ": every failure of these codes is counted as a miscorrection (m_i = 1), so their "
+            "bit error is an upper bound; t is the designed t where only that is known")
+
+
+def _assumptions(channel: _Channel, per: str, custom: bool, unweighted: Sequence = (),
                  symbols: bool = False) -> tuple[str, ...]:
     lines = ["bounded-distance decoding: up to t errors per codeword are corrected; more are flagged or "
              "miscorrected, and the frame's CRC-32C catches a miscorrection (it lets one through with "
@@ -573,9 +635,7 @@ def _assumptions(channel: _Channel, per: str, custom: bool, unweighted: Sequence
                      "counted, so the prediction errs on the safe side); every failure counts as a "
                      "miscorrection and a wrong byte as 128/255 wrong bits, so the bit error is an upper bound")
     if unweighted:
-        lines.append(f"no weight distribution listed for {', '.join(unweighted)} (too large): every failure is "
-                     "counted as a miscorrection (m_i = 1), so their bit error is an upper bound; t is the "
-                     "designed t where only that is known")
+        lines.append(_unweighted_text(unweighted))
     if per == "bit":
         lines.append("the bit rate counts payload bits as `decode --on-error keep` writes them, wrong or not, "
                      "before the CRC flags the frame; frames lost outright deliver nothing and are not counted")
@@ -607,11 +667,18 @@ def _assumptions(channel: _Channel, per: str, custom: bool, unweighted: Sequence
     return tuple(lines)
 
 
-def _depth_rule(channel: _Channel) -> str:
+RANK_RULE = ("codes are ranked by the overhead of a whole frame on the wire (marker, both headers, CRC, parity, "
+             "padding), cheapest first, each at its cheapest depth that meets the target")
+
+
+def _depth_rule(channel: _Channel, max_depth: int = MAX_DEPTH) -> str:
+    bound = (f"depths 1..{max_depth} (--max-depth; latency and memory grow with the depth)" if max_depth < MAX_DEPTH
+             else f"depths 1..{MAX_DEPTH} (bound them with --max-depth: latency and memory grow with the depth)")
     if not channel.has_memory:
-        return ("errors are independent from bit to bit: interleaving changes nothing but padding, "
-                "so every code runs at depth 1")
-    parts = ["each code runs at the smallest depth D whose predicted rate meets the target "
+        return (f"each code runs at the depth with the least whole-frame overhead that meets the target, over {bound}; "
+                "errors are independent from bit to bit, so interleaving changes only the padding")
+    parts = [f"each code runs at the depth D with the least whole-frame overhead whose predicted rate meets the "
+             f"target, over {bound}; the shallower on a tie "
              "(deeper spreads a burst over more codewords: a burst of b bits puts at most ceil(b/D) "
              "errors in any one codeword, so D corrects every burst up to D t bits)"]
     for m in channel.bursts:
@@ -619,13 +686,27 @@ def _depth_rule(channel: _Channel) -> str:
             q90 = residual.burst_length_for_quantile(m.leave, 0.9)
             q99 = residual.burst_length_for_quantile(m.leave, 0.99)
             parts.append(f"bad spells of {m.spec} last {m.mean_burst_bits:.3g} bits on average (1/leave); "
-                         f"90% are at most {q90:.0f} bits, 99% at most {q99:.0f} (geometric lengths). The depth "
-                         "covers the quantile the target needs, no more: rarer, longer spells cost less than the "
-                         "target allows, and a spell flips only about 'bad' x its length bits, so even some "
-                         "longer ones are corrected")
+                         f"90% are at most {q90:.0f} bits, 99% at most {q99:.0f} (geometric lengths). Rarer, "
+                         "longer spells may cost less than the target allows, and a spell flips only about "
+                         "'bad' x its length bits, so even some longer ones are corrected")
         else:
             parts.append(f"{m.spec}: a bad spell never ends (leave = 0); no depth covers it")
     return "; ".join(parts)
+
+
+def _limit_note(setup: _Setup) -> str:
+    if setup.bsc_p is None:
+        return ("limit: the distance to the best possible code (Polyanskiy, Poor and Verdu, 2010) is computed for "
+                "a memoryless BSC only; this channel has memory or no bit flips, so the column is left empty")
+    return (f"limit: 'rate gap' = the best rate any code of the same length (in bits) could have at the same block "
+            f"error on this BSC (p = {setup.bsc_p:.3g}), minus the code's rate: the binomial converse (no code does "
+            f"better; 0 means none does), or the normal approximation above {limits.EXACT_MAX_N} bits "
+            "(Polyanskiy, Poor and Verdu, IEEE Trans. IT 56(5), 2010)")
+
+
+def _gap(c: Candidate) -> str:
+    gap = c.limit_gap
+    return f"{'-':>9}" if gap is None else f"{gap:>+9.4f}"
 
 
 def _pct(x: float) -> str:
@@ -634,15 +715,18 @@ def _pct(x: float) -> str:
 
 def _share(q: float) -> str:
     """A share close to 1 written so that its distance from 1 stays visible."""
+    if 1 - q <= 0:
+        return "all"
     return f"{100 * q:.1f}%" if 1 - q >= 1e-3 else f"all but {1 - q:.1e}"
 
 
 def _describe(c: Candidate, per: str) -> str:
     p = c.prediction
     row = (f"{c.code:<16}{c.depth:>6}{_pct(c.overhead):>10}{p.bit_error:>11.2e}{p.frame_error:>12.2e}"
-           f"{p.block_error:>12.2e}")
+           f"{p.block_error:>12.2e}{_gap(c)}")
     if c.burst_covered_bits is not None:
-        row += f"   bursts <= {c.burst_covered_bits} bits ({_share(c.burst_quantile)} of bad spells)"
+        share = _share(c.burst_quantile)
+        row += f"   bursts <= {c.burst_covered_bits} bits ({'all' if share == 'all' else share + ' of'} bad spells)"
     return row
 
 
@@ -651,11 +735,12 @@ def _render(plan: Plan, shown: int) -> list[str]:
     limit = "no limit" if plan.max_overhead is None else f"at most {_pct(plan.max_overhead)}"
     lines = ["channel:"] + [f"  {spec}: {text}" for spec, text in zip(plan.channels, plan.channel_lines)]
     lines += [f"target: at most {plan.target:.3g} {what}; frames of {plan.frame_bytes} payload bytes; "
-              f"overhead {limit}", f"depth: {plan.depth_rule}", ""]
-    head = f"{'code':<16}{'depth':>6}{'overhead':>10}{'bit err':>11}{'frame err':>12}{'block err':>12}"
+              f"overhead {limit}", f"rank: {plan.rank_rule}", f"depth: {plan.depth_rule}", plan.limit_note, ""]
+    head = (f"{'code':<16}{'depth':>6}{'overhead':>10}{'bit err':>11}{'frame err':>12}{'block err':>12}"
+            f"{'rate gap':>9}")
     if plan.ranked:
         lines.append(f"{len(plan.ranked)} choice{'s' * (len(plan.ranked) != 1)} meet the target; "
-                     f"cheapest first:")
+                     f"cheapest whole frame first:")
         lines.append("rank " + head)
         for i, c in enumerate(plan.ranked[:shown], 1):
             lines.append(f"{i:>4} " + _describe(c, plan.per))
