@@ -46,7 +46,13 @@ def inject(source: BinaryIO, sink: BinaryIO, channels: str | ChannelModel | Sequ
            progress: Callable[[int], None] | None = None) -> Ledger:
     """Copy source to sink through the channel chain; the ledger of what was done.
     progress(bytes read so far) is called after every read."""
-    chain = make_chain(channels, seed)
+    return run_chain(make_chain(channels, seed), source, sink, chunk_bytes=chunk_bytes, progress=progress)
+
+
+def run_chain(chain: ChannelChain, source: BinaryIO, sink: BinaryIO, *, chunk_bytes: int = CHUNK_BYTES,
+              progress: Callable[[int], None] | None = None) -> Ledger:
+    """`inject` through a chain the caller made (`make_chain`), so that `chain.ledger()` still
+    says what was done if the run stops early (a closed pipe, a signal)."""
 
     def chunks() -> Iterator[bytearray]:
         done = 0
