@@ -3,12 +3,16 @@
     python fuzz/fuzz_decoder.py -max_total_time=60 [-runs=N] [corpus_dir]
 
 Each input is read as a recipe: it picks a payload, a code, a depth and a frame size,
-builds a real container, then damages it (bit flips, bursts, inserted, deleted or
-overwritten bytes, truncation, raw fuzz bytes spliced in) and decodes it under a random
+builds a real container, and a second encode of the same size and settings (another
+stream); it rearranges whole frames (replays, swaps, moves, frames spliced in from the other
+stream, the other stream appended), then damages bytes (bit flips, bursts, inserted, deleted
+or overwritten bytes, truncation, raw fuzz bytes spliced in) and decodes it under a random
 on-error policy. Invariants, checked on every input:
   - decoding ends with data and a report, or with NotAContainerError; nothing else escapes;
-  - every frame reported clean or corrected holds exactly the bytes written to it;
-  - an undamaged container decodes completely.
+  - every frame reported clean or corrected holds exactly the bytes written to it, in its
+    own stream, and no frame is delivered twice;
+  - a report that says complete has output equal to the stream(s) written;
+  - an undamaged, unrearranged container decodes completely.
 A broken invariant raises, which atheris reports as a crash with the input that caused it.
 """
 
@@ -19,22 +23,60 @@ import sys
 import atheris
 
 with atheris.instrument_imports():
+    import io
+
     import bitmend
     from bitmend.codes.catalog import code_names
+    from bitmend.container.reader import FrameScanner
 
 CODES = code_names()
 POLICIES = ("keep", "zero", "drop")
+STREAM_A, STREAM_B = 0xA, 0xB
 
 
-def check(result: bitmend.Decoded, data: bytes, frame_bytes: int) -> None:
+def check(result: bitmend.Decoded, streams: dict[str, bytes], frame_bytes: int, whole: list[bytes]) -> None:
+    seen = set()
     for report in result.report.frames:
+        if report.status == "lost":
+            continue
+        if (report.stream, report.seq) in seen:
+            raise AssertionError(f"frame {report.seq} of stream {report.stream} delivered twice")
+        seen.add((report.stream, report.seq))
         if report.status in ("clean", "corrected"):
+            data = streams[report.stream]
             start = report.seq * frame_bytes
             got = result.data[report.out_offset: report.out_offset + report.bytes]
             if got != data[start: start + report.bytes]:
                 raise AssertionError(f"frame {report.seq} reported {report.status} but its bytes are wrong")
-    if result.report.complete and result.data != data:
+    if result.report.complete and result.data not in whole:
         raise AssertionError("report says complete but the output differs from the input")
+
+
+def frames_of(container: bytes) -> list[bytes]:
+    """An undamaged container cut into its frames."""
+    spans = [(f.offset, f.header.frame_bytes) for f in FrameScanner(io.BytesIO(container), decode_payloads=False).frames()]
+    return [container[start: start + size] for start, size in spans]
+
+
+def rearrange(fdp: atheris.FuzzedDataProvider, a: list[bytes], b: list[bytes]) -> tuple[list[bytes], bool]:
+    """Up to four whole-frame steps on stream a's frames; (frames, True if b was appended whole)."""
+    frames = list(a)
+    for _ in range(fdp.ConsumeIntInRange(0, 4)):
+        if not frames:
+            break
+        kind = fdp.ConsumeIntInRange(0, 3)
+        i = fdp.ConsumeIntInRange(0, len(frames) - 1)
+        j = fdp.ConsumeIntInRange(0, len(frames) - 1)
+        if kind == 0:  # replay
+            frames.insert(j, frames[i])
+        elif kind == 1:  # swap
+            frames[i], frames[j] = frames[j], frames[i]
+        elif kind == 2:  # move far
+            frames.insert(j, frames.pop(i))
+        elif b:  # splice a frame of the other stream in
+            frames[i] = b[min(i, len(b) - 1)]
+    appended = fdp.ConsumeBool()
+    return frames + (b if appended else []), appended
 
 
 def damage(fdp: atheris.FuzzedDataProvider, container: bytearray) -> bool:
@@ -70,16 +112,22 @@ def test_one_input(raw: bytes) -> None:
     frame_bytes = fdp.ConsumeIntInRange(1, 600)
     data = fdp.ConsumeBytes(fdp.ConsumeIntInRange(0, 2000))
     policy = POLICIES[fdp.ConsumeIntInRange(0, len(POLICIES) - 1)]
-    container = bytearray(bitmend.encode_bytes(data, code=code, depth=depth, frame_bytes=frame_bytes))
+    other = bytes(reversed(data))
+    first = bitmend.encode_bytes(data, code=code, depth=depth, frame_bytes=frame_bytes, stream_id=STREAM_A)
+    second = bitmend.encode_bytes(other, code=code, depth=depth, frame_bytes=frame_bytes, stream_id=STREAM_B)
+    a_frames = frames_of(first)
+    frames, appended = rearrange(fdp, a_frames, frames_of(second))
+    container = bytearray(b"".join(frames))
     changed = damage(fdp, container)
     try:
         result = bitmend.decode_bytes(bytes(container), on_error=policy)
     except bitmend.NotAContainerError:
-        if not changed:
+        if not changed and frames:
             raise AssertionError("an undamaged container was not recognised")
         return
-    check(result, data, frame_bytes)
-    if not changed and not (result.report.complete and result.data == data):
+    streams = {f"{STREAM_A:016x}": data, f"{STREAM_B:016x}": other}
+    check(result, streams, frame_bytes, [data, data + other] if appended else [data])
+    if not changed and frames == a_frames and not (result.report.complete and result.data == data):
         raise AssertionError("an undamaged container did not decode completely")
 
 
