@@ -109,7 +109,8 @@ def test_burst_block_error_averages_to_the_exact_gilbert_elliott_value():
     events = sum(r.block_error.events for r in runs)
     trials = sum(r.block_error.trials for r in runs)
     assert events / trials == pytest.approx(runs[0].theory.block_error, rel=0.12)
-    assert any("cluster" in note for note in runs[0].notes)
+    assert any("cluster" in note and "batch means" in note for note in runs[0].notes)
+    assert all(r.block_error.method == "batch-means" and r.block_error.design_effect > 1 for r in runs)
 
 
 def test_byte_substitutions_at_depth_eight_average_to_the_binomial_value():
@@ -153,7 +154,8 @@ def test_result_json_carries_measured_theory_and_uncoded():
     assert record["code"] == "secded-39-32" and record["depth"] == 4 and record["seed"] == 13
     for name in ("bit_error", "block_error", "detected", "undetected", "frame_error"):
         m = record["measured"][name]
-        assert m["low"] <= m["rate"] <= m["high"] and set(m) == {"events", "trials", "rate", "low", "high"}
+        assert m["low"] <= m["rate"] <= m["high"]
+        assert set(m) == {"events", "trials", "rate", "low", "high", "method", "design_effect"}
         assert name in record["theory"]
     assert record["uncoded"]["bit_error"] == pytest.approx(1e-3)
     assert isinstance(result, SimulationResult)

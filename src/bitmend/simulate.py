@@ -12,17 +12,26 @@ continuous channel (a Gilbert-Elliott chain keeps its state from frame to frame)
 marker and the headers are not sent: they are coded more strongly than any payload and
 their losses are the container's business, not the code's.
 
-What is counted, each with an exact (Clopper-Pearson) 95% interval:
+What is counted, each with a 95% interval:
 
-- residual bit error: payload bits wrong after decoding, per payload bit. (The interval
-  treats bits as independent trials; errors left by a decoder come in clusters, so it is
-  narrower than the truth when few blocks failed. The block counts below do not have this
-  problem.)
+- residual bit error: payload bits wrong after decoding, per payload bit. Wrong bits come
+  in clusters (the bits of one failed codeword), on every channel, so its interval is the
+  batch-means one below.
 - block error: codewords not restored (decoded message wrong, or flagged uncorrectable),
   split into detected (status 255: flagged) and undetected (message wrong, not flagged: a
   miscorrection that only the frame CRC can catch).
 - frame error: frames whose CRC-32C fails after decoding, i.e. the frames `decode` would
   report as damaged.
+
+Intervals. On a BSC codewords fail independently, and the block, detected, undetected and
+frame counts get the exact Clopper-Pearson interval. On a channel with memory (burst,
+bytes) failures cluster inside interleaved groups and bursts, 2-3x beyond a binomial count,
+and a binomial interval covers the truth about half the time; there every rate (and the
+bit error everywhere) gets the batch-means interval of `analysis.intervals`: the run is cut
+into batches of consecutive frames, each spanning more bits than the channel remembers,
+the rate's variance is taken from the batch totals, and Clopper-Pearson is applied to the
+effective sample it implies (Korn and Graubard 1998). `Measured.method` names the method
+and `design_effect` how much the clustering widened the interval.
 
 Theory beside them where a closed form exists (`theory_for`): bounded-distance decoding on
 a binary symmetric channel (block error exact; detected/undetected split from the weight
@@ -48,7 +57,7 @@ from typing import Callable, Sequence
 
 import numpy as np
 
-from bitmend.analysis import residual, theory
+from bitmend.analysis import intervals, residual, theory
 from bitmend.channel.chain import ChannelChain, fresh_seed
 from bitmend.channel.models import BSC, ByteSubstitution, ChannelModel, GilbertElliott
 from bitmend.channel.spec import ChannelSpecError, parse_channels, parse_sweep, sweep_channels
@@ -61,23 +70,33 @@ CONFIDENCE = 0.95
 FAILED = 255
 DATA_STREAM = 0xDA7A  # spawn key of the payload generator, apart from the channel's (stage index)
 MAX_BITS = 1 << 44  # payload bits per run: a guard against typing an exponent too many
+MEMORY_SPANS = 20  # a batch spans at least this many of the chain's correlation lengths 1/(enter+leave)
 
 
 # ---- results ---------------------------------------------------------------------------------
 
 @dataclass(frozen=True)
 class Measured:
-    """A rate seen as `events` in `trials`, with its exact binomial interval."""
+    """A rate seen as `events` in `trials`, with its interval: exact binomial
+    (Clopper-Pearson) for independent trials, batch means over frames where events cluster."""
 
     events: int
     trials: int
     low: float
     high: float
+    method: str = "clopper-pearson"
+    design_effect: float = 1.0  # variance of the batch totals over a binomial's (1: none seen)
 
     @classmethod
     def of(cls, events: int, trials: int, confidence: float = CONFIDENCE) -> "Measured":
         low, high = theory.binomial_interval(int(events), int(trials), confidence)
         return cls(int(events), int(trials), low, high)
+
+    @classmethod
+    def from_tally(cls, tally: "intervals.BatchTally", confidence: float = CONFIDENCE) -> "Measured":
+        """From per-batch totals of events and trials (`intervals.BatchTally.interval`)."""
+        got = tally.interval(confidence)
+        return cls(tally.events, tally.trials, got.low, got.high, got.method, got.design_effect)
 
     @property
     def rate(self) -> float:
@@ -87,7 +106,8 @@ class Measured:
         return self.low <= value <= self.high
 
     def to_dict(self) -> dict:
-        return {"events": self.events, "trials": self.trials, "rate": self.rate, "low": self.low, "high": self.high}
+        return {"events": self.events, "trials": self.trials, "rate": self.rate, "low": self.low, "high": self.high,
+                "method": self.method, "design_effect": self.design_effect}
 
 
 @dataclass(frozen=True)
@@ -355,6 +375,7 @@ def simulate(code: str | BinaryLinearCode, depth: int = 1,
 
     bit_errors = detected = undetected = frame_errors = 0
     done = 0
+    batches = _Batches(lay, frame_bytes, _memory_bits(models))
     for _ in range(frames):
         payload = data_rng.bytes(frame_bytes)
         message = payload + struct.pack(">I", crc32c(payload))
@@ -362,8 +383,8 @@ def simulate(code: str | BinaryLinearCode, depth: int = 1,
         chain.apply(coded)
         decoded, status = decode_segment(the_code, depth, coded, len(message))
         # the container's check: the CRC-32C carried in the message against the decoded payload
-        if struct.unpack(">I", decoded[frame_bytes:])[0] != crc32c(decoded[:frame_bytes]):
-            frame_errors += 1
+        frame_failed = struct.unpack(">I", decoded[frame_bytes:])[0] != crc32c(decoded[:frame_bytes])
+        frame_errors += frame_failed
         failed = status == FAILED
         detected += int(np.count_nonzero(failed))
         diff = np.bitwise_xor(np.frombuffer(decoded, np.uint8), np.frombuffer(message, np.uint8))
@@ -375,6 +396,10 @@ def simulate(code: str | BinaryLinearCode, depth: int = 1,
                                                                                        axis=1).astype(bool)]
             wrong_blocks = np.unique(bit_pos // message_bits)
             undetected += int(np.count_nonzero(~failed[wrong_blocks]))
+            batches.add_frame(failed, bit_pos[bit_pos < 8 * frame_bytes], wrong_blocks[~failed[wrong_blocks]],
+                              frame_failed)
+        else:
+            batches.add_frame(failed, None, None, frame_failed)
         done += coded.size
         if progress is not None:
             progress(done)
@@ -384,18 +409,99 @@ def simulate(code: str | BinaryLinearCode, depth: int = 1,
     blocks = frames * lay.blocks
     expected, uncoded = theory_for(the_code, depth, models, frame_bytes)
     notes = []
-    if not all(isinstance(m, BSC) for m in models):
-        notes.append("bursts and byte hits make codeword failures cluster; the binomial intervals assume "
-                     "independent trials and are narrower than the true uncertainty (repeat with other seeds)")
+    batches.finish()
+    memoryless = all(isinstance(m, BSC) for m in models)
+
+    def rate(name: str, events: int, trials: int) -> Measured:
+        if memoryless and name != "bits":  # independent codewords, independent frames: exact binomial
+            return Measured.of(events, trials)
+        return Measured.from_tally(batches.tallies[name])
+
+    block_error = rate("blocks", detected + undetected, blocks)
+    if not memoryless:
+        notes.append(f"bursts and byte hits make failures cluster: intervals by batch means ({batches.describe()}; "
+                     "Clopper-Pearson on the effective sample, Korn and Graubard 1998); design effect "
+                     f"{block_error.design_effect:.2g} for the block error")
+    notes.append(f"bit error interval: batch means ({batches.describe()}): the wrong bits of one codeword come "
+                 "together")
     return SimulationResult(
         code=name, n=the_code.n, k=k, d=the_code.d, t=the_code.t, depth=depth,
         channels=tuple(m.spec for m in models), seed=seed, frame_bytes=frame_bytes, frames=frames, blocks=blocks,
         payload_bits=frames * frame_bytes * 8, coded_bits=frames * lay.coded_bits,
         channel=Measured.of(changed, 8 * chain.bytes_in),
-        bit_error=Measured.of(bit_errors, frames * frame_bytes * 8),
-        block_error=Measured.of(detected + undetected, blocks),
-        detected=Measured.of(detected, blocks), undetected=Measured.of(undetected, blocks),
-        frame_error=Measured.of(frame_errors, frames), theory=expected, uncoded=uncoded, notes=tuple(notes))
+        bit_error=rate("bits", bit_errors, frames * frame_bytes * 8), block_error=block_error,
+        detected=rate("detected", detected, blocks), undetected=rate("undetected", undetected, blocks),
+        frame_error=rate("frames", frame_errors, frames), theory=expected, uncoded=uncoded, notes=tuple(notes))
+
+
+class _Batches:
+    """Per-batch totals for the clustered intervals (`analysis.intervals.BatchTally`).
+
+    Inside a frame a batch is a run of whole interleaved groups (codeword c of a segment is
+    in group c // D) spanning at least the channel's memory in coded bits; frames are
+    batched in runs spanning the same. Failures inside a batch may cluster; batches are
+    close to independent. Memory is constant: only sums are kept."""
+
+    def __init__(self, lay, frame_bytes: int, memory_bits: float) -> None:
+        self.depth = lay.depth
+        self.message_bits = lay.block_message_bits
+        groups = 1 if memory_bits <= 0 else max(1, math.ceil(min(memory_bits, 1e18) / lay.group_bits))
+        self.groups = min(groups, lay.groups)
+        self.batch_of = (np.arange(lay.blocks) // lay.depth) // self.groups
+        count = int(self.batch_of[-1]) + 1
+        self.count = count
+        self.blocks_in = np.bincount(self.batch_of, minlength=count)
+        payload = 8 * frame_bytes  # payload bits a codeword carries (the CRC and padding do not count)
+        carried = np.clip(payload - np.arange(lay.blocks) * self.message_bits, 0, self.message_bits)
+        self.bits_in = np.bincount(self.batch_of, weights=carried, minlength=count).astype(np.int64)
+        self.frames_per_batch = 1 if memory_bits <= 0 else max(1, math.ceil(min(memory_bits, 1e18) / lay.coded_bits))
+        self.frames_open = self.frame_fails_open = 0
+        self.zeros = np.zeros(count, dtype=np.int64)
+        self.tallies = {name: intervals.BatchTally() for name in ("bits", "blocks", "detected", "undetected", "frames")}
+
+    def add_frame(self, failed: np.ndarray, wrong_payload_bits: np.ndarray | None,
+                  undetected_blocks: np.ndarray | None, frame_failed: bool) -> None:
+        """One decoded frame: the flagged codewords, the positions of wrong payload bits, the
+        codewords decoded wrong without a flag, whether its CRC failed."""
+        count, t = self.count, self.tallies
+        flagged = np.flatnonzero(failed)
+        det = np.bincount(self.batch_of[flagged], minlength=count) if flagged.size else self.zeros
+        if wrong_payload_bits is not None and wrong_payload_bits.size:
+            bits = np.bincount(self.batch_of[wrong_payload_bits // self.message_bits], minlength=count)
+        else:
+            bits = self.zeros
+        if undetected_blocks is not None and undetected_blocks.size:
+            und = np.bincount(self.batch_of[undetected_blocks], minlength=count)
+        else:
+            und = self.zeros
+        t["bits"].add(bits, self.bits_in)
+        t["detected"].add(det, self.blocks_in)
+        t["undetected"].add(und, self.blocks_in)
+        t["blocks"].add(det + und, self.blocks_in)
+        self.frames_open += 1
+        self.frame_fails_open += int(frame_failed)
+        if self.frames_open == self.frames_per_batch:
+            self.finish()
+
+    def finish(self) -> None:
+        """Close the open batch of frames (the last one may be short)."""
+        if self.frames_open:
+            self.tallies["frames"].add(self.frame_fails_open, self.frames_open)
+            self.frames_open = self.frame_fails_open = 0
+
+    def describe(self) -> str:
+        return (f"batches of {self.groups} interleaved group{'s' * (self.groups != 1)} of {self.depth} codewords, "
+                f"and of {self.frames_per_batch} frame{'s' * (self.frames_per_batch != 1)} for the frame error")
+
+
+def _memory_bits(models: Sequence[ChannelModel]) -> float:
+    """Channel bits over which the state is remembered: MEMORY_SPANS correlation lengths
+    1/(enter+leave) of each Gilbert-Elliott chain (its state's correlation falls as
+    (1-enter-leave)^k); 0 for memoryless models (byte substitutions are independent per byte,
+    and frames hold whole bytes)."""
+    spans = [MEMORY_SPANS / (m.enter + m.leave) if m.enter + m.leave > 0 else math.inf
+             for m in models if isinstance(m, GilbertElliott)]
+    return max(spans, default=0.0)
 
 
 def sweep(code: str | BinaryLinearCode, depth: int, channels: str | ChannelModel | Sequence[str | ChannelModel],
