@@ -225,3 +225,19 @@ def test_codes_show_at_outside_zero_to_one_half_is_a_usage_error(value):
 
     run = run_cli("codes", "show", "hamming-7-4", f"--at={value}")
     assert run.code == 2 and len(run.err_lines) == 1 and "--at" in run.err
+
+
+# ---- the curves on simulate --plot ---------------------------------------------------------------------
+
+def test_plot_limit_curves_lie_below_the_codes_own_block_error_and_mark_capacity():
+    from bitmend.plot import limit_curves
+
+    code = get_code("bch-31-16")
+    xs = np.logspace(-3, -1, 9)
+    curves = limit_curves(code, ("bsc:p=0.001",), "p", xs)
+    own = np.array([theory.bsc_block_error(31, code.t, x) for x in xs])
+    assert np.all(curves["converse"] <= own * (1 + 1e-9))  # no (31, 16) code does better than the converse
+    assert np.all(curves["converse"] <= curves["rcu"])
+    assert curves["normal"][4] == pytest.approx(limits.normal_approximation_block_error(31, 16, xs[4]))
+    assert limits.capacity(curves["capacity_p"][0]) == pytest.approx(16 / 31, abs=1e-9)
+    assert limit_curves(code, ("burst:enter=1e-3,leave=0.1,bad=0.5",), "bad", xs) is None  # BSC only

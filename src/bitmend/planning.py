@@ -567,8 +567,8 @@ def verify_candidate(plan: Plan, candidate: Candidate, extra_codes: Sequence[Bin
         trials = max(3.0 / plan.target, 1.96 ** 2 * r / (plan.target - r) ** 2)
         needed = int(math.ceil(trials * (8 * plan.frame_bytes if plan.per == "frame" else 1)))
     if plan.per == "bit":
-        notes.append("the bit error interval treats bits as independent; a decoder leaves errors in clusters, "
-                     "so the block error comparison is the sharper check")
+        notes.append("the bit error interval is by batch means (a decoder leaves wrong bits in clusters); the "
+                     "block error comparison is the sharper check")
     return Verification(candidate.code, candidate.depth, plan.per, plan.target, result.payload_bits, result.seed,
                         predicted, measured.rate, measured.low, measured.high, measured.events, measured.trials,
                         candidate.prediction.block_error, result.block_error.rate, result.block_error.low,

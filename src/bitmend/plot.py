@@ -1,4 +1,7 @@
-"""Charts of simulation results: measured points with their intervals, theory, the uncoded line.
+"""Charts of simulation results: measured points with their intervals, theory, the uncoded line,
+and, for a sweep of p on a BSC, the limits of any code of the same length and size
+(`analysis.limits`: the normal approximation, the binomial converse and the RCU bound of
+Polyanskiy, Poor and Verdu 2010) with the p at which capacity falls to the code's rate.
 
 matplotlib is an optional dependency (`pip install 'bitmend[plot]'`) and is imported only
 inside `plot_results`, so nothing else pays for it.
@@ -10,6 +13,8 @@ from pathlib import Path
 
 import numpy as np
 
+from bitmend.analysis import limits
+from bitmend.channel.models import BSC
 from bitmend.channel.spec import parse_channels, sweep_channels
 from bitmend.codes.linear import BinaryLinearCode
 from bitmend.simulate import SimulationResult, SweepResult, theory_for
@@ -50,6 +55,31 @@ def _curves(result: SimulationResult, code: BinaryLinearCode | None, parameter: 
     return out
 
 
+def limit_curves(code, channels: tuple[str, ...], parameter: str, xs: np.ndarray) -> dict[str, np.ndarray] | None:
+    """Block error of the best code of the code's length and size (in bits) at each swept p of
+    a BSC: 'normal' (normal approximation), 'converse' (no code does better) and 'rcu' (some
+    code does at least as well), plus 'capacity_p', the p where 1 - h2(p) = k/n (a single BSC
+    only). None when the sweep is not of p on BSCs alone."""
+    models = parse_channels(channels)
+    if code is None or parameter != "p" or not models or not all(isinstance(m, BSC) for m in models):
+        return None
+    bits = getattr(code, "symbol_bits", 1)
+    n, k = code.n * bits, code.k * bits
+    exact = n <= limits.EXACT_MAX_N
+    out = {name: np.full(len(xs), np.nan) for name in ("normal", "converse", "rcu")}
+    for i, x in enumerate(xs):
+        chain = sweep_channels(models, parameter, float(x))
+        p = (1.0 - float(np.prod([1.0 - 2.0 * m.p for m in chain]))) / 2.0
+        if not 0.0 < p < 0.5:
+            continue
+        out["normal"][i] = limits.normal_approximation_block_error(n, k, p)
+        if exact:
+            out["converse"][i] = limits.converse_block_error(n, k, p)
+            out["rcu"][i] = limits.rcu_block_error(n, k, p)
+    out["capacity_p"] = np.array([limits.crossover_at_capacity(k / n) if len(models) == 1 else np.nan])
+    return out
+
+
 def plot_results(results: SimulationResult | SweepResult, path: str, code: BinaryLinearCode | None = None) -> None:
     """Draw residual bit error and block error against the swept parameter (or the single
     point) into path (.png or .svg): measured rates with their exact intervals as bars
@@ -78,6 +108,7 @@ def plot_results(results: SimulationResult | SweepResult, path: str, code: Binar
             code = None
     dense = np.logspace(np.log10(xs.min()), np.log10(xs.max()), 120) if xs.min() > 0 and len(xs) > 1 else xs
     curves = _curves(first, code, parameter, dense) if code is not None else None
+    bounds = limit_curves(code, first.channels, parameter, dense) if len(xs) > 1 else None
 
     fig, axes = plt.subplots(1, 2, figsize=(11, 4.4), constrained_layout=True)
     for ax, (name, label) in zip(axes, PANELS):
@@ -96,6 +127,21 @@ def plot_results(results: SimulationResult | SweepResult, path: str, code: Binar
                 ys = np.array([np.nan if v is None else v for v in curves[f"{kind}_{name}"]], dtype=float)
                 if np.isfinite(ys).any():
                     ax.plot(dense, ys, style, color=color, label=text)
+        if bounds is not None:
+            size = f"({code.n * getattr(code, 'symbol_bits', 1)}, {code.k * getattr(code, 'symbol_bits', 1)})"
+            if name == "block_error":
+                tiny = 1e-300  # log axes: keep underflowed values off the chart
+                for key, style, color, text in (
+                        ("normal", "-.", "C2", f"best {size} code, normal approximation"),
+                        ("converse", ":", "C3", f"converse: no {size} code below"),
+                        ("rcu", ":", "C4", f"RCU: some {size} code at or below")):
+                    ys = np.where(bounds[key] > tiny, bounds[key], np.nan)
+                    if np.isfinite(ys).any():
+                        ax.plot(dense, ys, style, color=color, label=text)
+            capacity_p = float(bounds["capacity_p"][0])
+            if np.isfinite(capacity_p) and dense.min() <= capacity_p <= dense.max():
+                ax.axvline(capacity_p, color="C5", linestyle="--", linewidth=1,
+                           label=f"capacity = rate {code.k / code.n:.3g} (p = {capacity_p:.3g})")
         ax.set_xscale("log")
         ax.set_yscale("log")
         ax.set_xlabel(f"channel {parameter}")
