@@ -156,6 +156,9 @@ class SimulationResult:
     uncoded: Expected
     confidence: float = CONFIDENCE
     notes: tuple[str, ...] = field(default_factory=tuple)
+    # the batch sums behind each interval, by rate ("bits", "blocks", "detected", "undetected",
+    # "frames"): runs of one campaign merge exactly by adding them (bitmend.campaign); not in the JSON
+    tallies: dict = field(default_factory=dict, compare=False, repr=False)
 
     def measured(self, name: str) -> Measured:
         return getattr(self, name)
@@ -431,7 +434,8 @@ def simulate(code: str | BinaryLinearCode, depth: int = 1,
         channel=Measured.of(changed, 8 * chain.bytes_in),
         bit_error=rate("bits", bit_errors, frames * frame_bytes * 8), block_error=block_error,
         detected=rate("detected", detected, blocks), undetected=rate("undetected", undetected, blocks),
-        frame_error=rate("frames", frame_errors, frames), theory=expected, uncoded=uncoded, notes=tuple(notes))
+        frame_error=rate("frames", frame_errors, frames), theory=expected, uncoded=uncoded, notes=tuple(notes),
+        tallies=batches.tallies)
 
 
 class _Batches:
