@@ -501,9 +501,18 @@ def simulate(
     as_csv: bool = typer.Option(False, "--csv", help="Machine-readable output (CSV, one row per point)."),
     frame_bytes: int = typer.Option(DEFAULT_FRAME_BYTES, "--frame-bytes", help="Payload bytes per simulated frame "
                                     "(the unit of the frame error rate)."),
+    workers: Optional[int] = typer.Option(None, "--workers", metavar="N", help="Run a campaign of fixed work units "
+                                          "on N processes of this machine (a local Dask cluster; 1: this process). "
+                                          "A seed gives the same result for every N."),
+    scheduler: Optional[str] = typer.Option(None, "--scheduler", metavar="ADDRESS", help="Run the campaign on the "
+                                            "Dask cluster whose scheduler is at HOST:PORT (its workers need bitmend "
+                                            "installed). Unreachable: exit 3."),
+    connect_timeout: float = typer.Option(10.0, "--connect-timeout", metavar="SECONDS", help="How long to wait for "
+                                          "the --scheduler (or a --workers cluster) to answer."),
 ) -> None:
     """Monte Carlo trials of a code on a channel through the real encoder and decoder, with
-    exact 95% intervals, beside theory and the uncoded channel."""
+    exact 95% intervals, beside theory and the uncoded channel. Ctrl-C during a campaign
+    (--workers, --scheduler) prints what it measured so far and exits 130."""
     from bitmend import simulate as sim
     from bitmend.channel.spec import parse_channels
     from bitmend.container.format import MAX_PAYLOAD_BYTES
@@ -534,14 +543,22 @@ def simulate(
                 check_plot_path(plot)
             except (ValueError, PlotUnavailableError) as exc:
                 raise CliError(str(exc), EXIT_USAGE) from None
-        total = sim.planned_coded_bytes(code, depth, int(bits), len(grid[1]) if grid else 1, frame_bytes)
-        with _progress("simulating", total, True) as tick:
-            if grid:
-                result = sim.sweep(code, depth, channel, grid, int(bits), seed, frame_bytes=frame_bytes, progress=tick)
-                points = result.points
-            else:
-                result = sim.simulate(code, depth, channel, int(bits), seed, frame_bytes=frame_bytes, progress=tick)
-                points = (result,)
+        stopped = None  # what stopped a campaign early, raised again once its partial result is out
+        if workers is not None or scheduler is not None:
+            result, stopped = _simulate_campaign(code, depth, channel, grid, int(bits), seed, frame_bytes,
+                                                     workers, scheduler, connect_timeout)
+            points = result.points if grid else (result,)
+        else:
+            total = sim.planned_coded_bytes(code, depth, int(bits), len(grid[1]) if grid else 1, frame_bytes)
+            with _progress("simulating", total, True) as tick:
+                if grid:
+                    result = sim.sweep(code, depth, channel, grid, int(bits), seed, frame_bytes=frame_bytes,
+                                       progress=tick)
+                    points = result.points
+                else:
+                    result = sim.simulate(code, depth, channel, int(bits), seed, frame_bytes=frame_bytes,
+                                          progress=tick)
+                    points = (result,)
         if plot:
             from bitmend.plot import plot_results
             plot_results(result, plot, None if isinstance(code, str) else code)
@@ -553,6 +570,39 @@ def simulate(
             lines = sim.format_sweep(result) if grid else sim.format_result(result)
             for line in lines + ([f"plot:      {plot}"] if plot else []):
                 typer.echo(line)
+        if stopped is not None:
+            raise stopped
+
+
+def _simulate_campaign(code, depth: int, channel: list[str], grid, bits: int, seed: Optional[int], frame_bytes: int,
+                       workers: Optional[int], scheduler: Optional[str], connect_timeout: float) -> tuple:
+    """(result, None) of `simulate --workers/--scheduler`, or (what the finished units
+    measured, the interruption) after Ctrl-C or another stopping signal."""
+    from bitmend import campaign as cmp
+
+    if workers is not None and scheduler is not None:
+        raise CliError("give --workers or --scheduler, not both", EXIT_USAGE)
+    if workers is not None and workers < 1:
+        raise CliError(f"--workers must be >= 1, got {workers}", EXIT_USAGE)
+    if not connect_timeout > 0:
+        raise CliError(f"--connect-timeout must be a positive number of seconds, got {connect_timeout:g}", EXIT_USAGE)
+    try:
+        with cmp.terminal_progress("simulating") as tick:
+            kwargs = dict(frame_bytes=frame_bytes, workers=workers or 1, scheduler=scheduler, progress=tick,
+                          connect_timeout=connect_timeout)
+            if grid:
+                return cmp.campaign_sweep(code, depth, channel, grid, bits, seed, **kwargs), None
+            return cmp.campaign(code, depth, channel, bits, seed, **kwargs), None
+    except cmp.SchedulerAddressError as exc:
+        raise CliError(str(exc), EXIT_USAGE) from None
+    except cmp.CampaignError as exc:
+        raise CliError(str(exc), EXIT_UNREADABLE) from None
+    except cmp.CampaignInterrupted as interrupted:
+        if interrupted.partial is None:
+            typer.echo("bitmend: no work unit had finished: nothing measured", err=True)
+            raise interrupted.stop from None
+        typer.echo("bitmend: interrupted; what the finished work units measured follows", err=True)
+        return interrupted.partial, interrupted.stop
 
 
 # ---- plan ----------------------------------------------------------------------------------
