@@ -8,6 +8,7 @@ import subprocess
 import pytest
 
 from bitmend.container import format as fmt
+from bitmend.interleave import encode_segment
 
 from conftest import (CATALOG_CODES, REPO_ROOT, bitmend_command, check_report_lines, flip_run, frame_spans,
                       payload_slices, random_bytes, run_cli)
@@ -252,10 +253,14 @@ def test_stream_with_only_an_oversized_header_exits_3_cleanly():
 
 
 def test_unknown_format_version_is_named_in_the_error():
-    blob = fmt.MARKER_BYTES + fmt.encode_header(fmt.FrameHeader(11, 8, 0, 10, version=2)) + bytes(300)
+    # a record of the version 2 layout that says version 3 (a newer writer): CRC and Golay check
+    body = bytes([3]) + fmt.FrameHeader(11, 8, 0, 10).record()[1:-4]
+    record = body + fmt.crc32c(body).to_bytes(4, "big")
+    coded = encode_segment(fmt.header_code(), fmt.HEADER_DEPTH, record)
+    blob = fmt.MARKER_BYTES + coded + bytes(300)
     run = run_cli("decode", stdin=blob)
     assert run.code == 3
-    assert "version" in run.err
+    assert "version 3" in run.err and "reads versions 1 and 2" in run.err
 
 
 @pytest.mark.parametrize("args", [

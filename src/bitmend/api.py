@@ -67,6 +67,16 @@ class Encoder(io.BufferedIOBase):
             self._writer.flush()
 
     @property
+    def pending_bytes(self) -> int:
+        """Bytes written but not yet sent in a frame."""
+        return self._writer.pending_bytes
+
+    def flush_output(self) -> None:
+        """Push frames already made to the underlying file now, without cutting a frame."""
+        if not self.closed:
+            self._writer.flush_sink()
+
+    @property
     def stream_id(self) -> int:
         """The identity every frame of this stream carries (64 bits, random unless given)."""
         return self._writer.stream_id

@@ -58,7 +58,9 @@ def run_chain(chain: ChannelChain, source: BinaryIO, sink: BinaryIO, *, chunk_by
         done = 0
         while True:
             block = bytearray(chunk_bytes)
-            got = source.readinto(block) if hasattr(source, "readinto") else None
+            # readinto1: what the source holds now (a live pipe's bytes pass on at once)
+            reader = getattr(source, "readinto1", None) or getattr(source, "readinto", None)
+            got = reader(block) if reader is not None else None
             if got is None:
                 data = source.read(chunk_bytes)
                 block, got = bytearray(data), len(data)
@@ -70,7 +72,13 @@ def run_chain(chain: ChannelChain, source: BinaryIO, sink: BinaryIO, *, chunk_by
             if progress is not None:
                 progress(done)
 
-    return chain.run(chunks(), lambda data: sink.write(data.data))
+    def emit(data) -> None:
+        sink.write(data.data)
+        flush = getattr(sink, "flush", None)
+        if flush is not None:
+            flush()  # damage passes on as it comes: a reader downstream sees it without waiting
+
+    return chain.run(chunks(), emit)
 
 
 def inject_bytes(data: bytes, channels: str | ChannelModel | Sequence[str | ChannelModel],

@@ -84,6 +84,7 @@ class FrameScanner:
 
     def __init__(self, source: BinaryIO, read_chunk: int = READ_CHUNK, decode_payloads: bool = True) -> None:
         self._source = source
+        self._read = getattr(source, "read1", None) or source.read
         self._decode_payloads = decode_payloads
         self._chunk = read_chunk
         self._buf = bytearray()
@@ -94,17 +95,24 @@ class FrameScanner:
         self._searched_bits = 0  # bits scanned for markers so far (large scans load numba)
 
     # ---- window management ---------------------------------------------------------
+    def _read_once(self) -> bool:
+        """One read of whatever the source holds now (a pipe's bytes as soon as they are
+        written: read1, not a read that waits for a full chunk); False at end of input."""
+        if self._eof:
+            return False
+        block = self._read(self._chunk)
+        if not block:
+            self._eof = True
+            return False
+        self.bytes_read += len(block)
+        self._buf += block
+        return True
+
     def _fill(self, end_bit: int) -> bool:
         """Read until the window holds absolute bits up to end_bit; False at end of input."""
         while self._base + 8 * len(self._buf) < end_bit:
-            if self._eof:
+            if not self._read_once():
                 return False
-            block = self._source.read(self._chunk)
-            if not block:
-                self._eof = True
-                return False
-            self.bytes_read += len(block)
-            self._buf += block
         return True
 
     def _drop_before(self, bit: int) -> None:
@@ -135,7 +143,9 @@ class FrameScanner:
         while True:
             kernels = compiled(self._searched_bits)
             piece_bytes = SEARCH_PIECE if kernels else SMALL_SEARCH_PIECE
-            self._fill(start_bit + MARKER_BITS + 8 * piece_bytes)
+            if self._end_bit() < start_bit + MARKER_BITS + 8 * piece_bytes:
+                # search what has arrived: on a live link the next marker may already be here
+                self._read_once()
             stop = min(self._end_bit() - MARKER_BITS + 1, start_bit + 8 * piece_bytes)
             if stop > start_bit:
                 first_byte = (start_bit - self._base) >> 3

@@ -88,6 +88,15 @@ class FrameWriter:
         del self._pending[:start]
         return len(data)
 
+    @property
+    def pending_bytes(self) -> int:
+        """Bytes written but not yet sent in a frame (at most one frame's worth)."""
+        return len(self._pending)
+
+    def flush_sink(self) -> None:
+        """Push frames already made out of the sink's buffer, without cutting a frame."""
+        self._sink.flush()
+
     def flush(self) -> None:
         """Send held data now as a frame (packet boundaries), then flush the sink."""
         if self._pending:
