@@ -29,18 +29,32 @@ needs_root = pytest.mark.skipif(os.geteuid() != 0, reason="making device nodes n
 
 @pytest.fixture(scope="module")
 def data() -> bytes:
-    return random_bytes(300_000, 91)
+    """Small enough (frames of 1 KiB) that a process decodes it without loading numba."""
+    return random_bytes(5000, 91)
 
 
 @pytest.fixture(scope="module")
 def container(data) -> bytes:
-    return encode_bytes(data, frame_bytes=8192)
+    return encode_bytes(data, frame_bytes=1024)
 
 
 @pytest.fixture()
 def container_file(tmp_path, container) -> Path:
     path = tmp_path / "gauges.bmd"
     path.write_bytes(container)
+    return path
+
+
+@pytest.fixture(scope="module")
+def big_data() -> bytes:
+    """Several times a pipe's 64 KiB buffer, so that a reader that stops early is noticed."""
+    return random_bytes(300_000, 92)
+
+
+@pytest.fixture()
+def big_container_file(tmp_path, big_data) -> Path:
+    path = tmp_path / "big.bmd"
+    path.write_bytes(encode_bytes(big_data, frame_bytes=8192))
     return path
 
 
@@ -225,7 +239,7 @@ def test_a_unix_socket_output_is_connected_to_and_written(tmp_path, container_fi
     assert stat.S_ISSOCK(path.lstat().st_mode)
 
 
-def test_dev_stdout_is_the_open_descriptor_so_an_appending_shell_redirect_is_kept(tmp_path, container):
+def test_dev_stdout_is_the_open_descriptor_so_an_appending_shell_redirect_is_kept(tmp_path, container, data):
     log = tmp_path / "uplink.log"
     log.write_bytes(b"earlier session\n")
     with open(log, "ab") as out:  # what `>> uplink.log` gives the command
@@ -233,7 +247,7 @@ def test_dev_stdout_is_the_open_descriptor_so_an_appending_shell_redirect_is_kep
                               stdout=out, stderr=subprocess.PIPE, timeout=TIMEOUT)
     assert proc.returncode == 0, proc.stderr
     assert log.read_bytes().startswith(b"earlier session\n")
-    assert len(log.read_bytes()) == len(b"earlier session\n") + 300_000
+    assert log.read_bytes() == b"earlier session\n" + data
     assert part_files(tmp_path) == []
 
 
@@ -311,7 +325,7 @@ def test_sigterm_while_injecting_keeps_a_ledger_that_says_it_was_stopped(tmp_pat
                             stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
                             preexec_fn=restore_default_signals)
     try:
-        proc.stdin.write(container[:100_000])
+        proc.stdin.write(container[: len(container) // 3])
         proc.stdin.flush()
         wait_for(lambda: len(part_files(tmp_path)) == 2, "the temp files of the output and the ledger")
         proc.send_signal(signal.SIGTERM)
@@ -336,11 +350,12 @@ def test_a_hangup_ignored_at_start_stays_ignored_as_under_nohup(tmp_path, contai
     proc = subprocess.Popen([*bitmend_command(), "decode", "-o", str(target), "--quiet"], stdin=subprocess.PIPE,
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, preexec_fn=ignore_hangup)
     try:
-        proc.stdin.write(container[:50_000])
+        third = len(container) // 3
+        proc.stdin.write(container[:third])
         proc.stdin.flush()
         wait_for(lambda: len(part_files(tmp_path)) == 1, "the temp file of the output")
         proc.send_signal(signal.SIGHUP)
-        _, err = proc.communicate(container[50_000:], timeout=TIMEOUT)
+        _, err = proc.communicate(container[third:], timeout=TIMEOUT)
     finally:
         if proc.poll() is None:
             proc.kill()
@@ -369,9 +384,11 @@ def pipe_into_head(args: list[str], stdin_file: Path) -> tuple[int, bytes, bytes
     return producer.returncode, got, err
 
 
-def test_decode_into_head_stops_with_141_silently_and_the_report_has_its_summary(tmp_path, container_file, data):
+def test_decode_into_head_stops_with_141_silently_and_the_report_has_its_summary(tmp_path, big_container_file,
+                                                                               big_data):
+    data = big_data
     report = tmp_path / "report.jsonl"
-    code, got, err = pipe_into_head(["decode", "--report", str(report)], container_file)
+    code, got, err = pipe_into_head(["decode", "--report", str(report)], big_container_file)
     assert code == BROKEN_PIPE_EXIT and err == b""
     assert got == data[:100]
     lines = [json.loads(line) for line in report.read_text().splitlines()]
@@ -382,23 +399,23 @@ def test_decode_into_head_stops_with_141_silently_and_the_report_has_its_summary
     assert part_files(tmp_path) == []
 
 
-def test_inject_into_head_keeps_the_ledger_of_what_was_done(tmp_path, container_file):
+def test_inject_into_head_keeps_the_ledger_of_what_was_done(tmp_path, big_container_file):
     ledger = tmp_path / "ledger.json"
     code, got, err = pipe_into_head(["inject", "--channel", "bsc:p=1e-3", "--seed", "9", "--ledger", str(ledger)],
-                                    container_file)
+                                    big_container_file)
     assert code == BROKEN_PIPE_EXIT and err == b"" and len(got) == 100
     record = json.loads(ledger.read_text())
     assert record["stopped"] == "broken pipe" and record["seed"] == 9 and record["bytes_in"] > 0
 
 
-def test_encode_into_head_stops_with_141_and_no_message(tmp_path, data):
+def test_encode_into_head_stops_with_141_and_no_message(tmp_path, big_data):
     source = tmp_path / "gauges.log"
-    source.write_bytes(data)
+    source.write_bytes(big_data)
     code, got, err = pipe_into_head(["encode"], source)
     assert code == BROKEN_PIPE_EXIT and err == b"" and len(got) == 100
 
 
-def test_a_fifo_whose_reader_goes_away_is_one_line_naming_it_and_exit_141(tmp_path, container_file):
+def test_a_fifo_whose_reader_goes_away_is_one_line_naming_it_and_exit_141(tmp_path, big_container_file):
     fifo = tmp_path / "to-uplink"
     os.mkfifo(fifo)
 
@@ -408,7 +425,7 @@ def test_a_fifo_whose_reader_goes_away_is_one_line_naming_it_and_exit_141(tmp_pa
 
     thread = threading.Thread(target=reader, daemon=True)
     thread.start()
-    run = run_cli("decode", str(container_file), "-o", str(fifo), "--quiet")
+    run = run_cli("decode", str(big_container_file), "-o", str(fifo), "--quiet")
     thread.join(TIMEOUT)
     line = assert_one_line(run, BROKEN_PIPE_EXIT)
     assert str(fifo) in line and "broken pipe" in line

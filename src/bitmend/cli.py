@@ -367,20 +367,24 @@ def decode(
         if on_error not in ON_ERROR_CHOICES:
             raise CliError(f"--on-error must be one of {', '.join(ON_ERROR_CHOICES)}, got {on_error!r}", EXIT_USAGE)
         outputs.check_distinct({"-o": output or "-", "--report": report})
-        decoder = out = None
         stopped: DamagedDataError | None = None
-        with _open_input(source) as inp, \
-                _open_side_file(report, "report", lambda failure: _report_end(decoder, out, failure)) as report_file, \
-                _open_output(output) as out:
-            on_frame = (lambda r: report_file.write_text(r.to_json() + "\n")) if report_file else None
+        report_file = None
+        with _open_input(source) as inp:
+            # made before any output (it reads nothing yet): a run stopped at any point has a summary
+            on_frame = (lambda r: report_file.write_text(r.to_json() + "\n")) if report else None
             decoder = Decoder(inp, on_error, keep_frame_reports=False, on_frame=on_frame)
-            with _progress("decoding", _input_size(inp), not quiet) as tick:
-                try:
-                    while block := decoder.read1(COPY_CHUNK):
-                        out.write(block)
-                        tick(decoder.bytes_read)
-                except DamagedDataError as exc:
-                    stopped = exc  # --on-error fail: keep the verified part written so far
+            # the output is the outer context: the report's summary is written once the output is
+            # whole (out.prepare()), and a report that cannot be written takes the output with it
+            with _open_output(output) as out, \
+                    _open_side_file(report, "report", lambda failure: _report_end(decoder, out, failure)) as report_file:
+                with _progress("decoding", _input_size(inp), not quiet) as tick:
+                    try:
+                        while block := decoder.read1(COPY_CHUNK):
+                            out.write(block)
+                            tick(decoder.bytes_read)
+                    except DamagedDataError as exc:
+                        stopped = exc  # --on-error fail: keep the verified part written so far
+                out.prepare()
         summary = decoder.summary
         if not quiet:
             typer.echo(summary.one_line(), err=True)
@@ -472,13 +476,12 @@ def inject(
     with _errors():
         parse_channels(channel)  # a bad SPEC fails before any output is made
         outputs.check_distinct({"-o": output or "-", "--ledger": ledger})
-        chain = None
-        with _open_input(source) as inp, \
-                _open_side_file(ledger, "ledger", lambda failure: _ledger_end(chain, failure)), \
-                _open_output(output) as out:
-            chain = make_chain(channel, seed)
+        chain = make_chain(channel, seed)  # made first: a run stopped at any point has a ledger
+        with _open_input(source) as inp, _open_output(output) as out, \
+                _open_side_file(ledger, "ledger", lambda failure: _ledger_end(chain, failure)):
             with _progress("injecting", _input_size(inp), not quiet) as tick:
                 record = run_chain(chain, inp, out, progress=tick)
+            out.prepare()  # the ledger is written once the damaged copy is whole
         if not quiet:
             typer.echo(f"bitmend inject: seed {record.seed}: {record.one_line()}", err=True)
 

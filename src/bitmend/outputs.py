@@ -167,6 +167,7 @@ class Output:
         self._owned = owned  # close the stream at the end (not sys.stdout)
         self._is_stdout = is_stdout
         self._done = False
+        self._prepared = False
         self.bytes_written = 0
 
     @property
@@ -207,16 +208,27 @@ class Output:
     def writable(self) -> bool:
         return True
 
+    def prepare(self) -> None:
+        """Everything written reaches the target (flushed, and a temp file synced to disk), so
+        that what can still fail afterwards is only the rename. Call it before writing a report
+        that says the output is whole. Errors name the user's path."""
+        if self._prepared:
+            return
+        try:
+            self._stream.flush()
+            if self._temp is not None:
+                os.fsync(self._stream.fileno())  # the rename must never expose unwritten data
+        except OSError as exc:
+            raise self._failure(exc) from None
+        self._prepared = True
+
     def commit(self) -> None:
-        """Everything written reaches the target: flush, and for a regular file sync and
-        rename the temp file over the target. Errors name the user's path."""
+        """`prepare()`, then for a regular file rename the temp file over the target."""
         if self._done:
             return
         with deferred_signals():
+            self.prepare()
             try:
-                self._stream.flush()
-                if self._temp is not None:
-                    os.fsync(self._stream.fileno())  # the rename must never expose unwritten data
                 if self._owned:
                     self._stream.close()
                 if self._temp is not None:
