@@ -24,6 +24,7 @@ import typer
 from bitmend import outputs
 from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH, MAX_DEPTH
 from bitmend.container.format import DEFAULT_FRAME_BYTES
+from bitmend.live import DEFAULT_MAX_DELAY
 
 EXIT_OK, EXIT_DAMAGED, EXIT_USAGE, EXIT_UNREADABLE = 0, 1, 2, 3
 EXIT_BROKEN_PIPE = outputs.EXIT_BROKEN_PIPE  # 141
@@ -325,15 +326,21 @@ def encode(
     depth: int = typer.Option(DEFAULT_DEPTH, "--depth", help=f"Interleaving depth 1..{MAX_DEPTH}: "
                               "corrects any burst of depth*t bits."),
     frame_bytes: int = typer.Option(DEFAULT_FRAME_BYTES, "--frame-bytes", help="Payload bytes per frame (1..1048576)."),
+    max_delay: float = typer.Option(DEFAULT_MAX_DELAY, "--max-delay", metavar="SECONDS",
+                                    help="Send a frame at most this long after its first byte arrived, full or "
+                                         "not (live sources such as `tail -f`); inf: only full frames."),
 ) -> None:
     """Wrap a byte stream in coded, self-contained frames."""
     from bitmend.api import Encoder
     from bitmend.container.format import MAX_PAYLOAD_BYTES
+    from bitmend.live import pump_encode
 
     with _errors():
         _check_depth(depth)
         if not 1 <= frame_bytes <= MAX_PAYLOAD_BYTES:
             raise CliError(f"--frame-bytes must be 1..{MAX_PAYLOAD_BYTES}, got {frame_bytes}", EXIT_USAGE)
+        if not max_delay > 0:  # (also refuses nan)
+            raise CliError(f"--max-delay must be a positive number of seconds (or inf), got {max_delay:g}", EXIT_USAGE)
         chosen = _load_code(code, code_file)  # unknown names and bad files fail before any output is made
         if code_file:
             from bitmend.container.writer import FrameWriter
@@ -344,9 +351,7 @@ def encode(
         with _open_input(source) as inp, _open_output(output) as out:
             with _progress("encoding", _input_size(inp), True) as tick:
                 with Encoder(out, code or chosen, depth, frame_bytes) as enc:
-                    while block := inp.read(COPY_CHUNK):
-                        enc.write(block)
-                        tick(enc.bytes_in)
+                    pump_encode(inp, enc, None if max_delay == float("inf") else max_delay, tick)
 
 
 @app.command()
@@ -379,8 +384,11 @@ def decode(
                     _open_side_file(report, "report", lambda failure: _report_end(decoder, out, failure)) as report_file:
                 with _progress("decoding", _input_size(inp), not quiet) as tick:
                     try:
+                        live = not out.replaces_file  # a pipe or a device: each frame's bytes leave at once
                         while block := decoder.read1(COPY_CHUNK):
                             out.write(block)
+                            if live:
+                                out.flush()
                             tick(decoder.bytes_read)
                     except DamagedDataError as exc:
                         stopped = exc  # --on-error fail: keep the verified part written so far
