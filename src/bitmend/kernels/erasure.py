@@ -1,0 +1,127 @@
+"""Compiled kernel of the erasure code across frames: rows of bytes combined in GF(2^8).
+
+`combine_rows` computes, for each group g of k input symbols (byte rows of length S),
+
+    out[g, targets[g, i]] = sum_j c[g, i, j] * inputs[g, j]      (GF(2^8) mod 0x11D, bytewise)
+
+and copies the input rows named by `copies` into place. Making repair symbols is the case
+c = the code's r x k matrix; rebuilding e lost sources is the case c = an e x k recovery
+matrix over the k symbols that arrived (codes/erasure.py builds both).
+
+How one coefficient is applied. Multiplication by a fixed c is linear over GF(2): for a
+byte s = sum_b s_b x^b, c * s = XOR_b s_b (c * x^b). With the eight bytes c * x^b
+replicated across a 64-bit word ("masks", kernels.erasure_small.coefficient_masks) and
+eight source bytes in one word w:
+
+    bits  = (w >> b) & 0x0101010101010101        bit b of each byte, moved to bit 0
+    full  = (bits << 8) - bits                   0x00 or 0xFF in each byte (bits * 255,
+                                                  no borrow crosses a byte)
+    acc  ^= full & mask_b
+
+Eight such steps multiply eight bytes; the loop over words has no table lookups and no
+data-dependent branches, so LLVM vectorizes it (four words per AVX2 instruction). The
+bytes of a word never mix, so the host's byte order does not matter.
+
+Memory: a group is processed in column chunks of CHUNK_BYTES; the k input rows and the m
+accumulator rows of one chunk are copied into word-aligned scratch buffers (at most
+(k + m) * CHUNK_BYTES bytes, in the first-level cache for k = 32), which also lets S be
+any length, not only a multiple of 8. Nothing else grows with the input.
+
+numba compiles these loops; nothing above the kernels layer imports numba, and this module
+loads late (codes/erasure.py imports it inside a function, for work of 2^16 bits or more
+or once compiled kernels are loaded anyway; smaller work uses kernels.erasure_small).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numba import njit
+
+CHUNK_BYTES = 2048  # columns per pass: one 2 KiB row per input and accumulator
+
+_LOW = np.uint64(0x0101010101010101)
+_EIGHT = np.uint64(8)
+
+
+@njit(cache=True, inline="always")
+def _mask_step(x, b, mask):
+    """(bit b of every byte of x, spread to 0x00/0xFF) & mask."""
+    bits = (x >> np.uint64(b)) & _LOW
+    return ((bits << _EIGHT) - bits) & mask
+
+
+@njit(cache=True)
+def _multiply_add(src, acc, nwords, m0, m1, m2, m3, m4, m5, m6, m7):
+    """acc[w] ^= c * src[w] bytewise for w < nwords, c given by its eight masks."""
+    for w in range(nwords):
+        x = src[w]
+        acc[w] ^= (_mask_step(x, 0, m0) ^ _mask_step(x, 1, m1) ^ _mask_step(x, 2, m2)
+                   ^ _mask_step(x, 3, m3) ^ _mask_step(x, 4, m4) ^ _mask_step(x, 5, m5)
+                   ^ _mask_step(x, 6, m6) ^ _mask_step(x, 7, m7))
+
+
+@njit(cache=True)
+def _xor_into(src, acc, nwords):
+    """acc[w] ^= src[w]: the coefficient 1."""
+    for w in range(nwords):
+        acc[w] ^= src[w]
+
+
+@njit(cache=True)
+def combine_rows(inputs, masks, targets, copies, out):
+    """Linear combinations of byte rows over GF(2^8), group by group.
+
+    inputs  (G, k, S) uint8: k input symbols per group
+    masks   (1 or G, m, k, 8) uint64: coefficient c[g, i, j] as its eight masks
+            (mask b = c * x^b in all bytes); a leading 1 shares one matrix by all groups
+    targets (1 or G, m) int64: output row of combination i (negative: skipped)
+    copies  (1 or G, T) int64: copies[g, t] >= 0 puts input row copies[g, t] at output row t
+    out     (G, T, S) uint8: only the rows named by targets and copies are written
+
+    out[g, targets[g, i]] = sum_j c[g, i, j] * inputs[g, j] (bytewise, XOR for +)."""
+    groups, k, size = inputs.shape
+    m = masks.shape[1]
+    chunk_words = CHUNK_BYTES // 8
+    src = np.zeros((k, chunk_words), dtype=np.uint64)
+    src8 = src.view(np.uint8)
+    acc = np.zeros((max(m, 1), chunk_words), dtype=np.uint64)
+    acc8 = acc.view(np.uint8)
+    for g in range(groups):
+        gm = 0 if masks.shape[0] == 1 else g
+        gt = 0 if targets.shape[0] == 1 else g
+        gc = 0 if copies.shape[0] == 1 else g
+        live = 0
+        for i in range(m):
+            if targets[gt, i] >= 0:
+                live += 1
+        if live > 0:
+            for b0 in range(0, size, CHUNK_BYTES):
+                nbytes = min(CHUNK_BYTES, size - b0)
+                nwords = (nbytes + 7) // 8
+                for j in range(k):
+                    src8[j, :nbytes] = inputs[g, j, b0:b0 + nbytes]
+                    src8[j, nbytes:nwords * 8] = 0  # the last word's spare bytes
+                acc[:, :nwords] = 0
+                for j in range(k):
+                    row = src[j]
+                    for i in range(m):
+                        if targets[gt, i] < 0:
+                            continue
+                        first = masks[gm, i, j, 0]  # c * x^0: zero iff c = 0
+                        if first == 0:
+                            continue
+                        if first == _LOW:  # c = 1
+                            _xor_into(row, acc[i], nwords)
+                        else:
+                            _multiply_add(row, acc[i], nwords, first, masks[gm, i, j, 1],
+                                          masks[gm, i, j, 2], masks[gm, i, j, 3],
+                                          masks[gm, i, j, 4], masks[gm, i, j, 5],
+                                          masks[gm, i, j, 6], masks[gm, i, j, 7])
+                for i in range(m):
+                    t = targets[gt, i]
+                    if t >= 0:
+                        out[g, t, b0:b0 + nbytes] = acc8[i, :nbytes]
+        for t in range(copies.shape[1]):
+            p = copies[gc, t]
+            if p >= 0:
+                out[g, t, :] = inputs[g, p, :]
