@@ -91,6 +91,8 @@ def encode_segment(code: BinaryLinearCode, depth: int, message: bytes) -> bytes:
     kernels = compiled(lay.coded_bits)
     if kernels is None:
         return small.encode(message, code.P, depth, lay.groups)
+    if depth == 1 or depth % 8 == 0:
+        return _encode_fused(code, lay, message)
     bitfields, blockcode = kernels
     source = bitfields.to_words(message, lay.blocks * code.k)
     out = bitfields.empty_words(lay.coded_bits)
@@ -111,10 +113,13 @@ def decode_segment(code: BinaryLinearCode, depth: int, coded: bytes | np.ndarray
     raw = np.frombuffer(coded, dtype=np.uint8) if not isinstance(coded, np.ndarray) else coded
     if _has_row_kernels(code):
         return _decode_rows_segment(code, lay, raw, message_bytes)
-    lead_m, lead_p, weight = code.leader_tables
     kernels = compiled(lay.coded_bits)
     if kernels is None:
+        lead_m, _, weight = code.leader_tables
         return small.decode(raw[: lay.coded_bytes], code.P, depth, lay.groups, lead_m, weight, message_bytes)
+    if depth == 1 or depth % 8 == 0:
+        return _decode_fused(code, lay, raw, message_bytes)
+    lead_m, lead_p, weight = code.leader_tables
     bitfields, blockcode = kernels
     source = bitfields.to_words(raw[: lay.coded_bytes], lay.coded_bits)
     out = bitfields.empty_words(lay.blocks * code.k)
@@ -123,6 +128,169 @@ def decode_segment(code: BinaryLinearCode, depth: int, coded: bytes | np.ndarray
                                    out[first * depth * code.k // 64:])
               for first, groups in _chunks(lay)]
     return bitfields.to_bytes(out, message_bytes), status[0] if len(status) == 1 else np.concatenate(status)
+
+
+# ---- the fused kernels: depth 1 and depths that are multiples of 8 ----------------------------------
+#
+# An octet is 8 consecutive codewords: k message bytes in, n coded bytes out, both at depth 1
+# (codewords concatenated) and at depth 8 (byte j of the octet is bit j of its 8 codewords).
+# Short codes (n <= LINEAR_MAX_N[depth]) treat an octet as one linear map of its bytes
+# (kernels.fused.encode_linear / decode_linear, tables of at most 147 KiB); longer codes
+# go codeword by codeword (depth 1) or by 8x8 transposes (depths 8L).
+
+LINEAR_MAX_N = {1: 16, 8: 24}  # per depth: measured faster than the codeword kernels up to this n
+TABLE_MESSAGE_BITS = 12  # a message of up to 12 bits finds its parity in one lookup
+
+
+@dataclass(frozen=True)
+class _Plan:
+    """How one code at one depth runs through kernels.fused, with its tables."""
+
+    kind: str  # "linear", "depth1" or "octets"
+    encode_table: np.ndarray  # linear: (k, 256, words); else the parity table (chunks, 2^chunk_bits)
+    decode_table: np.ndarray  # linear: (n, 256, words); else unused
+    syndrome_mask: np.ndarray
+    chunk_bits: int
+    leader_message: np.ndarray
+    leader_weight: np.ndarray
+
+
+@lru_cache(maxsize=128)
+def _plan(code: BinaryLinearCode, depth: int) -> _Plan:
+    lead_m, _, weight = code.leader_tables
+    if code.n <= LINEAR_MAX_N.get(depth, 0):
+        encode, decode, mask = _linear_tables(code, depth)
+        return _Plan("linear", encode, decode, mask, 0, lead_m, weight)
+    k = code.k
+    chunked = code.parity_table
+    if k <= TABLE_MESSAGE_BITS:  # one lookup: the parity of every k-bit message
+        values = np.arange(1 << k, dtype=np.uint64)
+        whole = np.zeros(1 << k, dtype=np.uint64)
+        for c in range(chunked.shape[0]):
+            whole ^= chunked[c, (values >> np.uint64(8 * c)) & np.uint64(0xFF)]
+        ptab, chunk_bits = whole.reshape(1, -1), k
+    else:
+        ptab, chunk_bits = chunked, 8
+    empty = np.zeros(1, dtype=np.uint64)
+    return _Plan("depth1" if depth == 1 else "octets", ptab, empty, empty, chunk_bits, lead_m, weight)
+
+
+def _octet_position(q: int, j: int, n: int, depth: int) -> int:
+    """Stream bit, within its octet's n bytes, of bit j of codeword q (of the octet's 8):
+    concatenated at depth 1, transposed (byte j, bit q) at depth 8."""
+    return q * n + j if depth == 1 else 8 * j + q
+
+
+def _vector_words(bits: list[int], nbits: int = 192) -> np.ndarray:
+    """A set of bit positions (0 = first) as a 3-word vector, first bit most significant."""
+    value = 0
+    for b in bits:
+        value ^= 1 << (nbits - 1 - b)
+    return np.array([(value >> (128 - 64 * w)) & ((1 << 64) - 1) for w in range(3)], dtype=np.uint64)
+
+
+def _byte_tables(units: np.ndarray, words: int) -> np.ndarray:
+    """(8 * count, 3) unit vectors, one per input bit (first bit of each byte most
+    significant) -> (count, 256, words) tables: the XOR of the units of the bits set in a
+    byte value, first `words` words."""
+    count = units.shape[0] // 8
+    table = np.zeros((count, 256, 3), dtype=np.uint64)
+    values = np.arange(256)
+    for pos in range(count):
+        for b in range(8):
+            has = ((values >> (7 - b)) & 1).astype(bool)
+            table[pos, has] ^= units[8 * pos + b]
+    return np.ascontiguousarray(table[:, :, :words])
+
+
+@lru_cache(maxsize=64)
+def _linear_tables(code: BinaryLinearCode, depth: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(encode table, decode table, syndrome mask) of the octet maps of a short code at
+    depth 1 or 8; an octet's n bytes fill ceil(n / 8) words.
+
+    Encode: message bit i of the octet (codeword q = i // k, bit j = i % k) is row j of
+    G = [I | P], placed at codeword q's stream positions. Decode: received bit j of
+    codeword q goes to message bit q*k + j (j < k) and, as P row j (j < k) or as parity
+    bit j - k, into syndrome q at bits 8k + q*r .. 8k + q*r + r - 1 of the result, so
+    the result is the 8 received messages followed by their 8 syndromes."""
+    k, r, n = code.k, code.r, code.n
+    P = code.P
+    enc_units = np.zeros((8 * k, 3), dtype=np.uint64)
+    for i in range(8 * k):
+        q, j = divmod(i, k)
+        bits = [_octet_position(q, j, n, depth)]
+        bits += [_octet_position(q, k + c, n, depth) for c in range(r) if P[j, c]]
+        enc_units[i] = _vector_words(bits)
+    dec_units = np.zeros((8 * n, 3), dtype=np.uint64)
+    for q in range(8):
+        for j in range(n):
+            if j < k:
+                bits = [q * k + j] + [8 * k + q * r + c for c in range(r) if P[j, c]]
+            else:
+                bits = [8 * k + q * r + (j - k)]
+            dec_units[_octet_position(q, j, n, depth)] = _vector_words(bits)
+    words = -(-n // 8)
+    return _byte_tables(enc_units, words), _byte_tables(dec_units, words), _vector_words(list(range(8 * k, 8 * n)))
+
+
+@lru_cache(maxsize=None)
+def _fused():
+    """kernels.fused, imported once it is needed (it loads numba)."""
+    from bitmend.kernels import fused
+
+    return fused
+
+
+def _native(nbits: int) -> np.ndarray:
+    """Uninitialised native word buffer for nbits; the fused writers store every word."""
+    return np.empty((nbits + 63) // 64 + 2, dtype=np.uint64)
+
+
+def _encode_fused(code: BinaryLinearCode, lay: SegmentLayout, message: bytes) -> bytes:
+    fused = _fused()
+    plan = _plan(code, lay.depth)
+    k, n = code.k, code.n
+    if plan.kind == "linear":
+        octets = -(-lay.blocks // 8)
+        out = _native(octets * 8 * n)
+        raw = np.frombuffer(message, dtype=np.uint8) if not isinstance(message, np.ndarray) else message
+        fused.encode_linear(raw, len(raw), octets, k, n, plan.encode_table, out)
+    elif plan.kind == "depth1":
+        src = fused.native_words(message, lay.blocks * k)
+        out = _native(lay.coded_bits)
+        fused.encode_depth1(src, lay.blocks, k, code.r, plan.encode_table, plan.chunk_bits, out)
+    else:
+        src = fused.native_words(message, lay.blocks * k)
+        out = _native(lay.coded_bits)
+        fused.encode_octets(src, lay.blocks // 8, lay.depth // 8, k, code.r, plan.encode_table, plan.chunk_bits,
+                            out.view(np.uint8))
+    return memoryview(out).cast("B")[: lay.coded_bytes].tobytes()
+
+
+def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
+                  message_bytes: int) -> tuple[bytes, np.ndarray]:
+    fused = _fused()
+    plan = _plan(code, lay.depth)
+    k, n = code.k, code.n
+    if plan.kind == "linear":
+        octets = -(-lay.blocks // 8)
+        status = np.zeros(8 * octets, dtype=np.uint8)
+        out = _native(octets * 8 * k)
+        fused.decode_linear(raw, min(len(raw), lay.coded_bytes), octets, k, n, plan.decode_table,
+                            plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, out)
+        status = status[: lay.blocks]
+    else:
+        status = np.zeros(lay.blocks, dtype=np.uint8)
+        src = fused.native_words(raw[: lay.coded_bytes], lay.coded_bits)
+        out = _native(lay.blocks * k)
+        if plan.kind == "depth1":
+            fused.decode_depth1(src, lay.blocks, k, code.r, plan.encode_table, plan.chunk_bits,
+                                plan.leader_message, plan.leader_weight, status, out)
+        else:
+            fused.decode_octets(src, src.view(np.uint8), lay.blocks // 8, lay.depth // 8, k, code.r,
+                                plan.encode_table, plan.chunk_bits, plan.leader_message, plan.leader_weight,
+                                status, out)
+    return memoryview(out).cast("B")[:message_bytes].tobytes(), status
 
 
 # ---- codes with their own row kernels (BCH, Reed-Solomon) ------------------------------------------

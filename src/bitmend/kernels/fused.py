@@ -1,0 +1,385 @@
+"""Fused segment kernels for the generic binary engine at depth 1 and depths that are multiples of 8.
+
+One compiled call per segment reads the messages, computes the parity, interleaves and
+writes the coded stream (or the reverse, with syndrome correction), with no intermediate
+arrays. The layout and bit order are those of kernels.blockcode (transmission order, a
+codeword is the k message bits then the r = n - k parity bits, most significant first;
+codeword i of a group of D puts its bit j at group bit j*D + i), so the bytes on the wire
+are the same; tests hold both kernels and the numpy twins in kernels.small bit-identical.
+
+Native word buffers. The stream lives in a uint64 array whose *memory* holds the stream
+bytes in order (the array is a view of the bytes, no byte swap on the way in or out), so
+a kernel reads stream word w as bswap(words[w]) on a little-endian machine. Callers make
+them with native_words / read them with stream_bytes; both are one copy at most.
+
+Parity by table: p = XOR_c ptab[c, chunk_c(m)] with chunks of `chunk_bits` bits (the whole
+message in one lookup when k <= 12, else bytes).
+
+Depth a multiple of 8 (D = 8L): the D codewords of a group are L octets of 8; octet l
+holds codewords 8l .. 8l+7, whose group bits j*D + 8l + q (q = 0..7) are the bits of
+group byte j*L + l. So byte j of the octet is bit j of its eight codewords, and eight such
+bytes are one 8x8 bit transpose (Hacker's Delight 7-3) away from bytes of the codewords.
+The messages of an octet are 8k consecutive message bits (k bytes), so octets run in
+order through the message and the kernels never hold more than eight codewords.
+"""
+
+from __future__ import annotations
+
+import sys
+
+import numpy as np
+from numba import njit
+
+U64 = np.uint64
+FAILED = 255  # block status: syndrome without a coset leader of weight <= t
+SPARE_WORDS = 2  # zero words after the data, so a two-word load never runs off the end
+LITTLE_ENDIAN = sys.byteorder == "little"
+
+
+def native_words(data: bytes | np.ndarray, nbits: int) -> np.ndarray:
+    """A zero-padded native word buffer holding the stream bytes data (at least nbits)."""
+    raw = np.frombuffer(data, dtype=np.uint8) if not isinstance(data, np.ndarray) else data
+    count = (max(8 * len(raw), nbits) + 63) // 64 + SPARE_WORDS
+    words = np.zeros(count, dtype=np.uint64)
+    words.view(np.uint8)[: len(raw)] = raw
+    return words
+
+
+def empty_native_words(nbits: int) -> np.ndarray:
+    return np.zeros((nbits + 63) // 64 + SPARE_WORDS, dtype=np.uint64)
+
+
+def stream_bytes(words: np.ndarray, nbytes: int) -> bytes:
+    """The first nbytes stream bytes of a native word buffer."""
+    return words.view(np.uint8)[:nbytes].tobytes()
+
+
+@njit(cache=True, inline="always")
+def swap(x):
+    """Stream word <-> native word: a byte swap on little-endian machines (LLVM emits one
+    bswap instruction for this pattern), nothing on big-endian ones."""
+    if LITTLE_ENDIAN:
+        x = ((x & U64(0x00FF00FF00FF00FF)) << U64(8)) | ((x >> U64(8)) & U64(0x00FF00FF00FF00FF))
+        x = ((x & U64(0x0000FFFF0000FFFF)) << U64(16)) | ((x >> U64(16)) & U64(0x0000FFFF0000FFFF))
+        x = (x << U64(32)) | (x >> U64(32))
+    return x
+
+
+@njit(cache=True, inline="always")
+def field(words, bit_pos, width):
+    """Stream field of 1..64 bits at bit_pos, first bit most significant."""
+    i = bit_pos >> 6
+    offset = U64(bit_pos & 63)
+    joined = (swap(words[i]) << offset) | ((swap(words[i + 1]) >> U64(1)) >> (U64(63) - offset))
+    return joined >> U64(64 - width)
+
+
+@njit(cache=True, inline="always")
+def put(words, index, acc, held, value, width):
+    """Sequential writer: append a width-bit value (1..64 bits, no stray high bits).
+    State (index: next word, acc: word being filled from the top, held: bits in acc)."""
+    free = 64 - held
+    if width < free:
+        return index, acc | (value << U64(free - width)), held + width
+    rest = width - free
+    words[index] = swap(acc | (value >> U64(rest)))
+    if rest == 0:
+        return index + 1, U64(0), 0
+    return index + 1, value << U64(64 - rest), rest
+
+
+@njit(cache=True, inline="always")
+def finish(words, index, acc, held):
+    if held:
+        words[index] = swap(acc)
+
+
+@njit(cache=True, inline="always")
+def parity(m, ptab, chunk_bits):
+    """p = m P: one lookup per chunk of chunk_bits message bits (low chunk first)."""
+    mask = (U64(1) << U64(chunk_bits)) - U64(1)
+    p = ptab[0, m & mask]
+    for c in range(1, ptab.shape[0]):
+        p ^= ptab[c, (m >> U64(chunk_bits * c)) & mask]
+    return p
+
+
+@njit(cache=True, inline="always")
+def transpose8(x):
+    """Transpose the 8x8 bit matrix in x (byte 0 = most significant = row 0, bit 7 of each
+    byte = column 0) by three rounds of masked swaps (Hacker's Delight 7-3)."""
+    t = (x ^ (x >> U64(7))) & U64(0x00AA00AA00AA00AA)
+    x = x ^ t ^ (t << U64(7))
+    t = (x ^ (x >> U64(14))) & U64(0x0000CCCC0000CCCC)
+    x = x ^ t ^ (t << U64(14))
+    t = (x ^ (x >> U64(28))) & U64(0x00000000F0F0F0F0)
+    return x ^ t ^ (t << U64(28))
+
+
+@njit(cache=True, inline="always")
+def left_codeword(m, p, k, r):
+    """Codeword (m, p) left-aligned in two words (w0 = bits 0..63, w1 = bits 64..)."""
+    n = k + r
+    if n <= 64:
+        return ((m << U64(r)) | p) << U64(64 - n), U64(0)
+    room = 64 - k  # parity bits that still fit in w0
+    if room == 0:
+        return m, p << U64(64 - r)
+    spill = r - room
+    return (m << U64(room)) | (p >> U64(spill)), p << U64(64 - spill)
+
+
+# ---- depth 1 ---------------------------------------------------------------------------------
+
+@njit(cache=True)
+def encode_depth1(src, blocks, k, r, ptab, chunk_bits, out):
+    """blocks codewords, each the k message bits from src then m P, concatenated into out."""
+    index, acc, held = 0, U64(0), 0
+    if k + r <= 64:
+        for i in range(blocks):
+            m = field(src, i * k, k)
+            index, acc, held = put(out, index, acc, held, (m << U64(r)) | parity(m, ptab, chunk_bits), k + r)
+    else:
+        for i in range(blocks):
+            m = field(src, i * k, k)
+            index, acc, held = put(out, index, acc, held, m, k)
+            index, acc, held = put(out, index, acc, held, parity(m, ptab, chunk_bits), r)
+    finish(out, index, acc, held)
+
+
+@njit(cache=True)
+def decode_depth1(coded, blocks, k, r, ptab, chunk_bits, leader_message, leader_weight, status, out):
+    """Bounded-distance decoding of concatenated codewords: s = p XOR m P; a syndrome with
+    a leader of weight w <= t flips the leader's message bits (status w), one without is
+    left as received (status FAILED). status must be zeroed; only damaged blocks write it."""
+    n = k + r
+    index, acc, held = 0, U64(0), 0
+    parity_mask = (U64(1) << U64(r)) - U64(1)
+    for i in range(blocks):
+        if n <= 64:
+            word = field(coded, i * n, n)
+            m = word >> U64(r)
+            p = word & parity_mask
+        else:
+            m = field(coded, i * n, k)
+            p = field(coded, i * n + k, r)
+        s = p ^ parity(m, ptab, chunk_bits)
+        if s != U64(0):
+            w = leader_weight[s]
+            if w != FAILED:
+                m ^= leader_message[s]
+            status[i] = w
+        index, acc, held = put(out, index, acc, held, m, k)
+    finish(out, index, acc, held)
+
+
+# ---- depth a multiple of 8 -------------------------------------------------------------------
+
+@njit(cache=True)
+def encode_octets(src, octets, lanes, k, r, ptab, chunk_bits, out8):
+    """Encode 8 * octets messages at depth 8 * lanes into the zeroed byte view out8."""
+    n = k + r
+    slices = (n + 7) // 8
+    w0 = np.empty(8, dtype=np.uint64)
+    w1 = np.empty(8, dtype=np.uint64)
+    group_bytes = lanes * n
+    for t in range(octets):
+        bit = t * 8 * k
+        for q in range(8):
+            m = field(src, bit + q * k, k)
+            a, b = left_codeword(m, parity(m, ptab, chunk_bits), k, r)
+            w0[q] = a
+            w1[q] = b
+        g = t // lanes
+        base = g * group_bytes + (t - g * lanes)
+        for c in range(slices):
+            shift = U64(56 - 8 * (c & 7))
+            x = U64(0)
+            if c < 8:
+                for q in range(8):
+                    x = (x << U64(8)) | ((w0[q] >> shift) & U64(0xFF))
+            else:
+                for q in range(8):
+                    x = (x << U64(8)) | ((w1[q] >> shift) & U64(0xFF))
+            x = transpose8(x)
+            for i in range(min(8, n - 8 * c)):
+                out8[base + (8 * c + i) * lanes] = np.uint8((x >> U64(56 - 8 * i)) & U64(0xFF))
+
+
+@njit(cache=True)
+def decode_octets(coded, coded8, octets, lanes, k, r, ptab, chunk_bits, leader_message, leader_weight,
+                  status, out):
+    """De-interleave 8 * octets codewords at depth 8 * lanes, correct them and write the
+    messages to the native word buffer out. status must be zeroed."""
+    n = k + r
+    slices = (n + 7) // 8
+    w0 = np.empty(8, dtype=np.uint64)
+    w1 = np.empty(8, dtype=np.uint64)
+    group_bytes = lanes * n
+    index, acc, held = 0, U64(0), 0
+    parity_mask = (U64(1) << U64(r)) - U64(1)
+    for t in range(octets):
+        g = t // lanes
+        base = g * group_bytes + (t - g * lanes)
+        for q in range(8):
+            w0[q] = U64(0)
+            w1[q] = U64(0)
+        for c in range(slices):
+            if lanes == 1:
+                x = field(coded, 8 * (base + 8 * c), 64)
+            else:
+                x = U64(0)
+                for i in range(8):
+                    j = 8 * c + i
+                    byte = U64(coded8[base + j * lanes]) if j < n else U64(0)
+                    x = (x << U64(8)) | byte
+            if 8 * c + 8 > n:
+                x &= ~((U64(1) << U64(64 - 8 * (n - 8 * c))) - U64(1))  # bytes past the group
+            x = transpose8(x)
+            shift = U64(56 - 8 * (c & 7))
+            if c < 8:
+                for q in range(8):
+                    w0[q] |= ((x >> U64(56 - 8 * q)) & U64(0xFF)) << shift
+            else:
+                for q in range(8):
+                    w1[q] |= ((x >> U64(56 - 8 * q)) & U64(0xFF)) << shift
+        for q in range(8):
+            if n <= 64:
+                bits = w0[q] >> U64(64 - n)
+                m = bits >> U64(r)
+                p = bits & parity_mask
+            else:
+                room = 64 - k
+                m = w0[q] >> U64(room) if room > 0 else w0[q]
+                spill = r - room
+                high = (w0[q] & ((U64(1) << U64(room)) - U64(1))) if room > 0 else U64(0)
+                p = (high << U64(spill)) | (w1[q] >> U64(64 - spill))
+            s = p ^ parity(m, ptab, chunk_bits)
+            if s != U64(0):
+                w = leader_weight[s]
+                if w != FAILED:
+                    m ^= leader_message[s]
+                status[8 * t + q] = w
+            index, acc, held = put(out, index, acc, held, m, k)
+    finish(out, index, acc, held)
+
+
+# ---- short codes: the whole octet as one linear map of its bytes ------------------------------
+
+@njit(cache=True, inline="always")
+def put_vector(out, index, acc, held, x0, x1, x2, nbits):
+    """Append the first nbits (<= 192) of the bit vector held in x0, x1, x2."""
+    if nbits >= 64:
+        index, acc, held = put(out, index, acc, held, x0, 64)
+    else:
+        return put(out, index, acc, held, x0 >> U64(64 - nbits), nbits)
+    if nbits >= 128:
+        index, acc, held = put(out, index, acc, held, x1, 64)
+    elif nbits > 64:
+        return put(out, index, acc, held, x1 >> U64(128 - nbits), nbits - 64)
+    else:
+        return index, acc, held
+    if nbits > 128:
+        index, acc, held = put(out, index, acc, held, x2 >> U64(192 - nbits), nbits - 128)
+    return index, acc, held
+
+
+@njit(cache=True, inline="always")
+def vector_field(x0, x1, x2, pos, width):
+    """Bits pos .. pos+width-1 (width <= 64) of the bit vector x0, x1, x2."""
+    w = pos >> 6
+    offset = pos & 63
+    a = x0 if w == 0 else (x1 if w == 1 else x2)
+    b = x1 if w == 0 else (x2 if w == 1 else U64(0))
+    joined = (a << U64(offset)) | ((b >> U64(1)) >> U64(63 - offset))
+    return joined >> U64(64 - width)
+
+
+@njit(cache=True, inline="always")
+def vector_xor(x0, x1, x2, pos, width, value):
+    """x XOR value placed at bits pos .. pos+width-1 (width <= 64)."""
+    w = pos >> 6
+    offset = pos & 63
+    top = value << U64(64 - width)  # left-aligned
+    a = top >> U64(offset)
+    b = (top << U64(1)) << U64(63 - offset) if offset else U64(0)
+    if w == 0:
+        return x0 ^ a, x1 ^ b, x2
+    if w == 1:
+        return x0, x1 ^ a, x2 ^ b
+    return x0, x1, x2 ^ a
+
+
+@njit(cache=True)
+def encode_linear(in8, length, octets, k, n, table, out):
+    """Octets of short codes: octet t (8 codewords) is the XOR over its k message bytes
+    of table[pos, byte] (its n stream bytes as table.shape[2] <= 3 words): parity, the
+    codeword layout and interleaving are all linear in the message bits, so one table
+    does them at once. in8 holds `length` message bytes; bytes past them read as zero."""
+    index, acc, held = 0, U64(0), 0
+    nbits = 8 * n
+    nw = table.shape[2]
+    x1 = U64(0)
+    x2 = U64(0)
+    whole = min(octets, length // k)  # octets whose bytes are all present
+    for t in range(octets):
+        base = t * k
+        byte = in8[base] if t < whole or base < length else 0
+        x0 = table[0, byte, 0]
+        if nw > 1:
+            x1 = table[0, byte, 1]
+        if nw > 2:
+            x2 = table[0, byte, 2]
+        for pos in range(1, k):
+            byte = in8[base + pos] if t < whole or base + pos < length else 0
+            x0 ^= table[pos, byte, 0]
+            if nw > 1:
+                x1 ^= table[pos, byte, 1]
+            if nw > 2:
+                x2 ^= table[pos, byte, 2]
+        index, acc, held = put_vector(out, index, acc, held, x0, x1, x2, nbits)
+    finish(out, index, acc, held)
+
+
+@njit(cache=True)
+def decode_linear(in8, length, octets, k, n, table, syndrome_mask, leader_message, leader_weight, status, out):
+    """Octets of short codes, decoded: XOR over the n received bytes of table[pos, byte]
+    gives the 8 received messages (bits 0 .. 8k-1, concatenated) and their 8 syndromes
+    (r bits each, concatenated from bit 8k). All-zero syndromes: the messages go out as
+    they are; otherwise each codeword with s != 0 is corrected by its coset leader
+    (status w) or left as received (status FAILED). status must be zeroed. in8 holds
+    `length` received bytes; bytes past them read as zero."""
+    r = n - k
+    whole = min(octets, length // n)
+    index, acc, held = 0, U64(0), 0
+    nw = table.shape[2]
+    m0 = syndrome_mask[0]
+    m1 = syndrome_mask[1]
+    m2 = syndrome_mask[2]
+    x1 = U64(0)
+    x2 = U64(0)
+    for t in range(octets):
+        base = t * n
+        byte = in8[base] if t < whole or base < length else 0
+        x0 = table[0, byte, 0]
+        if nw > 1:
+            x1 = table[0, byte, 1]
+        if nw > 2:
+            x2 = table[0, byte, 2]
+        for pos in range(1, n):
+            byte = in8[base + pos] if t < whole or base + pos < length else 0
+            x0 ^= table[pos, byte, 0]
+            if nw > 1:
+                x1 ^= table[pos, byte, 1]
+            if nw > 2:
+                x2 ^= table[pos, byte, 2]
+        if (x0 & m0) | (x1 & m1) | (x2 & m2):
+            for q in range(8):
+                s = vector_field(x0, x1, x2, 8 * k + q * r, r)
+                if s != U64(0):
+                    w = leader_weight[s]
+                    if w != FAILED:
+                        x0, x1, x2 = vector_xor(x0, x1, x2, q * k, k, leader_message[s])
+                    status[8 * t + q] = w
+        index, acc, held = put_vector(out, index, acc, held, x0, x1, x2, 8 * k)
+    finish(out, index, acc, held)
