@@ -66,6 +66,18 @@ class Encoder(io.BufferedIOBase):
         if not self.closed and not self._writer.closed:
             self._writer.flush()
 
+    def send_record(self, record: bytes) -> None:
+        """Send record as a frame of its own, now (its boundaries survive the link; see
+        bitmend.records). ValueError for a record longer than a frame."""
+        if self.closed:
+            raise ValueError("write to closed file")
+        self._writer.send_record(bytes(record))
+
+    @property
+    def frame_bytes(self) -> int:
+        """Payload bytes per full frame."""
+        return self._writer._frame_bytes
+
     @property
     def pending_bytes(self) -> int:
         """Bytes written but not yet sent in a frame."""

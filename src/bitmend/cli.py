@@ -85,6 +85,7 @@ def _errors() -> Iterator[None]:
     except outputs.OutputError as exc:
         _fail(str(exc), EXIT_UNREADABLE)
     except outputs.Stopped as exc:
+        outputs.silence_stdout()  # what stdout's buffer still holds is dropped, even into a stalled pipe
         _fail(str(exc), exc.exit_code)
     except UnknownCodeError as exc:
         _fail(str(exc), EXIT_USAGE)
@@ -329,11 +330,22 @@ def encode(
     max_delay: float = typer.Option(DEFAULT_MAX_DELAY, "--max-delay", metavar="SECONDS",
                                     help="Send a frame at most this long after its first byte arrived, full or "
                                          "not (live sources such as `tail -f`); inf: only full frames."),
+    records: Optional[str] = typer.Option(None, "--records", metavar="line|u16|u32",
+                                          help="Keep record boundaries: each newline-ended line, or each record "
+                                               "behind a big-endian 2- or 4-byte length, is sent as a frame of its "
+                                               "own (a record longer than --frame-bytes is refused)."),
+    idle: Optional[float] = typer.Option(None, "--idle", metavar="SECONDS",
+                                         help="With IN = udp:HOST:PORT: end after this long without a datagram "
+                                              "(default: run until SIGINT or SIGTERM)."),
 ) -> None:
-    """Wrap a byte stream in coded, self-contained frames."""
+    """Wrap a byte stream in coded, self-contained frames.
+
+    IN and -o may be udp:HOST:PORT: each datagram received is one record, sent as one frame;
+    each frame sent to udp: is one datagram."""
     from bitmend.api import Encoder
     from bitmend.container.format import MAX_PAYLOAD_BYTES
     from bitmend.live import pump_encode
+    from bitmend.records import FRAMINGS, pump_records
 
     with _errors():
         _check_depth(depth)
@@ -341,17 +353,97 @@ def encode(
             raise CliError(f"--frame-bytes must be 1..{MAX_PAYLOAD_BYTES}, got {frame_bytes}", EXIT_USAGE)
         if not max_delay > 0:  # (also refuses nan)
             raise CliError(f"--max-delay must be a positive number of seconds (or inf), got {max_delay:g}", EXIT_USAGE)
+        if records is not None and records not in FRAMINGS:
+            raise CliError(f"--records must be one of {', '.join(FRAMINGS)}, got {records!r}", EXIT_USAGE)
+        _check_idle(idle)
+        source_udp, output_udp = _endpoint(source), _endpoint(output)
+        if idle is not None and source_udp is None:
+            raise CliError("--idle applies to IN = udp:HOST:PORT only", EXIT_USAGE)
+        if source_udp is not None and records is not None:
+            raise CliError("a datagram is already one record: --records applies to byte-stream input", EXIT_USAGE)
         chosen = _load_code(code, code_file)  # unknown names and bad files fail before any output is made
-        if code_file:
-            from bitmend.container.writer import FrameWriter
-            try:
-                FrameWriter(io.BytesIO(), chosen, depth, frame_bytes)  # frame size limits, before any output
-            except ValueError as exc:
-                raise CliError(str(exc), EXIT_USAGE) from None
-        with _open_input(source) as inp, _open_output(output) as out:
+        from bitmend.container.writer import FrameWriter
+        try:
+            FrameWriter(io.BytesIO(), chosen, depth, frame_bytes)  # frame size limits, before any output
+        except ValueError as exc:
+            raise CliError(str(exc), EXIT_USAGE) from None
+        if output_udp is not None:
+            _check_fits_datagram(chosen, depth, frame_bytes)
+        if source_udp is not None:
+            _encode_datagrams(source_udp, output, output_udp, code or chosen, depth, frame_bytes, idle)
+            return
+        with _open_input(source) as inp, _open_data_output(output, output_udp) as out:
             with _progress("encoding", _input_size(inp), True) as tick:
                 with Encoder(out, code or chosen, depth, frame_bytes) as enc:
-                    pump_encode(inp, enc, None if max_delay == float("inf") else max_delay, tick)
+                    if records is not None:
+                        pump_records(inp, enc, records, tick)
+                    else:
+                        pump_encode(inp, enc, None if max_delay == float("inf") else max_delay, tick)
+
+
+def _check_idle(idle: Optional[float]) -> None:
+    if idle is not None and not idle > 0:
+        raise CliError(f"--idle must be a positive number of seconds, got {idle:g}", EXIT_USAGE)
+
+
+def _endpoint(name: Optional[str]):
+    """The udp:HOST:PORT endpoint a name gives, or None for a file name."""
+    from bitmend.datagrams import EndpointError, parse_endpoint
+
+    try:
+        return parse_endpoint(name)
+    except EndpointError as exc:
+        raise CliError(str(exc), EXIT_USAGE) from None
+
+
+def _check_fits_datagram(code, depth: int, frame_bytes: int) -> None:
+    from bitmend.container import format as fmt
+    from bitmend.container.writer import resolve_code
+    from bitmend.datagrams import MAX_DATAGRAM
+
+    code_id, defined = resolve_code(code)
+    header = (fmt.FrameHeader.for_defined_code(defined, depth, 0, frame_bytes) if defined is not None
+              else fmt.FrameHeader(code_id, depth, 0, frame_bytes))
+    if header.frame_bytes > MAX_DATAGRAM:
+        raise CliError(f"a full frame ({header.frame_bytes} bytes with --frame-bytes {frame_bytes}) does not fit "
+                       f"one datagram ({MAX_DATAGRAM} bytes): lower --frame-bytes", EXIT_USAGE)
+
+
+@contextmanager
+def _open_data_output(output: Optional[str], endpoint):
+    """The -o target: a datagram sender for udp:HOST:PORT, else a file or stdout (outputs rules)."""
+    if endpoint is None:
+        with _open_output(output) as out:
+            yield out
+        return
+    from bitmend.datagrams import DatagramSender
+
+    with DatagramSender(endpoint) as sender:
+        yield sender
+
+
+def _encode_datagrams(endpoint, output: Optional[str], output_udp, code, depth: int, frame_bytes: int,
+                      idle: Optional[float]) -> None:
+    """encode udp:HOST:PORT: each datagram received is one record, sent at once as one frame."""
+    from bitmend.api import Encoder
+    from bitmend.datagrams import DatagramReceiver
+
+    receiver = DatagramReceiver(endpoint, idle)
+    refused = 0
+    with _open_data_output(output, output_udp) as out:
+        with Encoder(out, code, depth, frame_bytes) as enc:
+            for datagram in receiver:
+                if len(datagram) > frame_bytes:
+                    refused += 1  # one oversized datagram must not end a live link
+                    continue
+                enc.send_record(datagram)
+                if not getattr(out, "replaces_file", True):
+                    out.flush()
+    ended = f", ended by {receiver.stopped_by}" if receiver.stopped_by else ""
+    typer.echo(f"bitmend encode: {receiver.received} datagrams received, {receiver.received - refused} sent as "
+               f"frames{ended}", err=True)
+    if refused:
+        raise CliError(f"{refused} datagrams longer than --frame-bytes {frame_bytes} were not sent", EXIT_DAMAGED)
 
 
 @app.command()
@@ -360,18 +452,45 @@ def decode(
     output: Optional[str] = typer.Option(None, "-o", "--output", help="Output file (default stdout)."),
     report: Optional[str] = typer.Option(None, "--report", help="Write a JSON Lines report here: "
                                          "one object per frame, then a summary."),
-    on_error: str = typer.Option("keep", "--on-error", help="Damaged frames: keep (as corrected as possible), "
-                                 "zero (zeros, also for lost frames of known size), drop, or fail (stop)."),
+    on_error: Optional[str] = typer.Option(None, "--on-error", help="Damaged frames: keep (as corrected as "
+                                           "possible; the default for byte streams), zero (zeros, also for lost "
+                                           "frames of known size), drop (the default for records), or fail (stop)."),
     quiet: bool = typer.Option(False, "--quiet", "-q", help="No summary line on stderr."),
+    records: Optional[str] = typer.Option(None, "--records", metavar="line|u16|u32",
+                                          help="Write each verified frame as one record in this framing; a record "
+                                               "that did not arrive is missing whole (the report names it)."),
+    idle: Optional[float] = typer.Option(None, "--idle", metavar="SECONDS",
+                                         help="With IN = udp:HOST:PORT: end after this long without a datagram "
+                                              "(default: run until SIGINT or SIGTERM, which end it cleanly)."),
 ) -> None:
-    """Recover the data; exit 0 only if every byte was CRC-verified."""
+    """Recover the data; exit 0 only if every byte was CRC-verified.
+
+    IN may be udp:HOST:PORT (each datagram holds frames) and -o may be udp:HOST:PORT (each
+    verified frame's data is sent as one datagram, in order, once)."""
     from bitmend.api import Decoder
     from bitmend.container.assembler import ON_ERROR_CHOICES, DamagedDataError
+    from bitmend.records import FRAMINGS, RECORD_ON_ERROR
 
     with _errors():
+        if records is not None and records not in FRAMINGS:
+            raise CliError(f"--records must be one of {', '.join(FRAMINGS)}, got {records!r}", EXIT_USAGE)
+        _check_idle(idle)
+        source_udp, output_udp = _endpoint(source), _endpoint(output)
+        if idle is not None and source_udp is None:
+            raise CliError("--idle applies to IN = udp:HOST:PORT only", EXIT_USAGE)
+        record_mode = records is not None or output_udp is not None
+        if record_mode:
+            on_error = on_error or "drop"
+            if on_error not in RECORD_ON_ERROR:
+                raise CliError(f"--on-error for records and datagrams must be one of {', '.join(RECORD_ON_ERROR)} "
+                               f"(a zero-filled record would be an invented one), got {on_error!r}", EXIT_USAGE)
+        on_error = on_error or "keep"
         if on_error not in ON_ERROR_CHOICES:
             raise CliError(f"--on-error must be one of {', '.join(ON_ERROR_CHOICES)}, got {on_error!r}", EXIT_USAGE)
         outputs.check_distinct({"-o": output or "-", "--report": report})
+        if record_mode or source_udp is not None:
+            _decode_records(source, source_udp, output, output_udp, report, on_error, records, idle, quiet)
+            return
         stopped: DamagedDataError | None = None
         report_file = None
         with _open_input(source) as inp:
@@ -401,6 +520,54 @@ def decode(
         if stopped is not None:
             raise CliError(f"stopped: {stopped}", EXIT_DAMAGED)
         raise typer.Exit(EXIT_OK if summary.complete else EXIT_DAMAGED)
+
+
+def _decode_records(source: str, source_udp, output: Optional[str], output_udp, report: Optional[str],
+                    on_error: str, framing: Optional[str], idle: Optional[float], quiet: bool) -> None:
+    """decode in record mode (--records, or datagrams in or out): each verified frame's data
+    is one record, written in its framing or sent as one datagram; lost records are left out."""
+    from contextlib import nullcontext
+
+    from bitmend.container.assembler import DamagedDataError
+    from bitmend.records import RecordReader, _record_assembler, framed
+
+    receiver = None
+    if source_udp is not None:
+        from bitmend.datagrams import DatagramReceiver
+
+        receiver = DatagramReceiver(source_udp, idle)
+    stopped: DamagedDataError | None = None
+    report_file = None
+    with (nullcontext(None) if receiver is not None else _open_input(source)) as inp:
+        on_frame = (lambda r: report_file.write_text(r.to_json() + "\n")) if report else None
+        reader = RecordReader(_record_assembler(receiver if receiver is not None else inp, on_error), on_frame,
+                              keep_frame_reports=False)
+        with _open_data_output(output, output_udp) as out, \
+                _open_side_file(report, "report", lambda failure: _report_end(reader, out, failure)) as report_file:
+            live = not out.replaces_file
+            try:
+                for _, record, _ in reader.with_reports():
+                    out.write(record if output_udp is not None or framing is None else framed(record, framing))
+                    if live:
+                        out.flush()
+            except DamagedDataError as exc:
+                stopped = exc
+            if hasattr(out, "prepare"):
+                out.prepare()
+    summary = reader.summary
+    if not quiet:
+        typer.echo(summary.one_line(), err=True)
+        if reader.missing:
+            shown = ", ".join(str(n) for n in reader.missing[:20]) + (" ..." if len(reader.missing) > 20 else "")
+            typer.echo(f"bitmend decode: note: records missing (by sequence number): {shown}", err=True)
+        for note in summary.notes:
+            typer.echo(f"bitmend decode: note: {note}", err=True)
+        if receiver is not None:
+            ended = f"; ended by {receiver.stopped_by}" if receiver.stopped_by else ""
+            typer.echo(f"bitmend decode: {receiver.received} datagrams received{ended}", err=True)
+    if stopped is not None:
+        raise CliError(f"stopped: {stopped}", EXIT_DAMAGED)
+    raise typer.Exit(EXIT_OK if summary.complete else EXIT_DAMAGED)
 
 
 @app.command()
@@ -714,6 +881,7 @@ def main() -> None:
         _flush_stdout()
     except outputs.Stopped as exc:  # a signal outside a command's own error handling
         outputs.remove_temp_files()
+        outputs.silence_stdout()
         typer.echo(f"bitmend: {exc}", err=True)
         code = exc.exit_code
     except outputs.BrokenOutput:

@@ -23,8 +23,8 @@ Signals: `install_signal_handlers()` turns SIGINT, SIGTERM and SIGHUP (those not
 the process started, as under nohup) into a `Stopped` exception, so the normal cleanup runs:
 temp files are removed, report and ledger files get their last line. Exit status 128 + the
 signal's number (130, 143, 129). Inside `deferred_signals()` (commits and cleanup) a signal is
-only recorded and acted on after; a second signal while the first is handled removes the temp
-files and ends the process at once with the same kind of status.
+only recorded, and acted on when the block ends; a second signal while the first is handled
+removes the temp files and ends the process at once with the same kind of status.
 """
 
 from __future__ import annotations
@@ -114,13 +114,26 @@ def install_signal_handlers() -> None:
 
 @contextmanager
 def deferred_signals() -> Iterator[None]:
-    """Hold a signal while the block runs (a commit, a cleanup), so that it is not cut in half.
-    The held signal is raised by `raise_pending_signal()`."""
+    """Hold a signal while the block runs (a commit, a cleanup), so that it is not cut in half;
+    it is raised as `Stopped` when the outermost such block ends (unless an exception is already
+    on its way up: then `raise_pending_signal()` raises it later)."""
     _state.deferring += 1
     try:
         yield
     finally:
         _state.deferring -= 1
+    raise_pending_signal()
+
+
+def take_pending_signal() -> Optional[int]:
+    """A signal recorded inside `deferred_signals()`, taken so that it is not raised: for a
+    loop that ends cleanly on SIGINT/SIGTERM (a datagram receiver), which asks regularly."""
+    signum, _state.pending = _state.pending, None
+    return signum
+
+
+def signal_name(signum: int) -> str:
+    return signal.Signals(signum).name
 
 
 def raise_pending_signal() -> None:
@@ -241,7 +254,9 @@ class Output:
 
     def discard(self) -> None:
         """Drop the output: a temp file is removed, the target is left as it was; a direct
-        target (stdout, device, FIFO) keeps what already went into it."""
+        target (stdout, device, FIFO) keeps what already went into it. Bytes that stdout's
+        buffer still holds are not pushed here (its reader may have stalled); see
+        `silence_stdout`."""
         if self._done:
             return
         with deferred_signals():
@@ -251,9 +266,7 @@ class Output:
         self._done = True
         try:
             if self._owned:
-                self._stream.close()
-            elif self._temp is None:
-                self._stream.flush()
+                self._stream.close()  # unbuffered unless a temp file: nothing left to push
         except (OSError, ValueError):
             pass  # the output is being dropped: a failing flush changes nothing
         if self._temp is not None:
@@ -295,24 +308,25 @@ def _open_descriptor(label: str, fd: int) -> Output:
         return _stdout(label)
     try:
         os.fstat(fd)
-        stream = os.fdopen(os.dup(fd), "wb")
+        stream = os.fdopen(os.dup(fd), "wb", buffering=0)
     except OSError as exc:
         raise OutputError(f"cannot write {label}: {exc.strerror or exc}") from None
     return Output(label, stream)
 
 
 def _open_direct(label: str, path: str, mode: int) -> Output:
-    """A device, FIFO or socket: write into it (a FIFO's open waits for its reader)."""
+    """A device, FIFO or socket: write into it (a FIFO's open waits for its reader). Unbuffered,
+    so that dropping it never has to push held bytes into a reader that has stalled."""
     try:
         if stat.S_ISSOCK(mode):
             sock = socket.socket(socket.AF_UNIX, socket.SOCK_STREAM)
             try:
                 sock.connect(path)
-                stream = sock.makefile("wb")
+                stream = sock.makefile("wb", buffering=0)
             finally:
                 sock.close()  # the file object holds its own reference to the connection
         else:
-            stream = open(path, "wb")
+            stream = open(path, "wb", buffering=0)
     except OSError as exc:
         raise OutputError(f"cannot write {label}: {exc.strerror or exc}") from None
     return Output(label, stream, is_stdout=False)

@@ -43,6 +43,7 @@ class FrameReport:
     stream: str | None = None  # stream identity (16 hex digits); None for version 1 frames
     stream_index: int = 0  # which stream of the input, counted from 0
     reordered: bool = False  # arrived after a frame numbered later; put back in place
+    closing: bool = False  # the stream's closing frame
 
     def to_json(self) -> str:
         return json.dumps({"type": "frame", **asdict(self)}, separators=(",", ":"))

@@ -58,11 +58,13 @@ class Assembler:
     report carries more data of the frame reported just before (zeros of a long lost
     run). summary() when done."""
 
-    def __init__(self, source: BinaryIO, on_error: str = "keep") -> None:
+    def __init__(self, source: BinaryIO | None, on_error: str = "keep", scanner=None) -> None:
+        """source: a container byte stream; or give `scanner`, anything with `frames()`,
+        `stats` and `bytes_read` like FrameScanner (e.g. one over separate datagrams)."""
         if on_error not in ON_ERROR_CHOICES:
             raise ValueError(f"on_error must be one of {', '.join(ON_ERROR_CHOICES)}, got {on_error!r}")
         self.on_error = on_error
-        self.scanner = FrameScanner(source)
+        self.scanner = scanner if scanner is not None else FrameScanner(source)
         self.sequencer = Sequencer()
         self._counts = _Counts()
         self._notes: list[str] = []
@@ -104,7 +106,7 @@ class Assembler:
                              frame.corrected_blocks, frame.corrected_symbols, frame.failed_blocks,
                              frame.crc_ok, self._counts.bytes_out, len(data), frame.truncated,
                              frame.failed_count, stream=_stream_name(header), stream_index=event.stream_index,
-                             reordered=event.reordered)
+                             reordered=event.reordered, closing=header.last)
         self._record(report)
         yield data, report
         self._truncated = self._truncated or frame.truncated

@@ -104,6 +104,20 @@ class FrameWriter:
             self._pending.clear()
         self._sink.flush()
 
+    def send_record(self, record: bytes) -> None:
+        """Send record as one frame of its own, now (an empty record too): the frame
+        boundaries are the record boundaries. Raises ValueError for a record longer than a
+        frame, or when bytes written with write() are still waiting."""
+        if self.closed:
+            raise ValueError("record sent to a closed frame writer")
+        if self._pending:
+            raise ValueError("records and a byte stream cannot be mixed in one frame writer")
+        if len(record) > self._frame_bytes:
+            raise ValueError(f"a record of {len(record)} bytes does not fit a frame of {self._frame_bytes} bytes")
+        self.bytes_in += len(record)
+        self._emit(bytes(record), last=False)
+        self._sink.flush()
+
     def close(self) -> None:
         """Send the closing frame (the held data, possibly empty)."""
         if self.closed:

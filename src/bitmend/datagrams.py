@@ -1,0 +1,137 @@
+"""Datagram endpoints: `udp:HOST:PORT` as an input (bound and listened on) or an output (sent to).
+
+Each datagram received is one record; each frame or record sent is one datagram. A receiver
+runs until `--idle` seconds pass without a datagram, or until SIGINT/SIGTERM, which end it
+like the end of a file: what arrived is delivered and the summary and report are written.
+"""
+
+from __future__ import annotations
+
+import select
+import socket
+from dataclasses import dataclass
+from typing import Iterator
+
+from bitmend import outputs
+
+MAX_DATAGRAM = 65507  # the largest UDP payload over IPv4
+POLL_SECONDS = 0.2  # how often a waiting receiver looks for a stop request
+
+
+class EndpointError(ValueError):
+    """A malformed udp:HOST:PORT, or a frame too large for one datagram."""
+
+
+@dataclass(frozen=True)
+class UdpEndpoint:
+    host: str
+    port: int
+
+    @property
+    def address(self) -> tuple[str, int]:
+        return self.host, self.port
+
+    def __str__(self) -> str:
+        host = f"[{self.host}]" if ":" in self.host else self.host
+        return f"udp:{host}:{self.port}"
+
+
+def parse_endpoint(text: str | None) -> UdpEndpoint | None:
+    """UdpEndpoint for 'udp:HOST:PORT' ('udp:[::1]:9000' for IPv6), None for anything else
+    (a file name). Raises EndpointError for a udp: name that does not parse."""
+    if not text or not text.startswith("udp:"):
+        return None
+    rest = text[4:]
+    if rest.startswith("["):
+        host, sep, port = rest[1:].partition("]:")
+    else:
+        host, sep, port = rest.rpartition(":")
+    if not sep or not host or not port.isdigit() or not 0 < int(port) < 65536:
+        raise EndpointError(f"{text}: expected udp:HOST:PORT with a port 1..65535 (udp:[::1]:PORT for IPv6)")
+    return UdpEndpoint(host, int(port))
+
+
+def _socket_for(endpoint: UdpEndpoint) -> socket.socket:
+    family = socket.AF_INET6 if ":" in endpoint.host else socket.AF_INET
+    return socket.socket(family, socket.SOCK_DGRAM)
+
+
+class DatagramReceiver:
+    """Datagrams arriving at a bound address, as an iterator of bytes."""
+
+    def __init__(self, endpoint: UdpEndpoint, idle: float | None = None) -> None:
+        self.endpoint = endpoint
+        self.idle = idle
+        self.received = 0
+        self.stopped_by: str | None = None  # the signal that ended the run, if one did
+        self._sock = _socket_for(endpoint)
+        try:
+            self._sock.bind(endpoint.address)
+        except OSError as exc:
+            self._sock.close()
+            raise OSError(exc.errno, f"cannot listen on {endpoint}: {exc.strerror}") from None
+
+    def __iter__(self) -> Iterator[bytes]:
+        """Datagrams until --idle seconds of silence or a stop signal (taken as the end of
+        input, not as a failure: the caller finishes normally)."""
+        import time
+
+        last = time.monotonic()
+        with outputs.deferred_signals():
+            try:
+                while True:
+                    signum = outputs.take_pending_signal()
+                    if signum is not None:
+                        self.stopped_by = outputs.signal_name(signum)
+                        return
+                    wait = POLL_SECONDS
+                    if self.idle is not None:
+                        left = last + self.idle - time.monotonic()
+                        if left <= 0:
+                            return
+                        wait = min(wait, left)
+                    ready, _, _ = select.select([self._sock], [], [], wait)
+                    if not ready:
+                        continue
+                    data = self._sock.recv(MAX_DATAGRAM + 1)
+                    last = time.monotonic()
+                    self.received += 1
+                    yield data
+            finally:
+                self._sock.close()
+
+    def close(self) -> None:
+        self._sock.close()
+
+
+class DatagramSender:
+    """Sends each write() as one datagram to an address (a binary-file-like sink)."""
+
+    def __init__(self, endpoint: UdpEndpoint) -> None:
+        self.endpoint = endpoint
+        self.label = str(endpoint)
+        self.sent = 0
+        self.bytes_written = 0
+        self.replaces_file = False
+        self._sock = _socket_for(endpoint)
+
+    def write(self, datagram: bytes) -> int:
+        if len(datagram) > MAX_DATAGRAM:
+            raise EndpointError(f"{self.endpoint}: a frame of {len(datagram)} bytes does not fit one datagram "
+                                f"({MAX_DATAGRAM} at most): lower --frame-bytes")
+        self._sock.sendto(datagram, self.endpoint.address)
+        self.sent += 1
+        self.bytes_written += len(datagram)
+        return len(datagram)
+
+    def flush(self) -> None:
+        pass
+
+    def close(self) -> None:
+        self._sock.close()
+
+    def __enter__(self) -> "DatagramSender":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
