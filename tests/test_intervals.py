@@ -90,3 +90,15 @@ def test_burst_block_error_interval_covers_the_exact_value_in_at_least_nine_of_t
     # burst counts are skewed, so the few misses fall mostly below. 34 of 40 is 85%.
     assert covered >= 34
     assert binomial_covered <= covered - 4  # the clustering is real, and the old interval missed it
+
+
+def test_sparse_tally_of_event_batch_indexes_equals_the_dense_tally():
+    rng = np.random.default_rng(11)
+    trials = rng.integers(0, 40, 300)  # some batches hold no trial (padding): they do not count
+    where = rng.choice(np.flatnonzero(trials > 0), size=120)
+    dense_events = np.bincount(where, minlength=trials.size)
+    dense = intervals.BatchTally()
+    dense.add(dense_events, trials)
+    sparse = intervals.BatchTally()
+    sparse.add_sparse(where, trials, int(trials.sum()), int(np.dot(trials, trials)), int(np.count_nonzero(trials)))
+    assert [getattr(sparse, s) for s in sparse.__slots__] == [getattr(dense, s) for s in dense.__slots__]

@@ -454,34 +454,33 @@ class _Batches:
         self.batch_of = (np.arange(lay.blocks) // lay.depth) // self.groups
         count = int(self.batch_of[-1]) + 1
         self.count = count
-        self.blocks_in = np.bincount(self.batch_of, minlength=count)
+        self.blocks_in = np.bincount(self.batch_of, minlength=count).astype(np.int64)
         payload = 8 * frame_bytes  # payload bits a codeword carries (the CRC and padding do not count)
         carried = np.clip(payload - np.arange(lay.blocks) * self.message_bits, 0, self.message_bits)
         self.bits_in = np.bincount(self.batch_of, weights=carried, minlength=count).astype(np.int64)
         self.frames_per_batch = 1 if memory_bits <= 0 else max(1, math.ceil(min(memory_bits, 1e18) / lay.coded_bits))
         self.frames_open = self.frame_fails_open = 0
-        self.zeros = np.zeros(count, dtype=np.int64)
+        # per frame: sum of trials, of their squares, and the batches that hold any trial
+        self.bits_sums = (int(self.bits_in.sum()), int(np.dot(self.bits_in, self.bits_in)),
+                          int(np.count_nonzero(self.bits_in)))
+        self.block_sums = (int(self.blocks_in.sum()), int(np.dot(self.blocks_in, self.blocks_in)),
+                           int(np.count_nonzero(self.blocks_in)))
         self.tallies = {name: intervals.BatchTally() for name in ("bits", "blocks", "detected", "undetected", "frames")}
 
     def add_frame(self, failed: np.ndarray, wrong_payload_bits: np.ndarray | None,
                   undetected_blocks: np.ndarray | None, frame_failed: bool) -> None:
         """One decoded frame: the flagged codewords, the positions of wrong payload bits, the
-        codewords decoded wrong without a flag, whether its CRC failed."""
-        count, t = self.count, self.tallies
-        flagged = np.flatnonzero(failed)
-        det = np.bincount(self.batch_of[flagged], minlength=count) if flagged.size else self.zeros
-        if wrong_payload_bits is not None and wrong_payload_bits.size:
-            bits = np.bincount(self.batch_of[wrong_payload_bits // self.message_bits], minlength=count)
-        else:
-            bits = self.zeros
-        if undetected_blocks is not None and undetected_blocks.size:
-            und = np.bincount(self.batch_of[undetected_blocks], minlength=count)
-        else:
-            und = self.zeros
-        t["bits"].add(bits, self.bits_in)
-        t["detected"].add(det, self.blocks_in)
-        t["undetected"].add(und, self.blocks_in)
-        t["blocks"].add(det + und, self.blocks_in)
+        codewords decoded wrong without a flag, whether its CRC failed. The cost follows the
+        events, not the number of batches."""
+        t, of = self.tallies, self.batch_of
+        flagged = of[np.flatnonzero(failed)]
+        bits = of[wrong_payload_bits // self.message_bits] if wrong_payload_bits is not None else None
+        und = of[undetected_blocks] if undetected_blocks is not None else None
+        t["bits"].add_sparse(bits, self.bits_in, *self.bits_sums)
+        t["detected"].add_sparse(flagged, self.blocks_in, *self.block_sums)
+        t["undetected"].add_sparse(und, self.blocks_in, *self.block_sums)
+        both = flagged if und is None or not und.size else np.concatenate([flagged, und])
+        t["blocks"].add_sparse(both, self.blocks_in, *self.block_sums)
         self.frames_open += 1
         self.frame_fails_open += int(frame_failed)
         if self.frames_open == self.frames_per_batch:

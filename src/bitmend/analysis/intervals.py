@@ -86,6 +86,22 @@ class BatchTally:
         self.xm += int(np.dot(x, m))
         self.mm += int(np.dot(m, m))
 
+    def add_sparse(self, event_batches: np.ndarray, trials: np.ndarray, trials_sum: int, trials_squares: int,
+                   batches: int) -> None:
+        """Add a set of batches given as the batch index of each event (repeats allowed) and
+        their trial counts `trials` (indexed by batch), with sum(trials), sum(trials^2) and
+        the number of batches with trials worked out once by the caller: the cost follows the
+        events, not the batches."""
+        if event_batches is not None and len(event_batches):
+            ids, counts = np.unique(np.asarray(event_batches), return_counts=True)
+            counts = counts.astype(np.int64)
+            self.events += int(counts.sum())
+            self.xx += int(np.dot(counts, counts))
+            self.xm += int(np.dot(counts, np.asarray(trials, dtype=np.int64)[ids]))
+        self.trials += int(trials_sum)
+        self.mm += int(trials_squares)
+        self.batches += int(batches)
+
     def merge(self, other: "BatchTally") -> "BatchTally":
         for name in self.__slots__:
             setattr(self, name, getattr(self, name) + getattr(other, name))
