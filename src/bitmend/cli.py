@@ -381,6 +381,12 @@ def encode(
                         pump_encode(inp, enc, None if max_delay == float("inf") else max_delay, tick)
 
 
+def _say_listening(receiver) -> None:
+    """One line once the socket is bound, so a sender (or a test) knows datagrams will land."""
+    idle = f", ending after {receiver.idle:g} s without a datagram" if receiver.idle else ", until SIGINT or SIGTERM"
+    typer.echo(f"bitmend: listening on {receiver.endpoint}{idle}", err=True)
+
+
 def _check_idle(idle: Optional[float]) -> None:
     if idle is not None and not idle > 0:
         raise CliError(f"--idle must be a positive number of seconds, got {idle:g}", EXIT_USAGE)
@@ -429,6 +435,7 @@ def _encode_datagrams(endpoint, output: Optional[str], output_udp, code, depth: 
     from bitmend.datagrams import DatagramReceiver
 
     receiver = DatagramReceiver(endpoint, idle)
+    _say_listening(receiver)
     refused = 0
     with _open_data_output(output, output_udp) as out:
         with Encoder(out, code, depth, frame_bytes) as enc:
@@ -536,6 +543,7 @@ def _decode_records(source: str, source_udp, output: Optional[str], output_udp, 
         from bitmend.datagrams import DatagramReceiver
 
         receiver = DatagramReceiver(source_udp, idle)
+        _say_listening(receiver)
     stopped: DamagedDataError | None = None
     report_file = None
     with (nullcontext(None) if receiver is not None else _open_input(source)) as inp:
