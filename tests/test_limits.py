@@ -241,3 +241,13 @@ def test_plot_limit_curves_lie_below_the_codes_own_block_error_and_mark_capacity
     assert curves["normal"][4] == pytest.approx(limits.normal_approximation_block_error(31, 16, xs[4]))
     assert limits.capacity(curves["capacity_p"][0]) == pytest.approx(16 / 31, abs=1e-9)
     assert limit_curves(code, ("burst:enter=1e-3,leave=0.1,bad=0.5",), "bad", xs) is None  # BSC only
+
+
+def test_the_normal_approximation_is_flagged_where_the_code_itself_beats_it():
+    # at n = 7 the approximation says no (7, 4) code reaches hamming-7-4's own block error at
+    # its own p; the code is a witness that this is wrong, and the report must say so
+    own = theory.bsc_block_error(7, 1, 1e-2)
+    gap = limits.distance_to_limit(7, 4, 1e-2, own)
+    assert gap.rate_normal < gap.rate and gap.normal_within_bounds is False
+    long = limits.distance_to_limit(2000, 860, 0.11, 1e-3)  # the paper's regime (a code RCU says exists): it agrees
+    assert long.normal_within_bounds is True

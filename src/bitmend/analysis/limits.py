@@ -279,17 +279,20 @@ class DistanceToLimit:
 
     @property
     def normal_within_bounds(self) -> bool | None:
-        """Whether the normal approximation agrees with the exact bounds (rate within half a
-        bit per block of them, p not beyond the converse nor below the RCU); None without
-        the bounds. Outside, the approximation is outside its regime (short block, tiny or
-        huge block error) and the bounds are the guide."""
+        """Whether the normal approximation agrees with what is known for sure (rate within
+        two bits per block of the exact bounds, p not beyond the converse nor below the
+        RCU); the code itself is a witness too: a code of its length reaches its block error
+        at its rate and p, so the best one does no worse. None without the bounds. Outside,
+        the approximation is outside its regime (short block, tiny or huge block error) and
+        the bounds are the guide."""
         if not self.exact:
             return None
-        slack = 0.5 / self.n
-        rate_ok = self.rate_achievable - slack <= self.rate_normal <= self.rate_converse + slack
+        slack = 2.0 / self.n  # the approximation drops an O(1) term: a couple of bits per block
+        floor = max(self.rate_achievable, self.rate)
+        rate_ok = floor - slack <= self.rate_normal <= self.rate_converse + slack
+        p_floor = max(self.p_achievable or 0.0, self.p)
         p_ok = self.p_normal is not None and self.p_converse is not None and \
-            self.p_normal <= self.p_converse * 1.01 and \
-            (self.p_achievable is None or self.p_normal >= self.p_achievable / 1.01)
+            p_floor / 1.01 <= self.p_normal <= self.p_converse * 1.01
         return rate_ok and p_ok
 
     def to_dict(self) -> dict:
