@@ -289,8 +289,8 @@ def _render_limit(profile: CodeProfile) -> list[str]:
                     "- (random coding reaches eps at no p for this size)"))
     lines.append(line)
     if g.normal_within_bounds is False:
-        lines.append("  the normal approximation disagrees with the exact bounds here (short block, or a block "
-                     "error far in the tail: outside its regime): trust the bounds")
+        lines.append("  the normal approximation disagrees here with the exact bounds or with this code itself "
+                     "(short block, or a block error far in a tail: outside its regime): trust the bounds")
     if g.exact and abs(g.rate_gap_most) < 1e-9:
         lines.append("  this code meets the converse with equality: no code of its length and size has a lower "
                      "block error (a perfect code)")
