@@ -49,6 +49,7 @@ The code does no I/O and knows nothing of frames or containers.
 from __future__ import annotations
 
 import sys
+from types import ModuleType
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from functools import lru_cache
@@ -57,7 +58,7 @@ from typing import Union
 import numpy as np
 
 from bitmend.kernels import erasure_small
-from bitmend.kernels.erasure_small import coefficient_masks, gf_inverse, gf_matmul, inv_table
+from bitmend.kernels.erasure_small import coefficient_masks, gf_inverse, gf_matmul, inv_table, mul_table
 from bitmend.kernels.loader import SMALL_WORK_BITS, compiled_loaded
 
 MAX_SYMBOLS = 255  # K + R at most: symbol indices and the header's counts fit one byte
@@ -108,18 +109,14 @@ class RecoveryPlan:
     copies: np.ndarray  # (1, k) int64: stack position of each known source, -1 if lost
 
 
-def _combine(inputs: np.ndarray, masks: np.ndarray, targets: np.ndarray, copies: np.ndarray,
-             out: np.ndarray) -> None:
-    """kernels.erasure.combine_rows once compiled kernels are loaded or the work is large
-    (>= 2^16 input bits), else its numpy twin; both give the same bytes."""
-    work_bits = 8 * inputs.size
-    if ("bitmend.kernels.erasure" in sys.modules or compiled_loaded()
-            or work_bits >= SMALL_WORK_BITS):
+def _compiled(work_bits: int) -> ModuleType | None:
+    """kernels.erasure once compiled kernels are loaded or the work is large (>= 2^16
+    input bits), else None: use the numpy twin (kernels.erasure_small). Same bytes."""
+    if "bitmend.kernels.erasure" in sys.modules or compiled_loaded() or work_bits >= SMALL_WORK_BITS:
         from bitmend.kernels import erasure as compiled
 
-        compiled.combine_rows(inputs, masks, targets, copies, out)
-    else:
-        erasure_small.combine_rows(inputs, masks, targets, copies, out)
+        return compiled
+    return None
 
 
 def _symbol_array(symbols: object, count: int, size: int | None, what: str) -> np.ndarray:
@@ -209,7 +206,9 @@ class FrameErasureCode:
         """(G, k, S) uint8 sources of G groups -> (G, r, S) repair symbols, in one call."""
         src = self._groups(sources, "sources")
         out = np.empty((src.shape[0], self.r, src.shape[2]), dtype=np.uint8)
-        _combine(src, self._masks, self._targets, self._no_copies, out)
+        compiled = _compiled(8 * src.size)
+        combine = compiled.combine_rows if compiled else erasure_small.combine_rows
+        combine(src, self._masks, self._targets, self._no_copies, out)
         return out
 
     # ---- rebuilding --------------------------------------------------------------------------
@@ -224,27 +223,56 @@ class FrameErasureCode:
         then the repair symbols in index order; a repeated index counts once (its first
         symbol is used). Fewer than k distinct symbols raise NotEnoughSymbolsError."""
         indices, symbols = self._received(received)
-        plan = self._plan(indices)
+        used = self._select(indices)
         position: dict[int, int] = {}
         for p, idx in enumerate(indices):
             position.setdefault(idx, p)  # a repeated index: its first symbol counts
-        stack = _symbol_array([symbols[position[idx]] for idx in plan.used], self.k, size, "received symbols")
-        out = np.empty((1, self.k, stack.shape[1]), dtype=np.uint8)
-        _combine(stack[None], plan.masks, plan.targets, plan.copies, out)
-        return out[0]
+        stack = _symbol_array([symbols[position[idx]] for idx in used], self.k, size, "received symbols")
+        return self._rebuild(stack[None], np.array([used], dtype=np.int64))[0]
 
     def recover_groups(self, symbols: np.ndarray, indices: np.ndarray) -> np.ndarray:
         """(G, k, S) symbols with their (G, k) indices -> (G, k, S) sources, in one call.
 
         Row p of group g is symbol indices[g, p]; each group needs k distinct indices."""
         stack = self._groups(symbols, "symbols")
-        groups, _, size = stack.shape
         idx = np.asarray(indices)
-        if idx.shape != (groups, self.k):
-            raise ErasureCodeError(f"indices must have shape ({groups}, {self.k}), got {idx.shape}")
-        worst = max(1, self.r)
-        masks = np.zeros((groups, worst, self.k, 8), dtype=np.uint64)
-        targets = np.full((groups, worst), -1, dtype=np.int64)
+        if idx.shape != stack.shape[:2] or idx.dtype.kind not in "iu":
+            raise ErasureCodeError(f"indices must be integers of shape {stack.shape[:2]}, "
+                                   f"got {idx.dtype} of shape {idx.shape}")
+        if idx.size and (idx.min() < 0 or idx.max() >= self.n):
+            bad = idx[(idx < 0) | (idx >= self.n)]
+            raise ErasureCodeError(f"symbol indices of a ({self.k}, {self.r}) group are 0..{self.n - 1}, "
+                                   f"got {bad[:8].tolist()}")
+        return self._rebuild(stack, np.ascontiguousarray(idx, dtype=np.int64))
+
+    def recovery_plan(self, indices: Sequence[int]) -> RecoveryPlan:
+        """The plan (symbols used, sources lost, e x k recovery matrix) for the arrived
+        symbol indices; cached per pattern (the numpy path's plans)."""
+        used = self._select(list(indices))
+        k_known = sum(1 for i in used if i < self.k)
+        return self._plan_for(used[:k_known], used[k_known:])
+
+    # ---- internals ---------------------------------------------------------------------------
+
+    def _rebuild(self, stack: np.ndarray, idx: np.ndarray) -> np.ndarray:
+        """Sources of each group from k stacked symbols with in-range indices idx (G, k)."""
+        groups, _, size = stack.shape
+        out = np.empty((groups, self.k, size), dtype=np.uint8)
+        compiled = _compiled(8 * stack.size)
+        if compiled is not None:  # plans computed in the kernel, no Python per group
+            masks = np.empty((groups, self.r, self.k, 8), dtype=np.uint64)
+            targets = np.empty((groups, self.r), dtype=np.int64)
+            copies = np.empty((groups, self.k), dtype=np.int64)
+            status = compiled.recovery_masks(self.matrix, idx, mul_table(), inv_table(), masks, targets, copies)
+            failed = np.flatnonzero(status)
+            if failed.size:
+                g = int(failed[0])
+                raise NotEnoughSymbolsError(f"group {g}: indices repeat ({idx[g].tolist()}); "
+                                            f"{self.k} distinct symbols are needed")
+            compiled.combine_rows(stack, masks, targets, copies, out)
+            return out
+        masks = np.zeros((groups, self.r, self.k, 8), dtype=np.uint64)
+        targets = np.full((groups, self.r), -1, dtype=np.int64)
         copies = np.empty((groups, self.k), dtype=np.int64)
         for g, row in enumerate(idx.tolist()):
             try:
@@ -255,16 +283,8 @@ class FrameErasureCode:
             masks[g, :e] = g_masks
             targets[g, :e] = g_targets
             copies[g] = g_copies
-        out = np.empty((groups, self.k, size), dtype=np.uint8)
-        _combine(stack, masks, targets, copies, out)
+        erasure_small.combine_rows(stack, masks, targets, copies, out)
         return out
-
-    def recovery_plan(self, indices: Sequence[int]) -> RecoveryPlan:
-        """The plan (symbols used, sources lost, e x k recovery matrix) for the arrived
-        symbol indices; cached per pattern."""
-        return self._plan(list(indices))
-
-    # ---- internals ---------------------------------------------------------------------------
 
     def _groups(self, arr: np.ndarray, what: str) -> np.ndarray:
         a = np.asarray(arr)
@@ -286,20 +306,22 @@ class FrameErasureCode:
             raise ErasureCodeError("received must be {index: symbol} or (indices, symbols)")
         return indices, symbols
 
-    def _plan(self, indices: Sequence[int]) -> RecoveryPlan:
+    def _select(self, indices: Sequence[int]) -> tuple[int, ...]:
+        """The k symbols to use: the sources that arrived, ascending, then the first
+        repair symbols by index; NotEnoughSymbolsError if fewer than k are distinct."""
         bad = [i for i in indices if not 0 <= i < self.n]
         if bad:
             raise ErasureCodeError(f"symbol indices of a ({self.k}, {self.r}) group are 0..{self.n - 1}, "
                                    f"got {bad[:8]}")
         distinct = set(indices)
-        known = tuple(sorted(i for i in distinct if i < self.k))
+        known = sorted(i for i in distinct if i < self.k)
         repairs = sorted(i for i in distinct if i >= self.k)
         lost = self.k - len(known)
         if len(repairs) < lost:
             raise NotEnoughSymbolsError(
                 f"rebuilding the {self.k} sources of a group needs {self.k} distinct symbols of "
                 f"{self.n}; got {len(distinct)} ({len(known)} sources, {len(repairs)} repair)")
-        return self._plan_for(known, tuple(repairs[:lost]))
+        return tuple(known + repairs[:lost])
 
     def _make_plan(self, known: tuple[int, ...], repairs: tuple[int, ...]) -> RecoveryPlan:
         lost = tuple(sorted(set(range(self.k)) - set(known)))
@@ -315,13 +337,12 @@ class FrameErasureCode:
         return RecoveryPlan(used=used, lost=lost, matrix=matrix, masks=coefficient_masks(matrix)[None],
                             targets=np.array(lost, dtype=np.int64)[None], copies=copies)
 
-
     def _make_row_plan(self, row: tuple[int, ...]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """A plan laid out for symbols stacked in the order of `row` (k indices, as
-        recover_groups receives them): masks (e, k, 8) by row, targets (e,), copies (k,)."""
+        """A plan laid out for symbols stacked in the order of `row` (k indices):
+        masks (e, k, 8) by row, targets (e,), copies (k,)."""
         if len(set(row)) != len(row):
             raise NotEnoughSymbolsError(f"indices repeat ({list(row)}); {self.k} distinct symbols are needed")
-        plan = self._plan(row)
+        plan = self.recovery_plan(row)
         where = np.array([row.index(u) for u in plan.used], dtype=np.int64)  # stack -> row
         masks = np.zeros((len(plan.lost), self.k, 8), dtype=np.uint64)
         masks[:, where] = plan.masks[0]

@@ -125,3 +125,102 @@ def combine_rows(inputs, masks, targets, copies, out):
             p = copies[gc, t]
             if p >= 0:
                 out[g, t, :] = inputs[g, p, :]
+
+
+@njit(cache=True)
+def recovery_masks(matrix, indices, mul, inv, masks, targets, copies):
+    """The recovery plan of each group, for symbols stacked in the order they arrived.
+
+    matrix  (r, k) uint8: the code's C
+    indices (G, k) int64: the symbol index of each stacked row (0..k-1 source, k.. repair)
+    mul, inv: GF(2^8) product and inverse tables (kernels.gf2m.field(8))
+    masks   (G, r, k, 8) uint64, targets (G, r) int64, copies (G, k) int64: written here,
+            the arguments of combine_rows that rebuild the k sources of each group
+    returns (G,) int64: 0 planned; 1 an index out of range or repeated (the group is left
+            unplanned; the caller raises).
+
+    With e sources lost, the stacked repair symbols a = 0..e-1 (rows p_a, repair rows
+    i_a) and the e x e matrix D[a, b] = C[i_a, lost_b], lost source lost_t =
+    sum_a Dinv[t, a] * (repair a + sum_{known j} C[i_a, j] * source j): the coefficient of
+    a repair row is Dinv[t, a], that of a known source j is sum_a Dinv[t, a] C[i_a, j]."""
+    groups, k = indices.shape
+    r = matrix.shape[0]
+    n = k + r
+    status = np.zeros(groups, dtype=np.int64)
+    seen = np.zeros(n, dtype=np.int64)
+    row_of = np.zeros(n, dtype=np.int64)
+    lost = np.zeros(k, dtype=np.int64)
+    rep_rows = np.zeros(k, dtype=np.int64)
+    work = np.zeros((r, 2 * r), dtype=np.int64)
+    coef = np.zeros((r, k), dtype=np.int64)
+    for g in range(groups):
+        seen[:] = 0
+        bad = False
+        for p in range(k):
+            t = indices[g, p]
+            if t < 0 or t >= n or seen[t] != 0:
+                bad = True
+                break
+            seen[t] = 1
+            row_of[t] = p
+        masks[g] = 0
+        targets[g] = -1
+        if bad:
+            copies[g] = -1
+            status[g] = 1
+            continue
+        e = 0
+        for j in range(k):
+            if seen[j] != 0:
+                copies[g, j] = row_of[j]
+            else:
+                copies[g, j] = -1
+                lost[e] = j
+                e += 1
+        if e == 0:
+            continue
+        a = 0
+        for t in range(k, n):  # exactly e repair symbols arrived (k distinct symbols)
+            if seen[t] != 0:
+                rep_rows[a] = t
+                a += 1
+        # [D | I] -> [I | Dinv] by Gauss-Jordan; D is a Cauchy matrix, so always invertible
+        for x in range(e):
+            for y in range(e):
+                work[x, y] = matrix[rep_rows[x] - k, lost[y]]
+                work[x, e + y] = 1 if x == y else 0
+        for col in range(e):
+            pivot = col
+            while work[pivot, col] == 0:
+                pivot += 1
+            if pivot != col:
+                for y in range(2 * e):
+                    tmp = work[col, y]
+                    work[col, y] = work[pivot, y]
+                    work[pivot, y] = tmp
+            scale = inv[work[col, col]]
+            for y in range(2 * e):
+                work[col, y] = mul[scale, work[col, y]]
+            for x in range(e):
+                f = work[x, col]
+                if x != col and f != 0:
+                    for y in range(2 * e):
+                        work[x, y] ^= mul[f, work[col, y]]
+        # coefficients by stacked row
+        for t in range(e):
+            for p in range(k):
+                coef[t, p] = 0
+            for x in range(e):
+                coef[t, row_of[rep_rows[x]]] = work[t, e + x]
+            for j in range(k):
+                if seen[j] != 0:
+                    acc = 0
+                    for x in range(e):
+                        acc ^= mul[work[t, e + x], matrix[rep_rows[x] - k, j]]
+                    coef[t, row_of[j]] = acc
+            targets[g, t] = lost[t]
+            for p in range(k):
+                c = coef[t, p]
+                for b in range(8):
+                    masks[g, t, p, b] = np.uint64(mul[c, 1 << b]) * _LOW
+    return status
