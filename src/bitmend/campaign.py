@@ -351,10 +351,32 @@ def open_runner(workers: int = 1, scheduler: str | None = None,
     from distributed import Client, LocalCluster
 
     # processes, one thread each: the trial loop holds the GIL for much of its time
-    with LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, host="127.0.0.1",
-                      dashboard_address=None, silence_logs=logging.ERROR) as cluster, \
-            Client(cluster, timeout=connect_timeout, set_as_default=False) as client:
+    with _workers_ignore_sigint():
+        cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, host="127.0.0.1",
+                               dashboard_address=None, silence_logs=logging.ERROR)
+    with cluster, Client(cluster, timeout=connect_timeout, set_as_default=False) as client:
         yield OnDask(client)
+
+
+@contextmanager
+def _workers_ignore_sigint() -> Iterator[None]:
+    """SIGINT ignored while the local workers are spawned, so that they inherit it ignored.
+
+    Ctrl-C on a terminal signals the whole process group: the workers would die printing
+    their own tracebacks while this process still needs them to cancel cleanly. This
+    process handles the interruption and closes the cluster; its own handler is back as
+    soon as the workers have started."""
+    import signal
+
+    try:
+        previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    except ValueError:  # not the main thread: signals are not ours to arrange
+        yield
+        return
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, previous)
 
 
 # ---- campaigns ----------------------------------------------------------------------------------------
@@ -445,22 +467,23 @@ def campaign_sweep(code: str | BinaryLinearCode, depth: int,
 @contextmanager
 def terminal_progress(label: str, enabled: bool = True) -> Iterator[Callable[[CampaignProgress], None]]:
     """A rich progress line on stderr (only when it is a terminal): payload bits done of all,
-    units, and the running block error with its interval. A no-op callback otherwise."""
+    the running block error with its interval, the time left. A no-op callback otherwise."""
     if not enabled or not sys.stderr.isatty():
         yield lambda snapshot: None
         return
     from rich.console import Console
-    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
+    from rich.progress import Progress, TextColumn, TimeRemainingColumn
 
-    with Progress(TextColumn("[progress.description]{task.description}"), BarColumn(),
-                  TextColumn("{task.fields[bits]}"), TextColumn("{task.fields[interval]}"), TimeElapsedColumn(),
-                  TimeRemainingColumn(), console=Console(stderr=True), transient=True) as bar:
-        task = bar.add_task(label, total=None, bits="", interval="")
+    # stdout and stderr are left alone (no redirection): local workers are spawned inside
+    with Progress(TextColumn(label), TextColumn("{task.fields[bits]}"), TextColumn("{task.fields[interval]}"),
+                  TimeRemainingColumn(), console=Console(stderr=True), transient=True,
+                  redirect_stdout=False, redirect_stderr=False) as bar:
+        task = bar.add_task(label, total=None, bits="starting", interval="")
 
         def show(s: CampaignProgress) -> None:
             m = s.block_error
-            interval = "" if m is None else f"block error {m.rate:.2e} [{m.low:.2e}, {m.high:.2e}]"
+            interval = "" if m is None else f"block error {m.rate:.2g} [{m.low:.2g}, {m.high:.2g}]"
             bar.update(task, total=s.payload_bits, completed=s.payload_bits_done, interval=interval,
-                       bits=f"{s.payload_bits_done:.3g} of {s.payload_bits:.3g} bits, unit {s.units_done:,}/{s.units:,}")
+                       bits=f"{s.payload_bits_done:.2g}/{s.payload_bits:.2g} bits")
 
         yield show
