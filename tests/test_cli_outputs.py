@@ -18,6 +18,7 @@ from pathlib import Path
 
 import pytest
 
+from bitmend import outputs
 from bitmend.api import encode_bytes
 
 from conftest import bitmend_command, random_bytes, run_cli
@@ -338,6 +339,50 @@ def test_sigterm_while_injecting_keeps_a_ledger_that_says_it_was_stopped(tmp_pat
     assert part_files(tmp_path) == [] and not target.exists()
     record = json.loads(ledger.read_text())
     assert record["type"] == "ledger" and record["stopped"] == "SIGTERM" and record["seed"] == 4
+
+
+def wchan(pid: int) -> str:
+    """The kernel function a process sleeps in (Linux /proc: 'anon_pipe_write' or 'pipe_write'
+    for a write to a full pipe, by kernel version), '' where it cannot be read."""
+    try:
+        return Path(f"/proc/{pid}/wchan").read_text()
+    except OSError:
+        return ""
+
+
+def test_sigterm_while_the_reader_of_stdout_has_stalled_still_stops_at_once(tmp_path, big_container_file):
+    report = tmp_path / "report.jsonl"
+    proc = subprocess.Popen([*bitmend_command(), "decode", str(big_container_file), "--report", str(report)],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, preexec_fn=restore_default_signals)
+    try:  # nobody reads stdout: the decoder fills the pipe and waits in write()
+        wait_for(lambda: part_files(tmp_path) and ("pipe_write" in wchan(proc.pid) or wchan(proc.pid) in ("", "0")),
+                 "a write blocked on the full pipe")
+        proc.send_signal(signal.SIGTERM)
+        code = proc.wait(TIMEOUT)
+        err = proc.stderr.read().decode()
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+            proc.wait(TIMEOUT)
+        proc.stdout.close()
+        proc.stderr.close()
+    assert code == 143 and err.strip() == "bitmend: stopped by SIGTERM", err
+    summary = last_object(report)
+    # bytes_written counts the writes that returned: a write cut by the signal is not in it
+    assert summary["stopped"] == "SIGTERM" and summary["complete"] is False
+    assert 0 <= summary["bytes_written"] < 300_000
+    assert part_files(tmp_path) == []
+
+
+def test_a_signal_inside_a_deferred_block_is_raised_when_the_block_ends(monkeypatch):
+    monkeypatch.setattr(outputs, "_state", outputs._SignalState())
+    steps = []
+    with pytest.raises(outputs.Stopped) as caught:
+        with outputs.deferred_signals():
+            outputs._on_signal(signal.SIGTERM, None)  # what the handler does when SIGTERM comes
+            steps.append("the block ran to its end")
+    assert steps == ["the block ran to its end"]
+    assert caught.value.exit_code == 143 and caught.value.name == "SIGTERM"
 
 
 def test_a_hangup_ignored_at_start_stays_ignored_as_under_nohup(tmp_path, container, data):
