@@ -262,8 +262,7 @@ def _encode_fused(code: BinaryLinearCode, lay: SegmentLayout, message: bytes) ->
     else:
         src = fused.native_words(message, lay.blocks * k)
         out = _native(lay.coded_bits)
-        fused.encode_octets(src, lay.blocks // 8, lay.depth // 8, k, code.r, plan.encode_table, plan.chunk_bits,
-                            out.view(np.uint8))
+        fused.encode_octets(src, lay.groups, lay.depth // 8, k, code.r, plan.encode_table, plan.chunk_bits, out)
     return memoryview(out).cast("B")[: lay.coded_bytes].tobytes()
 
 
@@ -287,7 +286,7 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
             fused.decode_depth1(src, lay.blocks, k, code.r, plan.encode_table, plan.chunk_bits,
                                 plan.leader_message, plan.leader_weight, status, out)
         else:
-            fused.decode_octets(src, src.view(np.uint8), lay.blocks // 8, lay.depth // 8, k, code.r,
+            fused.decode_octets(src, lay.groups, lay.depth // 8, k, code.r,
                                 plan.encode_table, plan.chunk_bits, plan.leader_message, plan.leader_weight,
                                 status, out)
     return memoryview(out).cast("B")[:message_bytes].tobytes(), status

@@ -175,91 +175,184 @@ def decode_depth1(coded, blocks, k, r, ptab, chunk_bits, leader_message, leader_
 
 # ---- depth a multiple of 8 -------------------------------------------------------------------
 
-@njit(cache=True)
-def encode_octets(src, octets, lanes, k, r, ptab, chunk_bits, out8):
-    """Encode 8 * octets messages at depth 8 * lanes into the zeroed byte view out8."""
-    n = k + r
-    slices = (n + 7) // 8
-    w0 = np.empty(8, dtype=np.uint64)
-    w1 = np.empty(8, dtype=np.uint64)
-    group_bytes = lanes * n
-    for t in range(octets):
-        bit = t * 8 * k
-        for q in range(8):
-            m = field(src, bit + q * k, k)
-            a, b = left_codeword(m, parity(m, ptab, chunk_bits), k, r)
-            w0[q] = a
-            w1[q] = b
-        g = t // lanes
-        base = g * group_bytes + (t - g * lanes)
-        for c in range(slices):
-            shift = U64(56 - 8 * (c & 7))
-            x = U64(0)
-            if c < 8:
-                for q in range(8):
-                    x = (x << U64(8)) | ((w0[q] >> shift) & U64(0xFF))
-            else:
-                for q in range(8):
-                    x = (x << U64(8)) | ((w1[q] >> shift) & U64(0xFF))
-            x = transpose8(x)
-            for i in range(min(8, n - 8 * c)):
-                out8[base + (8 * c + i) * lanes] = np.uint8((x >> U64(56 - 8 * i)) & U64(0xFF))
+@njit(cache=True, inline="always")
+def _swap_blocks(a, b, mask, shift):
+    """One stage of the 8x8 byte-matrix transpose between rows a and b."""
+    s = U64(shift)
+    return (a & mask) | ((b >> s) & ~mask), ((a << s) & mask) | (b & ~mask)
+
+
+@njit(cache=True, inline="always")
+def byte_transpose(a0, a1, a2, a3, a4, a5, a6, a7):
+    """Transpose the 8x8 byte matrix whose row i is the word ai (byte 0 most significant):
+    row j of the result holds byte j of a0 .. a7. Three stages of block swaps (32-, 16-
+    and 8-bit blocks), each a masked shift between a pair of rows."""
+    high32 = U64(0xFFFFFFFF00000000)
+    high16 = U64(0xFFFF0000FFFF0000)
+    high8 = U64(0xFF00FF00FF00FF00)
+    a0, a4 = _swap_blocks(a0, a4, high32, 32)
+    a1, a5 = _swap_blocks(a1, a5, high32, 32)
+    a2, a6 = _swap_blocks(a2, a6, high32, 32)
+    a3, a7 = _swap_blocks(a3, a7, high32, 32)
+    a0, a2 = _swap_blocks(a0, a2, high16, 16)
+    a1, a3 = _swap_blocks(a1, a3, high16, 16)
+    a4, a6 = _swap_blocks(a4, a6, high16, 16)
+    a5, a7 = _swap_blocks(a5, a7, high16, 16)
+    a0, a1 = _swap_blocks(a0, a1, high8, 8)
+    a2, a3 = _swap_blocks(a2, a3, high8, 8)
+    a4, a5 = _swap_blocks(a4, a5, high8, 8)
+    a6, a7 = _swap_blocks(a6, a7, high8, 8)
+    return a0, a1, a2, a3, a4, a5, a6, a7
+
+
+@njit(cache=True, inline="always")
+def _codeword(src, bit, k, r, ptab, chunk_bits):
+    m = field(src, bit, k)
+    return left_codeword(m, parity(m, ptab, chunk_bits), k, r)
+
+
+@njit(cache=True, inline="always")
+def _emit_slice(out, out8, index, acc, held, x, c, n, lanes, base):
+    """Octet bytes 8c .. 8c+7 (x, first byte most significant) to the stream: in order
+    when the octet's bytes are consecutive (lanes == 1), else each to its group byte."""
+    count = min(8, n - 8 * c)
+    if lanes == 1:
+        return put(out, index, acc, held, x >> U64(64 - 8 * count), 8 * count)
+    for i in range(count):
+        out8[base + (8 * c + i) * lanes] = np.uint8((x >> U64(56 - 8 * i)) & U64(0xFF))
+    return index, acc, held
 
 
 @njit(cache=True)
-def decode_octets(coded, coded8, octets, lanes, k, r, ptab, chunk_bits, leader_message, leader_weight,
-                  status, out):
-    """De-interleave 8 * octets codewords at depth 8 * lanes, correct them and write the
-    messages to the native word buffer out. status must be zeroed."""
+def encode_octets(src, groups, lanes, k, r, ptab, chunk_bits, out):
+    """Encode groups * 8 * lanes messages at depth 8 * lanes into the native word buffer
+    out. Per octet: the 8 codewords left-aligned in words (and a second word each when
+    n > 64), an 8x8 byte transpose, then one 8x8 bit transpose per byte slice."""
     n = k + r
     slices = (n + 7) // 8
-    w0 = np.empty(8, dtype=np.uint64)
-    w1 = np.empty(8, dtype=np.uint64)
-    group_bytes = lanes * n
+    out8 = out.view(np.uint8)
     index, acc, held = 0, U64(0), 0
-    parity_mask = (U64(1) << U64(r)) - U64(1)
-    for t in range(octets):
-        g = t // lanes
-        base = g * group_bytes + (t - g * lanes)
-        for q in range(8):
-            w0[q] = U64(0)
-            w1[q] = U64(0)
-        for c in range(slices):
-            if lanes == 1:
-                x = field(coded, 8 * (base + 8 * c), 64)
-            else:
-                x = U64(0)
-                for i in range(8):
-                    j = 8 * c + i
-                    byte = U64(coded8[base + j * lanes]) if j < n else U64(0)
-                    x = (x << U64(8)) | byte
-            if 8 * c + 8 > n:
-                x &= ~((U64(1) << U64(64 - 8 * (n - 8 * c))) - U64(1))  # bytes past the group
-            x = transpose8(x)
-            shift = U64(56 - 8 * (c & 7))
-            if c < 8:
-                for q in range(8):
-                    w0[q] |= ((x >> U64(56 - 8 * q)) & U64(0xFF)) << shift
-            else:
-                for q in range(8):
-                    w1[q] |= ((x >> U64(56 - 8 * q)) & U64(0xFF)) << shift
-        for q in range(8):
-            if n <= 64:
-                bits = w0[q] >> U64(64 - n)
-                m = bits >> U64(r)
-                p = bits & parity_mask
-            else:
-                room = 64 - k
-                m = w0[q] >> U64(room) if room > 0 else w0[q]
-                spill = r - room
-                high = (w0[q] & ((U64(1) << U64(room)) - U64(1))) if room > 0 else U64(0)
-                p = (high << U64(spill)) | (w1[q] >> U64(64 - spill))
-            s = p ^ parity(m, ptab, chunk_bits)
-            if s != U64(0):
-                w = leader_weight[s]
-                if w != FAILED:
-                    m ^= leader_message[s]
-                status[8 * t + q] = w
+    for g in range(groups):
+        for lane in range(lanes):
+            bit = (g * lanes + lane) * 8 * k
+            c0, d0 = _codeword(src, bit, k, r, ptab, chunk_bits)
+            c1, d1 = _codeword(src, bit + k, k, r, ptab, chunk_bits)
+            c2, d2 = _codeword(src, bit + 2 * k, k, r, ptab, chunk_bits)
+            c3, d3 = _codeword(src, bit + 3 * k, k, r, ptab, chunk_bits)
+            c4, d4 = _codeword(src, bit + 4 * k, k, r, ptab, chunk_bits)
+            c5, d5 = _codeword(src, bit + 5 * k, k, r, ptab, chunk_bits)
+            c6, d6 = _codeword(src, bit + 6 * k, k, r, ptab, chunk_bits)
+            c7, d7 = _codeword(src, bit + 7 * k, k, r, ptab, chunk_bits)
+            b0, b1, b2, b3, b4, b5, b6, b7 = byte_transpose(c0, c1, c2, c3, c4, c5, c6, c7)
+            base = g * lanes * n + lane
+            index, acc, held = _emit_slice(out, out8, index, acc, held, transpose8(b0), 0, n, lanes, base)
+            if slices > 1:
+                index, acc, held = _emit_slice(out, out8, index, acc, held, transpose8(b1), 1, n, lanes, base)
+            if slices > 2:
+                index, acc, held = _emit_slice(out, out8, index, acc, held, transpose8(b2), 2, n, lanes, base)
+            if slices > 3:
+                index, acc, held = _emit_slice(out, out8, index, acc, held, transpose8(b3), 3, n, lanes, base)
+            if slices > 4:
+                index, acc, held = _emit_slice(out, out8, index, acc, held, transpose8(b4), 4, n, lanes, base)
+            if slices > 5:
+                index, acc, held = _emit_slice(out, out8, index, acc, held, transpose8(b5), 5, n, lanes, base)
+            if slices > 6:
+                index, acc, held = _emit_slice(out, out8, index, acc, held, transpose8(b6), 6, n, lanes, base)
+            if slices > 7:
+                index, acc, held = _emit_slice(out, out8, index, acc, held, transpose8(b7), 7, n, lanes, base)
+            if slices > 8:
+                e0, e1, e2, e3, e4, e5, e6, e7 = byte_transpose(d0, d1, d2, d3, d4, d5, d6, d7)
+                index, acc, held = _emit_slice(out, out8, index, acc, held, transpose8(e0), 8, n, lanes, base)
+                if slices > 9:
+                    index, acc, held = _emit_slice(out, out8, index, acc, held, transpose8(e1), 9, n, lanes, base)
+                if slices > 10:
+                    index, acc, held = _emit_slice(out, out8, index, acc, held, transpose8(e2), 10, n, lanes, base)
+    if lanes == 1:
+        finish(out, index, acc, held)
+
+
+@njit(cache=True, inline="always")
+def _load_slice(coded, coded8, c, n, lanes, base):
+    """Octet bytes 8c .. 8c+7 as one word (bytes past the octet's n read as zero)."""
+    count = min(8, n - 8 * c)
+    if count <= 0:
+        return U64(0)
+    if lanes == 1:
+        x = field(coded, 8 * (base + 8 * c), 64)
+    else:
+        x = U64(0)
+        for i in range(8):
+            x = (x << U64(8)) | (U64(coded8[base + (8 * c + i) * lanes]) if i < count else U64(0))
+    if count < 8:
+        x &= ~((U64(1) << U64(64 - 8 * count)) - U64(1))
+    return transpose8(x)
+
+
+@njit(cache=True, inline="always")
+def _correct(w0, w1, k, r, ptab, chunk_bits, leader_message, leader_weight, status, block):
+    """Split a left-aligned received codeword, correct its message by the syndrome."""
+    n = k + r
+    if n <= 64:
+        bits = w0 >> U64(64 - n)
+        m = bits >> U64(r)
+        p = bits & ((U64(1) << U64(r)) - U64(1))
+    else:
+        room = 64 - k
+        m = w0 >> U64(room) if room > 0 else w0
+        spill = r - room
+        high = (w0 & ((U64(1) << U64(room)) - U64(1))) if room > 0 else U64(0)
+        p = (high << U64(spill)) | (w1 >> U64(64 - spill))
+    s = p ^ parity(m, ptab, chunk_bits)
+    if s != U64(0):
+        w = leader_weight[s]
+        if w != FAILED:
+            m ^= leader_message[s]
+        status[block] = w
+    return m
+
+
+@njit(cache=True)
+def decode_octets(coded, groups, lanes, k, r, ptab, chunk_bits, leader_message, leader_weight, status, out):
+    """De-interleave groups * 8 * lanes codewords at depth 8 * lanes, correct them and write
+    the messages to the native word buffer out (the reverse of encode_octets). status
+    must be zeroed."""
+    n = k + r
+    coded8 = coded.view(np.uint8)
+    index, acc, held = 0, U64(0), 0
+    for g in range(groups):
+        for lane in range(lanes):
+            base = g * lanes * n + lane
+            b0 = _load_slice(coded, coded8, 0, n, lanes, base)
+            b1 = _load_slice(coded, coded8, 1, n, lanes, base)
+            b2 = _load_slice(coded, coded8, 2, n, lanes, base)
+            b3 = _load_slice(coded, coded8, 3, n, lanes, base)
+            b4 = _load_slice(coded, coded8, 4, n, lanes, base)
+            b5 = _load_slice(coded, coded8, 5, n, lanes, base)
+            b6 = _load_slice(coded, coded8, 6, n, lanes, base)
+            b7 = _load_slice(coded, coded8, 7, n, lanes, base)
+            c0, c1, c2, c3, c4, c5, c6, c7 = byte_transpose(b0, b1, b2, b3, b4, b5, b6, b7)
+            d0 = d1 = d2 = d3 = d4 = d5 = d6 = d7 = U64(0)
+            if n > 64:
+                e0 = _load_slice(coded, coded8, 8, n, lanes, base)
+                e1 = _load_slice(coded, coded8, 9, n, lanes, base)
+                e2 = _load_slice(coded, coded8, 10, n, lanes, base)
+                d0, d1, d2, d3, d4, d5, d6, d7 = byte_transpose(e0, e1, e2, U64(0), U64(0), U64(0), U64(0), U64(0))
+            block = (g * lanes + lane) * 8
+            m = _correct(c0, d0, k, r, ptab, chunk_bits, leader_message, leader_weight, status, block)
+            index, acc, held = put(out, index, acc, held, m, k)
+            m = _correct(c1, d1, k, r, ptab, chunk_bits, leader_message, leader_weight, status, block + 1)
+            index, acc, held = put(out, index, acc, held, m, k)
+            m = _correct(c2, d2, k, r, ptab, chunk_bits, leader_message, leader_weight, status, block + 2)
+            index, acc, held = put(out, index, acc, held, m, k)
+            m = _correct(c3, d3, k, r, ptab, chunk_bits, leader_message, leader_weight, status, block + 3)
+            index, acc, held = put(out, index, acc, held, m, k)
+            m = _correct(c4, d4, k, r, ptab, chunk_bits, leader_message, leader_weight, status, block + 4)
+            index, acc, held = put(out, index, acc, held, m, k)
+            m = _correct(c5, d5, k, r, ptab, chunk_bits, leader_message, leader_weight, status, block + 5)
+            index, acc, held = put(out, index, acc, held, m, k)
+            m = _correct(c6, d6, k, r, ptab, chunk_bits, leader_message, leader_weight, status, block + 6)
+            index, acc, held = put(out, index, acc, held, m, k)
+            m = _correct(c7, d7, k, r, ptab, chunk_bits, leader_message, leader_weight, status, block + 7)
             index, acc, held = put(out, index, acc, held, m, k)
     finish(out, index, acc, held)
 
