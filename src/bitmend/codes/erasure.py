@@ -140,6 +140,8 @@ def _symbol_array(symbols: object, count: int, size: int | None, what: str) -> n
     views = [_as_bytes(row, what) for row in rows]
     longest = max((v.size for v in views), default=0)
     size = longest if size is None else size
+    if views and all(v.size == size for v in views):
+        return np.stack(views)  # the common case: nothing to pad
     if longest > size:
         raise ErasureCodeError(f"{what}: a symbol of {longest} bytes is longer than the symbol size {size}")
     out = np.zeros((count, size), dtype=np.uint8)

@@ -18,14 +18,18 @@ eight source bytes in one word w:
                                                   no borrow crosses a byte)
     acc  ^= full & mask_b
 
-Eight such steps multiply eight bytes; the loop over words has no table lookups and no
-data-dependent branches, so LLVM vectorizes it (four words per AVX2 instruction). The
-bytes of a word never mix, so the host's byte order does not matter.
+The "full" words of an input row depend on the row only, so they are computed once per
+row (`_spread`, eight words per input word) and shared by every output row that uses it;
+each output row then costs eight AND and eight XOR per word (`_multiply_add`). The loops
+over words have no table lookups and no data-dependent branches, so LLVM vectorizes them
+(four words per AVX2 instruction). The bytes of a word never mix, so the host's byte
+order does not matter. A coefficient 1 is a plain XOR of the row, 0 is skipped.
 
-Memory: a group is processed in column chunks of CHUNK_BYTES; the k input rows and the m
-accumulator rows of one chunk are copied into word-aligned scratch buffers (at most
-(k + m) * CHUNK_BYTES bytes, in the first-level cache for k = 32), which also lets S be
-any length, not only a multiple of 8. Nothing else grows with the input.
+Memory: a group is processed in column chunks of CHUNK_BYTES. The input row of a chunk is
+copied into a word-aligned scratch row (which also lets S be any length, not only a
+multiple of 8), its spread bits fill 8 scratch rows, and the m outputs accumulate in m
+scratch rows: (9 + m) * CHUNK_BYTES bytes, in the first-level cache for small m. Nothing
+else grows with the input.
 
 numba compiles these loops; nothing above the kernels layer imports numba, and this module
 loads late (codes/erasure.py imports it inside a function, for work of 2^16 bits or more
@@ -37,27 +41,31 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
-CHUNK_BYTES = 2048  # columns per pass: one 2 KiB row per input and accumulator
+CHUNK_BYTES = 2048  # columns per pass: 2 KiB scratch rows (input, spread bits, outputs)
 
 _LOW = np.uint64(0x0101010101010101)
 _EIGHT = np.uint64(8)
 
 
-@njit(cache=True, inline="always")
-def _mask_step(x, b, mask):
-    """(bit b of every byte of x, spread to 0x00/0xFF) & mask."""
-    bits = (x >> np.uint64(b)) & _LOW
-    return ((bits << _EIGHT) - bits) & mask
+@njit(cache=True)
+def _spread(src, spread, nwords):
+    """spread[b, w] = bit b of every byte of src[w], as 0x00 or 0xFF per byte."""
+    for b in range(8):
+        out = spread[b]
+        for w in range(nwords):
+            bits = (src[w] >> np.uint64(b)) & _LOW
+            out[w] = (bits << _EIGHT) - bits  # bits * 255: no borrow crosses a byte
 
 
 @njit(cache=True)
-def _multiply_add(src, acc, nwords, m0, m1, m2, m3, m4, m5, m6, m7):
-    """acc[w] ^= c * src[w] bytewise for w < nwords, c given by its eight masks."""
+def _multiply_add(spread, acc, nwords, m0, m1, m2, m3, m4, m5, m6, m7):
+    """acc[w] ^= c * src[w] bytewise for w < nwords: c by its eight masks, src by its
+    spread bits (_spread)."""
+    s0, s1, s2, s3 = spread[0], spread[1], spread[2], spread[3]
+    s4, s5, s6, s7 = spread[4], spread[5], spread[6], spread[7]
     for w in range(nwords):
-        x = src[w]
-        acc[w] ^= (_mask_step(x, 0, m0) ^ _mask_step(x, 1, m1) ^ _mask_step(x, 2, m2)
-                   ^ _mask_step(x, 3, m3) ^ _mask_step(x, 4, m4) ^ _mask_step(x, 5, m5)
-                   ^ _mask_step(x, 6, m6) ^ _mask_step(x, 7, m7))
+        acc[w] ^= ((s0[w] & m0) ^ (s1[w] & m1) ^ (s2[w] & m2) ^ (s3[w] & m3)
+                   ^ (s4[w] & m4) ^ (s5[w] & m5) ^ (s6[w] & m6) ^ (s7[w] & m7))
 
 
 @njit(cache=True)
@@ -82,8 +90,9 @@ def combine_rows(inputs, masks, targets, copies, out):
     groups, k, size = inputs.shape
     m = masks.shape[1]
     chunk_words = CHUNK_BYTES // 8
-    src = np.zeros((k, chunk_words), dtype=np.uint64)
-    src8 = src.view(np.uint8)
+    row = np.zeros(chunk_words, dtype=np.uint64)  # one input row of a chunk, word-aligned
+    row8 = row.view(np.uint8)
+    spread = np.zeros((8, chunk_words), dtype=np.uint64)
     acc = np.zeros((max(m, 1), chunk_words), dtype=np.uint64)
     acc8 = acc.view(np.uint8)
     for g in range(groups):
@@ -98,12 +107,11 @@ def combine_rows(inputs, masks, targets, copies, out):
             for b0 in range(0, size, CHUNK_BYTES):
                 nbytes = min(CHUNK_BYTES, size - b0)
                 nwords = (nbytes + 7) // 8
-                for j in range(k):
-                    src8[j, :nbytes] = inputs[g, j, b0:b0 + nbytes]
-                    src8[j, nbytes:nwords * 8] = 0  # the last word's spare bytes
                 acc[:, :nwords] = 0
                 for j in range(k):
-                    row = src[j]
+                    row8[:nbytes] = inputs[g, j, b0:b0 + nbytes]
+                    row8[nbytes:nwords * 8] = 0  # the last word's spare bytes
+                    spread_done = False
                     for i in range(m):
                         if targets[gt, i] < 0:
                             continue
@@ -112,11 +120,13 @@ def combine_rows(inputs, masks, targets, copies, out):
                             continue
                         if first == _LOW:  # c = 1
                             _xor_into(row, acc[i], nwords)
-                        else:
-                            _multiply_add(row, acc[i], nwords, first, masks[gm, i, j, 1],
-                                          masks[gm, i, j, 2], masks[gm, i, j, 3],
-                                          masks[gm, i, j, 4], masks[gm, i, j, 5],
-                                          masks[gm, i, j, 6], masks[gm, i, j, 7])
+                            continue
+                        if not spread_done:  # once per input row, shared by all outputs
+                            _spread(row, spread, nwords)
+                            spread_done = True
+                        _multiply_add(spread, acc[i], nwords, first, masks[gm, i, j, 1],
+                                      masks[gm, i, j, 2], masks[gm, i, j, 3], masks[gm, i, j, 4],
+                                      masks[gm, i, j, 5], masks[gm, i, j, 6], masks[gm, i, j, 7])
                 for i in range(m):
                     t = targets[gt, i]
                     if t >= 0:
