@@ -142,14 +142,15 @@ def check_report_lines(text: str, data_out: bytes) -> list[dict]:
     assert summary["type"] == "summary" and SUMMARY_KEYS <= set(summary)
     for f in frames:
         assert f["type"] == "frame" and FRAME_KEYS <= set(f)
-        assert f["status"] in ("clean", "corrected", "damaged", "lost")
+        assert f["status"] in ("clean", "corrected", "damaged", "lost", "rebuilt")
         assert isinstance(f["failed_blocks"], list)
-        assert (f["offset"] is None) == (f["status"] == "lost")
-        assert f["crc_ok"] == (f["status"] in ("clean", "corrected"))
+        assert (f["offset"] is None) == (f["status"] in ("lost", "rebuilt"))  # (rebuilt: never arrived whole)
+        assert f["crc_ok"] == (f["status"] in ("clean", "corrected", "rebuilt"))
     assert summary["frames"] == len(frames)
-    for status in ("clean", "corrected", "damaged", "lost"):
-        assert summary[status] == sum(f["status"] == status for f in frames)
-    assert summary["clean"] + summary["corrected"] + summary["damaged"] + summary["lost"] == summary["frames"]
+    for status in ("clean", "corrected", "damaged", "lost", "rebuilt"):
+        assert summary.get(status, 0) == sum(f["status"] == status for f in frames)
+    assert (summary["clean"] + summary["corrected"] + summary["damaged"] + summary["lost"] + summary.get("rebuilt", 0)
+            == summary["frames"])
     assert summary["corrected_symbols"] == sum(f["corrected_symbols"] for f in frames)
     assert summary["failed_blocks"] == sum(len(f["failed_blocks"]) for f in frames)
     assert summary["bytes_out"] == len(data_out)

@@ -47,10 +47,12 @@ class Encoder(io.BufferedIOBase):
 
     def __init__(self, fileobj: BinaryIO, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
                  frame_bytes: int = DEFAULT_FRAME_BYTES, close_fileobj: bool = False,
-                 stream_id: int | None = None) -> None:
+                 stream_id: int | None = None, repair: str | tuple[int, int] | None = None) -> None:
+        """repair: 'R/K' (or (R, K)): R repair frames after every K data frames, so that any
+        R frames of a group lost or damaged are rebuilt (docs/FORMAT.md, "Repair frames")."""
         super().__init__()
         self._fileobj = fileobj
-        self._writer = FrameWriter(fileobj, code, depth, frame_bytes, stream_id)
+        self._writer = FrameWriter(fileobj, code, depth, frame_bytes, stream_id, repair)
         self._close_fileobj = close_fileobj
 
     def writable(self) -> bool:
@@ -72,6 +74,17 @@ class Encoder(io.BufferedIOBase):
         if self.closed:
             raise ValueError("write to closed file")
         self._writer.send_record(bytes(record))
+
+    @property
+    def group_open(self) -> bool:
+        """Data frames are out whose repair frames are not yet sent (repair only)."""
+        return self._writer.group_open
+
+    def end_group(self) -> None:
+        """Send the repair frames of the open group now (at a deadline; repair only)."""
+        if not self.closed:
+            self._writer.end_group()
+            self._writer.flush_sink()
 
     @property
     def frame_bytes(self) -> int:
@@ -192,7 +205,7 @@ class Decoder(io.BufferedReader):
 
 def open(file: PathOrFile, mode: str = "rb", *, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
          frame_bytes: int = DEFAULT_FRAME_BYTES, on_error: str = "keep",
-         stream_id: int | None = None) -> Encoder | Decoder:
+         stream_id: int | None = None, repair: str | tuple[int, int] | None = None) -> Encoder | Decoder:
     """Open a bitmend container for reading ('rb') or writing ('wb'), from a path or a
     binary file object; code, depth and frame_bytes apply to writing, on_error to reading.
     code is a catalog name or a code object (e.g. from load_code_file): a code outside the
@@ -209,7 +222,7 @@ def open(file: PathOrFile, mode: str = "rb", *, code: CodeChoice = DEFAULT_CODE,
     else:
         raise TypeError("file must be a path or a binary file object")
     if writing:
-        return Encoder(fileobj, code, depth, frame_bytes, close_fileobj=owned, stream_id=stream_id)
+        return Encoder(fileobj, code, depth, frame_bytes, close_fileobj=owned, stream_id=stream_id, repair=repair)
     return Decoder(fileobj, on_error, close_fileobj=owned)
 
 
@@ -222,11 +235,13 @@ class Decoded:
 
 
 def encode_bytes(data: bytes, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
-                 frame_bytes: int = DEFAULT_FRAME_BYTES, stream_id: int | None = None) -> bytes:
+                 frame_bytes: int = DEFAULT_FRAME_BYTES, stream_id: int | None = None,
+                 repair: str | tuple[int, int] | None = None) -> bytes:
     """The container for data (one-shot); code is a catalog name or a code object;
-    stream_id is drawn at random unless given (give one only to make output reproducible)."""
+    stream_id is drawn at random unless given (give one only to make output reproducible);
+    repair 'R/K' adds R repair frames after every K data frames."""
     sink = io.BytesIO()
-    with Encoder(sink, code, depth, frame_bytes, stream_id=stream_id) as enc:
+    with Encoder(sink, code, depth, frame_bytes, stream_id=stream_id, repair=repair) as enc:
         enc.write(data)
     return sink.getvalue()
 

@@ -337,6 +337,10 @@ def encode(
     idle: Optional[float] = typer.Option(None, "--idle", metavar="SECONDS",
                                          help="With IN = udp:HOST:PORT: end after this long without a datagram "
                                               "(default: run until SIGINT or SIGTERM)."),
+    repair: Optional[str] = typer.Option(None, "--repair", metavar="R/K",
+                                         help="After every K data frames (K <= 32) send R repair frames: any R "
+                                              "frames of the group that are lost or damaged are rebuilt exactly. "
+                                              "A group also closes at --max-delay and at the end."),
 ) -> None:
     """Wrap a byte stream in coded, self-contained frames.
 
@@ -364,21 +368,22 @@ def encode(
         chosen = _load_code(code, code_file)  # unknown names and bad files fail before any output is made
         from bitmend.container.writer import FrameWriter
         try:
-            FrameWriter(io.BytesIO(), chosen, depth, frame_bytes)  # frame size limits, before any output
+            FrameWriter(io.BytesIO(), chosen, depth, frame_bytes, repair=repair)  # limits, before any output
         except ValueError as exc:
             raise CliError(str(exc), EXIT_USAGE) from None
+        delay = None if max_delay == float("inf") else max_delay
         if output_udp is not None:
             _check_fits_datagram(chosen, depth, frame_bytes)
         if source_udp is not None:
-            _encode_datagrams(source_udp, output, output_udp, code or chosen, depth, frame_bytes, idle)
+            _encode_datagrams(source_udp, output, output_udp, code or chosen, depth, frame_bytes, idle, repair, delay)
             return
         with _open_input(source) as inp, _open_data_output(output, output_udp) as out:
             with _progress("encoding", _input_size(inp), True) as tick:
-                with Encoder(out, code or chosen, depth, frame_bytes) as enc:
+                with Encoder(out, code or chosen, depth, frame_bytes, repair=repair) as enc:
                     if records is not None:
-                        pump_records(inp, enc, records, tick)
+                        pump_records(inp, enc, records, tick, max_delay=delay)
                     else:
-                        pump_encode(inp, enc, None if max_delay == float("inf") else max_delay, tick)
+                        pump_encode(inp, enc, delay, tick)
 
 
 def _say_listening(receiver) -> None:
@@ -429,23 +434,33 @@ def _open_data_output(output: Optional[str], endpoint):
 
 
 def _encode_datagrams(endpoint, output: Optional[str], output_udp, code, depth: int, frame_bytes: int,
-                      idle: Optional[float]) -> None:
-    """encode udp:HOST:PORT: each datagram received is one record, sent at once as one frame."""
+                      idle: Optional[float], repair: Optional[str], max_delay: Optional[float]) -> None:
+    """encode udp:HOST:PORT: each datagram received is one record, sent at once as one frame;
+    with --repair a group closes after K datagrams or --max-delay after its first."""
+    import time
+
     from bitmend.api import Encoder
     from bitmend.datagrams import DatagramReceiver
 
-    receiver = DatagramReceiver(endpoint, idle)
+    receiver = DatagramReceiver(endpoint, idle, ticks=True)
     _say_listening(receiver)
     refused = 0
+    group_since: Optional[float] = None
     with _open_data_output(output, output_udp) as out:
-        with Encoder(out, code, depth, frame_bytes) as enc:
+        with Encoder(out, code, depth, frame_bytes, repair=repair) as enc:
             for datagram in receiver:
-                if len(datagram) > frame_bytes:
-                    refused += 1  # one oversized datagram must not end a live link
-                    continue
-                enc.send_record(datagram)
-                if not getattr(out, "replaces_file", True):
-                    out.flush()
+                if datagram is not None:
+                    if len(datagram) > frame_bytes:
+                        refused += 1  # one oversized datagram must not end a live link
+                        continue
+                    enc.send_record(datagram)
+                if not enc.group_open:
+                    group_since = None
+                elif group_since is None:
+                    group_since = time.monotonic()
+                elif max_delay is not None and time.monotonic() - group_since >= max_delay:
+                    enc.end_group()
+                    group_since = None
     ended = f", ended by {receiver.stopped_by}" if receiver.stopped_by else ""
     typer.echo(f"bitmend encode: {receiver.received} datagrams received, {receiver.received - refused} sent as "
                f"frames{ended}", err=True)

@@ -59,9 +59,12 @@ def _socket_for(endpoint: UdpEndpoint) -> socket.socket:
 class DatagramReceiver:
     """Datagrams arriving at a bound address, as an iterator of bytes."""
 
-    def __init__(self, endpoint: UdpEndpoint, idle: float | None = None) -> None:
+    def __init__(self, endpoint: UdpEndpoint, idle: float | None = None, ticks: bool = False) -> None:
+        """ticks: also yield None at every poll without a datagram (about every 0.2 s), so
+        the caller can act on its own deadlines."""
         self.endpoint = endpoint
         self.idle = idle
+        self.ticks = ticks
         self.received = 0
         self.stopped_by: str | None = None  # the signal that ended the run, if one did
         self._sock = _socket_for(endpoint)
@@ -71,7 +74,7 @@ class DatagramReceiver:
             self._sock.close()
             raise OSError(exc.errno, f"cannot listen on {endpoint}: {exc.strerror}") from None
 
-    def __iter__(self) -> Iterator[bytes]:
+    def __iter__(self) -> Iterator[bytes | None]:
         """Datagrams until --idle seconds of silence or a stop signal (taken as the end of
         input, not as a failure: the caller finishes normally)."""
         import time
@@ -92,6 +95,8 @@ class DatagramReceiver:
                         wait = min(wait, left)
                     ready, _, _ = select.select([self._sock], [], [], wait)
                     if not ready:
+                        if self.ticks:
+                            yield None
                         continue
                     data = self._sock.recv(MAX_DATAGRAM + 1)
                     last = time.monotonic()

@@ -73,24 +73,53 @@ def pump_encode(source: BinaryIO | LiveReader, encoder, max_delay: float | None,
                 clock: Callable[[], float] = time.monotonic) -> None:
     """Copy source into encoder (an api.Encoder) until the end of input, sending a frame at
     most max_delay seconds after its first byte arrived (None: only full frames, and the
-    rest at the end) and flushing the output whenever frames went out, so they leave now."""
+    rest at the end) and flushing the output whenever frames went out, so they leave now.
+    With repair frames, a group also closes max_delay after its first frame went out."""
     reader = source if hasattr(source, "read_within") else LiveReader(source)
     arrivals = ArrivalClock()
+    groups = GroupClock(encoder, clock)
     while True:
         oldest = arrivals.oldest_waiting(encoder.bytes_in, encoder.pending_bytes) if max_delay is not None else None
-        timeout = None if oldest is None else oldest + max_delay - clock()
+        deadlines = [t + max_delay for t in (oldest, groups.since()) if t is not None and max_delay is not None]
+        timeout = min(deadlines) - clock() if deadlines else None
         if timeout is not None and timeout <= 0:
-            encoder.flush()  # the deadline of the oldest waiting byte: send what is held now
+            if oldest is not None and oldest + max_delay <= clock():
+                encoder.flush()  # the deadline of the oldest waiting byte: send what is held now
+            groups.check(max_delay)
             continue
         block = reader.read_within(timeout)
         if block is None:
-            continue  # the deadline passed while waiting: flushed at the top of the loop
+            continue  # a deadline passed while waiting: acted on at the top of the loop
         if not block:
             return
         sent_before = encoder.bytes_out
         encoder.write(block)
         arrivals.arrived(encoder.bytes_in, clock())
+        groups.check(max_delay)
         if encoder.bytes_out != sent_before:
             encoder.flush_output()
         if progress is not None:
             progress(encoder.bytes_in)
+
+
+class GroupClock:
+    """When the encoder's open repair group got its first frame; closes it when that is
+    max_delay ago, so repair frames follow their group within the delay on a slow link."""
+
+    def __init__(self, encoder, clock: Callable[[], float]) -> None:
+        self._encoder = encoder
+        self._clock = clock
+        self._since: float | None = None
+
+    def since(self) -> float | None:
+        if not getattr(self._encoder, "group_open", False):
+            self._since = None
+        elif self._since is None:
+            self._since = self._clock()
+        return self._since
+
+    def check(self, max_delay: float | None) -> None:
+        since = self.since()
+        if since is not None and max_delay is not None and self._clock() - since >= max_delay:
+            self._encoder.end_group()
+            self._since = None

@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import io
 import struct
+import time
 from typing import BinaryIO, Callable, Iterable, Iterator
 
 from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH
@@ -25,7 +26,7 @@ from bitmend.container.assembler import Assembler, DamagedDataError
 from bitmend.container.format import DEFAULT_FRAME_BYTES, MAX_PAYLOAD_BYTES
 from bitmend.container.reader import FrameScanner, ScanStats
 from bitmend.container.writer import FrameWriter
-from bitmend.report import CLEAN, CORRECTED, DAMAGED, DecodeReport, FrameReport, Summary
+from bitmend.report import CLEAN, CORRECTED, DAMAGED, REBUILT, DecodeReport, FrameReport, Summary
 
 FRAMINGS = ("line", "u16", "u32")
 RECORD_ON_ERROR = ("drop", "keep", "fail")  # zero-filling a record would invent one
@@ -123,12 +124,14 @@ class _FrameCollector:
 
 
 def encode_records(records: Iterable[bytes], code=DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
-                   frame_bytes: int = DEFAULT_FRAME_BYTES, stream_id: int | None = None) -> Iterator[bytes]:
+                   frame_bytes: int = DEFAULT_FRAME_BYTES, stream_id: int | None = None,
+                   repair: str | tuple[int, int] | None = None) -> Iterator[bytes]:
     """One protected blob (a whole frame) per record, as each record comes, then the
-    stream's closing frame (empty). Send each blob as one datagram, or write them back to
-    back: either way `decode_records` gives the records back."""
+    stream's closing frame (empty); with repair 'R/K', R repair blobs after every K
+    records. Send each blob as one datagram, or write them back to back: either way
+    `decode_records` gives the records back."""
     collector = _FrameCollector()
-    writer = FrameWriter(collector, code, depth, frame_bytes, stream_id)
+    writer = FrameWriter(collector, code, depth, frame_bytes, stream_id, repair)
     for record in records:
         writer.send_record(record)
         yield from collector.take()
@@ -197,9 +200,9 @@ class RecordReader:
                 if len(self.missing) < 100_000:
                     self.missing.append(report.seq)
                 continue
-            if report.closing and report.bytes == 0 and report.status in (CLEAN, CORRECTED):
+            if report.closing and report.bytes == 0 and report.status in (CLEAN, CORRECTED, REBUILT):
                 continue  # the stream's empty closing frame ends it; it is not a record
-            if report.status in (CLEAN, CORRECTED) or (report.status == DAMAGED and keep_damaged):
+            if report.status in (CLEAN, CORRECTED, REBUILT) or (report.status == DAMAGED and keep_damaged):
                 yield report.seq, data, report
 
     @property
@@ -234,15 +237,26 @@ def decode_records(source: Iterable[bytes] | BinaryIO | bytes, on_error: str = "
     return RecordReader(_record_assembler(source, on_error), on_frame)
 
 
-def pump_records(source: BinaryIO, encoder, framing: str, progress: Callable[[int], None] | None = None) -> int:
+def pump_records(source: BinaryIO, encoder, framing: str, progress: Callable[[int], None] | None = None,
+                 max_delay: float | None = None) -> int:
     """Cut source into records as its bytes arrive and send each through encoder (an
-    api.Encoder) as a frame of its own, at once. Returns the number of records."""
-    from bitmend.live import LiveReader
+    api.Encoder) as a frame of its own, at once. With repair frames, a group closes
+    max_delay after its first record. Returns the number of records."""
+    from bitmend.live import GroupClock, LiveReader
 
     reader = source if hasattr(source, "read_within") else LiveReader(source)
     splitter = RecordSplitter(framing, encoder.frame_bytes)
+    groups = GroupClock(encoder, time.monotonic)
     done = 0
-    while block := reader.read_within(None):
+    while True:
+        since = groups.since()
+        timeout = None if since is None or max_delay is None else max(0.0, since + max_delay - time.monotonic())
+        block = reader.read_within(timeout)
+        groups.check(max_delay)
+        if block is None:
+            continue
+        if not block:
+            break
         for record in splitter.feed(block):
             encoder.send_record(record)
         done += len(block)

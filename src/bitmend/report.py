@@ -5,7 +5,7 @@ from __future__ import annotations
 import json
 from dataclasses import asdict, dataclass, field
 
-CLEAN, CORRECTED, DAMAGED, LOST = "clean", "corrected", "damaged", "lost"
+CLEAN, CORRECTED, DAMAGED, LOST, REBUILT = "clean", "corrected", "damaged", "lost", "rebuilt"
 
 
 @dataclass(frozen=True)
@@ -74,7 +74,8 @@ class Summary:
     reordered: int = 0  # frames that arrived after one numbered later, put back in place
     late: int = 0  # frames that came after they had been declared lost, dropped
     streams: int = 0  # streams found in the input
-    rebuilt: int = 0  # frames rebuilt from repair frames
+    rebuilt: int = 0  # data frames that never arrived whole, rebuilt from repair frames and verified
+    repair_frames: int = 0  # repair frames that arrived intact
 
     def to_json(self) -> str:
         return json.dumps({"type": "summary", **asdict(self)}, separators=(",", ":"))
@@ -85,7 +86,7 @@ class Summary:
         parts = [_count(self.frames, "frame"), f"{self.clean} clean", f"{self.corrected} corrected",
                  f"{self.damaged} damaged", f"{self.lost} lost",
                  f"{self.corrected_symbols} {self.symbol_unit} corrected", _count(self.bytes_out, "byte") + " out"]
-        for value, what in ((self.duplicates, "duplicate"), (self.reordered, "reordered"),
+        for value, what in ((self.rebuilt, "rebuilt"), (self.duplicates, "duplicate"), (self.reordered, "reordered"),
                             (self.foreign, "foreign"), (self.late, "late")):
             if value:
                 parts.append(f"{value} {what}")

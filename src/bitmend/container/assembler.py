@@ -14,7 +14,7 @@ from typing import BinaryIO, Iterator
 from bitmend.container import format as fmt
 from bitmend.container.delivery import Delivered, Event, LostRun, Sequencer, StreamEnded
 from bitmend.container.reader import DecodedFrame, FrameScanner
-from bitmend.report import CLEAN, CORRECTED, DAMAGED, LOST, FrameReport, Summary
+from bitmend.report import CLEAN, CORRECTED, DAMAGED, LOST, REBUILT, FrameReport, Summary
 
 ON_ERROR_CHOICES = ("keep", "zero", "drop", "fail")
 MAX_LOST_LISTED = 100_000  # a gap wider than this is listed only up to this many frames
@@ -36,6 +36,7 @@ class _Counts:
     corrected: int = 0
     damaged: int = 0
     lost: int = 0
+    rebuilt: int = 0
     bytes_out: int = 0
     corrected_symbols: int = 0
     failed_blocks: int = 0
@@ -95,14 +96,14 @@ class Assembler:
         header = frame.header
         self._stream_names[event.stream_index] = _stream_name(header)
         self._symbol_bits.add(_symbol_bits(header))
-        status = self._status(frame)
+        status = REBUILT if event.rebuilt else self._status(frame)
         data = frame.payload
         if status == DAMAGED:
             if self.on_error == "zero":
                 data = bytes(len(frame.payload))
             elif self.on_error in ("drop", "fail"):
                 data = b""
-        report = FrameReport(header.seq, frame.offset, status, len(frame.block_status),
+        report = FrameReport(header.seq, None if event.rebuilt else frame.offset, status, len(frame.block_status),
                              frame.corrected_blocks, frame.corrected_symbols, frame.failed_blocks,
                              frame.crc_ok, self._counts.bytes_out, len(data), frame.truncated,
                              frame.failed_count, stream=_stream_name(header), stream_index=event.stream_index,
@@ -173,8 +174,6 @@ class Assembler:
         complete = (end_seen and c.damaged == 0 and c.lost == 0 and not self._truncated
                     and d.foreign == 0 and d.late == 0)
         notes = list(self._notes) + list(self.sequencer.notes)
-        if d.repair_ignored:
-            notes.append(f"{d.repair_ignored} repair frames skipped (this bitmend does not rebuild from them)")
         notes += list(dict.fromkeys(self.scanner.stats.header_errors))[:10]
         units = {"bytes" if bits == 8 else "bits" for bits in self._symbol_bits} or {"bits"}
         return Summary(c.frames, c.clean, c.corrected, c.damaged, c.lost, c.bytes_out,
@@ -182,4 +181,4 @@ class Assembler:
                        self.scanner.stats.skipped_bytes, notes,
                        units.pop() if len(units) == 1 else "symbols (bits or bytes)",
                        duplicates=d.duplicates, foreign=d.foreign, reordered=d.reordered, late=d.late,
-                       streams=d.streams, rebuilt=0)
+                       streams=d.streams, rebuilt=c.rebuilt, repair_frames=d.repair_frames)

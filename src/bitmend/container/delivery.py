@@ -25,12 +25,15 @@ windows of frames.
 
 from __future__ import annotations
 
-from collections import deque
-from dataclasses import dataclass, field
+from collections import OrderedDict, deque
+from dataclasses import dataclass, field, replace
 from typing import Iterator
+
+import numpy as np
 
 from bitmend.container import format as fmt
 from bitmend.container.reader import DecodedFrame
+from bitmend.container.repair import MAX_GROUP, GroupFields, parse_symbol, source_symbol
 
 REORDER_WINDOW = 32  # frames held waiting for an earlier one, and frames of another stream held aside
 HALF_SEQ = fmt.SEQ_MODULUS // 2
@@ -46,6 +49,7 @@ class Delivered:
     frame: DecodedFrame
     stream_index: int  # 0 for the first stream of the input, 1 for the next, ...
     reordered: bool  # it had to wait for an earlier frame that arrived after it
+    rebuilt: bool = False  # it never arrived whole: rebuilt from its group's repair frames
 
 
 @dataclass(frozen=True)
@@ -91,6 +95,22 @@ class _Stream:
     lost_from: int | None = None  # first sequence number of a lost run not yet reported
     closed: bool = False
     released: int = 0
+    # repair frames (container/repair.py): the stream sends them; good frames released lately
+    # (a group's sources), damaged ones waiting for a rebuild, and each group's repair symbols
+    uses_repair: bool = False
+    recent: OrderedDict = field(default_factory=OrderedDict)  # seq -> DecodedFrame (verified)
+    damaged: dict[int, DecodedFrame] = field(default_factory=dict)
+    groups: dict[int, "_Group"] = field(default_factory=dict)  # first seq -> group
+    rebuilt: set[int] = field(default_factory=set)
+
+
+@dataclass
+class _Group:
+    first: int
+    fields: GroupFields
+    size: int  # repair symbol length
+    template: object  # a repair frame's header (code, depth, stream)
+    repairs: dict[int, bytes] = field(default_factory=dict)
 
 
 @dataclass
@@ -99,7 +119,8 @@ class DeliveryCounts:
     foreign: int = 0
     reordered: int = 0
     late: int = 0  # frames that came after they had been declared lost
-    repair_ignored: int = 0  # repair frames (read by a later bitmend; skipped here)
+    repair_frames: int = 0  # repair frames that arrived intact
+    rebuilt: int = 0  # data frames rebuilt from repair frames
     streams: int = 0
     unclosed: int = 0  # streams that ended without their closing frame
 
@@ -126,7 +147,7 @@ class Sequencer:
         events: list[Event] = []
         header = frame.header
         if header.repair:
-            self.counts.repair_ignored += 1
+            self._repair_frame(frame, events)
             return events
         key = header.stream_id if header.identified else None
         current = self._current
@@ -190,10 +211,27 @@ class Sequencer:
             else:
                 self.counts.duplicates += 1
             return
+        if frame.header.in_group:
+            stream.uses_repair = True
         if seq in stream.held:
             self.counts.duplicates += 1
             if not stream.held[seq].crc_ok and frame.crc_ok:
                 stream.held[seq] = frame  # an intact copy replaces a damaged one still waiting
+            return
+        if seq in stream.damaged:
+            self.counts.duplicates += 1
+            if not frame.crc_ok:
+                return
+            del stream.damaged[seq]  # an intact copy of a frame that waits damaged: it takes its place
+            ahead = _ahead(seq, stream.expected)
+        elif not frame.crc_ok and stream.uses_repair:
+            # a damaged frame of a stream with repair frames waits for its group's repair
+            # (or an intact copy); it is delivered damaged only when the window passes it
+            stream.damaged[seq] = frame
+            if stream.highest is None or _ahead(seq, stream.highest) > 0:
+                stream.highest = seq
+            self._rebuild_around(stream, seq, events)
+            self._slide(stream, seq, events)
             return
         out_of_order = stream.highest is not None and _ahead(seq, stream.highest) < 0
         if stream.highest is None or _ahead(seq, stream.highest) > 0:
@@ -205,13 +243,22 @@ class Sequencer:
         stream.held[seq] = frame
         if out_of_order:
             stream.overtaken.add(seq)
-        # the window is full: what is more than `window` places behind the newest is not coming
+        if stream.groups:
+            self._rebuild_around(stream, stream.expected, events)
+        self._slide(stream, seq, events)
+
+    def _slide(self, stream: _Stream, seq: int, events: list[Event]) -> None:
+        """The window is full: what is more than `window` places behind the newest is not coming."""
         while _ahead(seq, stream.expected) >= self.window and not stream.closed:
             self._advance_one(stream, events)
         self._drain(stream, events)
 
     def _advance_one(self, stream: _Stream, events: list[Event]) -> None:
+        if stream.expected not in stream.held and stream.groups:
+            self._rebuild_around(stream, stream.expected, events)  # a last chance before it is lost
         waiting = stream.held.pop(stream.expected, None)
+        if waiting is None:
+            waiting = stream.damaged.pop(stream.expected, None)  # no rebuild came: deliver it damaged
         if waiting is not None:
             self._release(stream, waiting, self._was_overtaken(stream, stream.expected), events)
         else:
@@ -235,7 +282,7 @@ class Sequencer:
     def _release_all(self, stream: _Stream, events: list[Event]) -> None:
         """End of input or of the stream: every frame still waiting is released, with the
         frames missing before it declared lost."""
-        while stream.held and not stream.closed:
+        while (stream.held or stream.damaged) and not stream.closed:
             self._advance_one(stream, events)
 
     def _release(self, stream: _Stream, frame: DecodedFrame, reordered: bool, events: list[Event]) -> None:
@@ -244,8 +291,16 @@ class Sequencer:
         self._flush_lost(stream, frame, events)
         if reordered:
             self.counts.reordered += 1
-        events.append(Delivered(frame, stream.index, reordered))
+        rebuilt = header.seq in stream.rebuilt
+        if rebuilt:
+            stream.rebuilt.discard(header.seq)
+            self.counts.rebuilt += 1
+        events.append(Delivered(frame, stream.index, reordered, rebuilt))
         stream.released += 1
+        if stream.uses_repair and frame.crc_ok:
+            stream.recent[header.seq] = frame  # a source of its group, should a later frame need rebuilding
+            while len(stream.recent) > 2 * MAX_GROUP:
+                stream.recent.popitem(last=False)
         stream.expected = (header.seq + 1) % fmt.SEQ_MODULUS
         stream.end_position = (header.position + header.length) % POSITION_MODULUS if header.identified else None
         if header.last:
@@ -273,6 +328,74 @@ class Sequencer:
             gap = (following.header.position - stream.end_position) % POSITION_MODULUS
         if count:
             events.append(LostRun(stream.index, first, count, gap))
+
+    # ---- repair frames ------------------------------------------------------------------------
+    def _repair_frame(self, frame: DecodedFrame, events: list[Event]) -> None:
+        """Keep an intact repair frame's symbol with its group and rebuild what it can."""
+        header = frame.header
+        fields = GroupFields.of(header)
+        if not frame.crc_ok or fields is None or not header.identified:
+            return  # a damaged repair frame cannot help
+        self.counts.repair_frames += 1
+        current = self._current
+        if current is None:
+            self._start(header.stream_id)
+            current = self._current
+        if current.key != header.stream_id or current.closed:
+            return  # another stream's, or one that is already whole: nothing to rebuild
+        current.uses_repair = True
+        group = current.groups.get(header.seq)
+        if group is None or group.fields.count != fields.count or group.size != header.length:
+            group = current.groups[header.seq] = _Group(header.seq, fields, header.length, header)
+        group.repairs.setdefault(fields.index, frame.payload)
+        # forget groups wholly behind the window
+        for first in [f for f, g in current.groups.items()
+                      if _ahead((f + g.fields.count) % fmt.SEQ_MODULUS, current.expected) < -self.window]:
+            del current.groups[first]
+        if self._rebuild(current, group, events):
+            self._slide(current, (current.highest if current.highest is not None else current.expected), events)
+
+    def _rebuild_around(self, stream: _Stream, seq: int, events: list[Event]) -> None:
+        for group in list(stream.groups.values()):
+            if 0 <= _ahead(seq, group.first) < group.fields.count:
+                self._rebuild(stream, group, events)
+
+    def _rebuild(self, stream: _Stream, group: _Group, events: list[Event]) -> bool:
+        """Rebuild the group's data frames still missing (or waiting damaged) when the group
+        holds enough symbols: any K' of its K' + R. True if frames were rebuilt."""
+        from bitmend.codes.erasure import erasure_code
+
+        count = group.fields.count
+        have: dict[int, bytes] = {}
+        missing: list[int] = []
+        for j in range(count):
+            seq = (group.first + j) % fmt.SEQ_MODULUS
+            good = stream.recent.get(seq) or stream.held.get(seq)
+            if good is not None and good.crc_ok:
+                have[j] = source_symbol(good.header, good.payload)
+            elif _ahead(seq, stream.expected) >= 0:
+                missing.append(j)
+        if not missing or len(have) + len(group.repairs) < count:
+            return False
+        received = {j: np.frombuffer(sym, np.uint8) for j, sym in have.items()}
+        received.update({count + i: np.frombuffer(sym, np.uint8) for i, sym in group.repairs.items()})
+        sources = erasure_code(count, group.fields.repairs).recover(received, group.size)
+        rebuilt_any = False
+        for j in missing:
+            data = parse_symbol(sources[j].tobytes())
+            seq = (group.first + j) % fmt.SEQ_MODULUS
+            if data is None:
+                self.notes.append(f"frame {seq}: its rebuild from repair frames did not check; not used")
+                continue
+            header = replace(group.template, seq=seq, length=len(data.payload), last=data.last,
+                             position=data.position, repair=False, in_group=True)
+            stream.held[seq] = DecodedFrame(header, -1, -1, data.payload, np.zeros(0, np.uint8), True)
+            stream.damaged.pop(seq, None)
+            stream.rebuilt.add(seq)
+            rebuilt_any = True
+        if rebuilt_any:
+            self._drain(stream, events)
+        return rebuilt_any
 
     # ---- other streams -----------------------------------------------------------------------
     def _resolve_aside(self, events: list[Event], at_end: bool) -> None:

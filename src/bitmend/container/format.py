@@ -71,7 +71,8 @@ DEFAULT_FRAME_BYTES = 16384
 CRC_BYTES = 4
 FLAG_LAST = 0x01  # the frame closes its stream
 FLAG_REPAIR = 0x02  # (version 2) a repair frame across the data frames of a group: docs/FORMAT.md
-KNOWN_FLAGS = {1: FLAG_LAST, 2: FLAG_LAST | FLAG_REPAIR}
+FLAG_IN_GROUP = 0x08  # (version 2) a data frame of a stream that sends repair frames (0x04: keyed, reserved)
+KNOWN_FLAGS = {1: FLAG_LAST, 2: FLAG_LAST | FLAG_REPAIR | FLAG_IN_GROUP}
 POSITION_BITS = 48  # (version 2) stream byte offset of a data frame's first payload byte, mod 2^48
 SEQ_MODULUS = 1 << 32
 CUSTOM_CODE_ID = 0  # the frame carries its own code in a code-definition block
@@ -133,6 +134,7 @@ class FrameHeader:  # noqa: PLW1641 (cached_property needs __dict__; frozen stil
     stream_id: int = 0  # (version 2) the stream's identity, drawn at random by its encoder
     position: int = 0  # (version 2) stream offset of the first payload byte, mod 2^48
     repair: bool = False  # (version 2) a repair frame: `position` holds its group fields
+    in_group: bool = False  # (version 2) a data frame whose stream sends repair frames
 
     @classmethod
     def for_defined_code(cls, code: BinaryLinearCode, depth: int, seq: int, length: int,
@@ -199,7 +201,8 @@ class FrameHeader:  # noqa: PLW1641 (cached_property needs __dict__; frozen stil
         return k, r
 
     def record(self) -> bytes:
-        flags = (FLAG_LAST if self.last else 0) | (FLAG_REPAIR if self.repair else 0)
+        flags = ((FLAG_LAST if self.last else 0) | (FLAG_REPAIR if self.repair else 0)
+                 | (FLAG_IN_GROUP if self.in_group else 0))
         length = self.length
         if self.code_id == CUSTOM_CODE_ID:
             k, r = self._shape()
@@ -291,7 +294,7 @@ def _parse_record(body: bytes, layout_: HeaderLayout) -> FrameHeader:
         except KeyError:
             raise HeaderError(f"frame uses unknown code id {code_id}") from None
     header = FrameHeader(code_id, depth, seq, length, bool(flags & FLAG_LAST), version, shape, None,
-                         stream_id, position, bool(flags & FLAG_REPAIR))
+                         stream_id, position, bool(flags & FLAG_REPAIR), bool(flags & FLAG_IN_GROUP))
     if shape is not None and header.frame_bytes > MAX_FRAME_WIRE_BYTES:
         raise HeaderError(f"frame of {header.frame_bytes} bytes exceeds the limit {MAX_FRAME_WIRE_BYTES}")
     return header

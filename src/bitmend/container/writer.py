@@ -3,11 +3,13 @@
 from __future__ import annotations
 
 import secrets
+from dataclasses import replace
 from typing import BinaryIO
 
 from bitmend.codes.catalog import MAX_DEPTH, code_id, code_names, get_code
 from bitmend.codes.linear import BinaryLinearCode
 from bitmend.container import format as fmt
+from bitmend.container.repair import GroupBuilder, parse_repair
 
 
 def resolve_code(code: str | BinaryLinearCode) -> tuple[int, BinaryLinearCode | None]:
@@ -36,7 +38,8 @@ class FrameWriter:
     """
 
     def __init__(self, sink: BinaryIO, code: str | BinaryLinearCode, depth: int,
-                 frame_bytes: int = fmt.DEFAULT_FRAME_BYTES, stream_id: int | None = None) -> None:
+                 frame_bytes: int = fmt.DEFAULT_FRAME_BYTES, stream_id: int | None = None,
+                 repair: tuple[int, int] | str | None = None) -> None:
         if not 1 <= depth <= MAX_DEPTH:
             raise ValueError(f"depth must be 1..{MAX_DEPTH}, got {depth}")
         if not 1 <= frame_bytes <= fmt.MAX_PAYLOAD_BYTES:
@@ -57,23 +60,52 @@ class FrameWriter:
         self._pending = bytearray()
         self._seq = 0
         self._position = 0  # stream offset of the next frame's first payload byte
+        # repair frames: R after every K data frames (container/repair.py), or none
+        spec = parse_repair(repair)
+        self._group = GroupBuilder(*spec) if spec else None
+        self.repair_frames = 0
         self.bytes_in = 0
         self.bytes_out = 0
         self.closed = False
 
     def _emit(self, payload: bytes, last: bool) -> None:
         position = self._position % (1 << fmt.POSITION_BITS)
+        in_group = self._group is not None
         if self._defined_code is not None:
             header = fmt.FrameHeader.for_defined_code(self._defined_code, self._depth, self._seq, len(payload), last,
                                                       self.stream_id, position)
+            header = replace(header, in_group=in_group)
         else:
             header = fmt.FrameHeader(self._code_id, self._depth, self._seq, len(payload), last,
-                                     stream_id=self.stream_id, position=position)
+                                     stream_id=self.stream_id, position=position, in_group=in_group)
+        self._send(header, payload)
+        self._seq = (self._seq + 1) % fmt.SEQ_MODULUS
+        self._position += len(payload)
+        if self._group is not None and (self._group.add(header, payload) or last):
+            self.end_group(header)
+
+    def _send(self, header: fmt.FrameHeader, payload: bytes) -> None:
         frame = fmt.encode_frame(header, payload)
         self._sink.write(frame)
         self.bytes_out += len(frame)
-        self._seq = (self._seq + 1) % fmt.SEQ_MODULUS
-        self._position += len(payload)
+
+    @property
+    def group_open(self) -> bool:
+        """Data frames were sent whose repair frames are not yet sent."""
+        return self._group is not None and bool(self._group.symbols)
+
+    def end_group(self, template: fmt.FrameHeader | None = None) -> None:
+        """Send the repair frames of the open group now (a full group does so by itself; a
+        deadline or the end of the stream closes a short one)."""
+        if not self.group_open:
+            return
+        if template is None:
+            template = (fmt.FrameHeader.for_defined_code(self._defined_code, self._depth, 0, 0, stream_id=self.stream_id)
+                        if self._defined_code is not None
+                        else fmt.FrameHeader(self._code_id, self._depth, 0, 0, stream_id=self.stream_id))
+        for header, payload in self._group.repair_frames(template):
+            self._send(header, payload)
+            self.repair_frames += 1
 
     def write(self, data: bytes) -> int:
         if self.closed:
