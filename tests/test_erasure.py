@@ -55,6 +55,16 @@ def test_matrix_is_the_cauchy_matrix_one_over_xi_plus_yj_computed_by_galois(k, r
     assert np.array_equal(erasure_code(k, r).matrix, np.asarray(expected))
 
 
+def test_format_doc_example_bytes_are_fixed():
+    # the example in docs/FORMAT.md, "The erasure code of repair frames": part of the file
+    # format, so a change of construction fails here
+    assert cauchy_matrix(4, 2).tolist() == [[253, 126, 255, 127], [126, 253, 127, 255]]
+    repair = erasure_code(3, 2).repair_symbols([b"gauge", b"7", b"ok"])
+    assert [bytes(row).hex(" ") for row in repair] == ["ca 8a 22 ae 49", "cc 40 a5 ea 16"]
+    padded = GF(np.array([list(b"gauge"), list(b"7\0\0\0\0"), list(b"ok\0\0\0")]))
+    assert np.array_equal(repair, np.asarray(GF(cauchy_matrix(3, 2)) @ padded))
+
+
 def test_short_group_code_is_the_top_left_corner_of_the_full_code():
     full = cauchy_matrix(32, 4)
     for k, r in [(1, 1), (7, 4), (31, 2), (32, 4)]:
