@@ -19,7 +19,7 @@ import numpy as np
 
 from bitmend.api import Decoder, Encoder
 from bitmend.channel.ledger import Ledger
-from bitmend.channel.models import ChannelModel
+from bitmend.channel.models import ChannelModel, FrameDrop
 from bitmend.channel.spec import parse_channels
 from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH, get_code
 from bitmend.container import format as fmt
@@ -67,6 +67,10 @@ def flips_in_payload(ledger: Ledger, spans: np.ndarray) -> tuple[int, int] | Non
     return int(inside.sum()), int((~inside).sum())
 
 
+DEMO_REPAIR = "4/16"  # used when the demo's channel drops frames
+DEMO_REPAIR_FRAME_BYTES = 1024
+
+
 def _seqs(values: list[int]) -> str:
     if not values:
         return "none"
@@ -88,11 +92,17 @@ def run_demo(sample: str | None, flip_rate: float, seed: int, say: Callable[[str
 
     started = time.perf_counter()
     sink = io.BytesIO()
-    with Encoder(sink, DEFAULT_CODE, DEFAULT_DEPTH) as enc:
+    # a channel that drops whole frames: smaller frames and repair frames across them
+    drops = any(isinstance(m, FrameDrop) for m in models)
+    repair, frame_bytes = (DEMO_REPAIR, DEMO_REPAIR_FRAME_BYTES) if drops else (None, fmt.DEFAULT_FRAME_BYTES)
+    with Encoder(sink, DEFAULT_CODE, DEFAULT_DEPTH, frame_bytes, repair=repair) as enc:
         enc.write(data)
     container = sink.getvalue()
     say(f"encode     {DEFAULT_CODE} (n={code.n}, k={code.k}, d={code.d}, corrects {code.t}/codeword), "
         f"depth {DEFAULT_DEPTH}: {len(container):,} bytes, overhead {len(container) / len(data) - 1:.1%}")
+    if repair:
+        say(f"           frames of {frame_bytes:,} bytes with repair {repair}: {repair.split('/')[0]} repair frames "
+            f"after every {repair.split('/')[1]} data frames rebuild any {repair.split('/')[0]} lost of the group")
 
     damaged, ledger = inject_bytes(container, models, seed)
     say(f"inject     {' then '.join(m.spec for m in models)}, seed {ledger.seed}")
@@ -116,12 +126,19 @@ def run_demo(sample: str | None, flip_rate: float, seed: int, say: Callable[[str
         say(f"compare    payload flips in the ledger ({split[0]:,}) and bits corrected in the report "
             f"({summary.corrected_symbols:,}) {agree}")
     elif ledger.frames_dropped:
-        dropped = [f["seq"] for stage in ledger.stages for f in (stage.get("dropped_frames") or [])]
+        kinds = {f.offset: f.header.repair for f in FrameScanner(io.BytesIO(container), decode_payloads=False).frames()}
+        drops_made = [f for stage in ledger.stages for f in (stage.get("dropped_frames") or [])]
+        dropped = [f["seq"] for f in drops_made if not kinds.get(f["offset"])]
         lost = [f.seq for f in frames if f.status == "lost"]
+        rebuilt = [f.seq for f in frames if f.status == "rebuilt"]
+        if repair:
+            say(f"  repair   {len(drops_made) - len(dropped)} repair frames dropped; data frames rebuilt from "
+                f"repair frames: {_seqs(rebuilt)}")
         received = [f.seq for f in frames if f.status != "lost"]
         tail = "" if summary.end_seen else "; the end of the stream is missing" + (
             " (its last frame was dropped)" if dropped and (not received or max(dropped) > max(received)) else "")
-        say(f"compare    frames dropped in the ledger: {_seqs(dropped)}; lost in the report: {_seqs(lost)}{tail}")
+        say(f"compare    data frames dropped in the ledger: {_seqs(dropped)}; lost in the report: "
+            f"{_seqs(lost)}{tail}")
     fixed = [f for f in frames if f.status == "corrected"]
     if fixed:
         worst = max(fixed, key=lambda f: f.corrected_symbols)
