@@ -341,13 +341,22 @@ def test_sigterm_while_injecting_keeps_a_ledger_that_says_it_was_stopped(tmp_pat
     assert record["type"] == "ledger" and record["stopped"] == "SIGTERM" and record["seed"] == 4
 
 
-def wchan(pid: int) -> str:
-    """The kernel function a process sleeps in (Linux /proc: 'anon_pipe_write' or 'pipe_write'
-    for a write to a full pipe, by kernel version), '' where it cannot be read."""
+def blocked_in_pipe_write(pid: int) -> bool:
+    """Whether a process sleeps in a write to a full pipe: Linux /proc/PID/wchan names the kernel
+    function ('anon_pipe_write' or 'pipe_write', by kernel version); where wchan is hidden
+    ('0' or unreadable), a sleeping process (state S in /proc/PID/stat) is taken for it."""
     try:
-        return Path(f"/proc/{pid}/wchan").read_text()
+        where = Path(f"/proc/{pid}/wchan").read_text()
     except OSError:
-        return ""
+        where = ""
+    if "pipe_write" in where:
+        return True
+    if where not in ("", "0"):
+        return False
+    try:
+        return Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()[0] == "S"
+    except (OSError, IndexError):
+        return False
 
 
 def test_sigterm_while_the_reader_of_stdout_has_stalled_still_stops_at_once(tmp_path, big_container_file):
@@ -355,8 +364,7 @@ def test_sigterm_while_the_reader_of_stdout_has_stalled_still_stops_at_once(tmp_
     proc = subprocess.Popen([*bitmend_command(), "decode", str(big_container_file), "--report", str(report)],
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, preexec_fn=restore_default_signals)
     try:  # nobody reads stdout: the decoder fills the pipe and waits in write()
-        wait_for(lambda: part_files(tmp_path) and ("pipe_write" in wchan(proc.pid) or wchan(proc.pid) in ("", "0")),
-                 "a write blocked on the full pipe")
+        wait_for(lambda: part_files(tmp_path) and blocked_in_pipe_write(proc.pid), "a write blocked on the full pipe")
         proc.send_signal(signal.SIGTERM)
         code = proc.wait(TIMEOUT)
         err = proc.stderr.read().decode()
@@ -372,6 +380,43 @@ def test_sigterm_while_the_reader_of_stdout_has_stalled_still_stops_at_once(tmp_
     assert summary["stopped"] == "SIGTERM" and summary["complete"] is False
     assert 0 <= summary["bytes_written"] < 300_000
     assert part_files(tmp_path) == []
+
+
+def test_a_second_signal_ends_a_cleanup_that_hangs_and_still_removes_the_temp_file(tmp_path):
+    # a report into a FIFO whose reader never reads: the decoder fills it and waits; after
+    # SIGTERM the summary line would wait for ever, and SIGHUP ends the process at once
+    data = random_bytes(20_000, 93)
+    source = tmp_path / "tiny-frames.bmd"
+    source.write_bytes(encode_bytes(data, frame_bytes=64))  # 313 frames: report lines fill 64 KiB
+    fifo, target = tmp_path / "report.fifo", tmp_path / "station.log"
+    os.mkfifo(fifo)
+    release = threading.Event()
+
+    def idle_reader() -> None:
+        with open(fifo, "rb"):
+            release.wait(TIMEOUT)
+
+    thread = threading.Thread(target=idle_reader, daemon=True)
+    thread.start()
+    proc = subprocess.Popen([*bitmend_command(), "decode", str(source), "-o", str(target), "--report", str(fifo)],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, preexec_fn=restore_default_signals)
+    try:
+        blocked = lambda: part_files(tmp_path) and blocked_in_pipe_write(proc.pid)  # noqa: E731
+        wait_for(blocked, "the report write blocked on the full FIFO")
+        proc.send_signal(signal.SIGTERM)
+        wait_for(blocked, "the cleanup blocked on the full FIFO")
+        proc.send_signal(signal.SIGHUP)
+        code = proc.wait(TIMEOUT)
+    finally:
+        release.set()
+        if proc.poll() is None:
+            proc.kill()
+            proc.wait(TIMEOUT)
+        proc.stdout.close()
+        proc.stderr.close()
+        thread.join(TIMEOUT)
+    assert code in (129, 143)  # SIGHUP's status; SIGTERM's if both were handled in one go
+    assert part_files(tmp_path) == [] and not target.exists()
 
 
 def test_a_signal_inside_a_deferred_block_is_raised_when_the_block_ends(monkeypatch):
