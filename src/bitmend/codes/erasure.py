@@ -140,17 +140,21 @@ def _symbol_array(symbols: object, count: int, size: int | None, what: str) -> n
     views = [_as_bytes(row, what) for row in rows]
     longest = max((v.size for v in views), default=0)
     size = longest if size is None else size
-    if views and all(v.size == size for v in views):
-        return np.stack(views)  # the common case: nothing to pad
     if longest > size:
         raise ErasureCodeError(f"{what}: a symbol of {longest} bytes is longer than the symbol size {size}")
-    out = np.zeros((count, size), dtype=np.uint8)
+    out = np.empty((count, size), dtype=np.uint8)
     for row, v in zip(out, views):
-        row[: v.size] = v
+        if v.size == size:
+            row[:] = v
+        else:
+            row[: v.size] = v
+            row[v.size:] = 0
     return out
 
 
 def _as_bytes(symbol: object, what: str) -> np.ndarray:
+    if type(symbol) is np.ndarray and symbol.dtype == np.uint8 and symbol.ndim == 1:
+        return symbol  # the common case, checked first
     if isinstance(symbol, np.ndarray):
         if symbol.ndim != 1 or symbol.dtype != np.uint8:
             raise ErasureCodeError(f"{what}: a symbol must be bytes or a 1-D uint8 array, "
