@@ -16,7 +16,7 @@ import io
 import json
 import os
 import sys
-from contextlib import contextmanager
+from contextlib import contextmanager, nullcontext
 from typing import BinaryIO, Callable, Iterator, Optional
 
 import typer
@@ -375,7 +375,9 @@ def encode(
         if output_udp is not None:
             _check_fits_datagram(chosen, depth, frame_bytes)
         if source_udp is not None:
-            _encode_datagrams(source_udp, output, output_udp, code or chosen, depth, frame_bytes, idle, repair, delay)
+            with outputs.deferred_signals():  # a signal ends the datagram input; the run finishes cleanly
+                _encode_datagrams(source_udp, output, output_udp, code or chosen, depth, frame_bytes, idle, repair,
+                                  delay)
             return
         with _open_input(source) as inp, _open_data_output(output, output_udp) as out:
             with _progress("encoding", _input_size(inp), True) as tick:
@@ -384,6 +386,13 @@ def encode(
                         pump_records(inp, enc, records, tick, max_delay=delay)
                     else:
                         pump_encode(inp, enc, delay, tick)
+
+
+def _signal_taken() -> Optional[str]:
+    """A SIGINT/SIGTERM held by outputs.deferred_signals(), taken as the end of a datagram
+    input: the run then finishes normally, with its summary and report."""
+    signum = outputs.take_pending_signal()
+    return outputs.signal_name(signum) if signum is not None else None
 
 
 def _say_listening(receiver) -> None:
@@ -442,7 +451,7 @@ def _encode_datagrams(endpoint, output: Optional[str], output_udp, code, depth: 
     from bitmend.api import Encoder
     from bitmend.datagrams import DatagramReceiver
 
-    receiver = DatagramReceiver(endpoint, idle, ticks=True)
+    receiver = DatagramReceiver(endpoint, idle, ticks=True, stop_requested=_signal_taken)
     _say_listening(receiver)
     refused = 0
     group_since: Optional[float] = None
@@ -511,7 +520,9 @@ def decode(
             raise CliError(f"--on-error must be one of {', '.join(ON_ERROR_CHOICES)}, got {on_error!r}", EXIT_USAGE)
         outputs.check_distinct({"-o": output or "-", "--report": report})
         if record_mode or source_udp is not None:
-            _decode_records(source, source_udp, output, output_udp, report, on_error, records, idle, quiet)
+            with (outputs.deferred_signals() if source_udp is not None else nullcontext()):
+                # with a datagram input, a signal ends the input and the run finishes cleanly
+                _decode_records(source, source_udp, output, output_udp, report, on_error, records, idle, quiet)
             return
         stopped: DamagedDataError | None = None
         report_file = None
@@ -548,22 +559,20 @@ def _decode_records(source: str, source_udp, output: Optional[str], output_udp, 
                     on_error: str, framing: Optional[str], idle: Optional[float], quiet: bool) -> None:
     """decode in record mode (--records, or datagrams in or out): each verified frame's data
     is one record, written in its framing or sent as one datagram; lost records are left out."""
-    from contextlib import nullcontext
-
     from bitmend.container.assembler import DamagedDataError
-    from bitmend.records import RecordReader, _record_assembler, framed
+    from bitmend.records import RecordReader, record_assembler, framed
 
     receiver = None
     if source_udp is not None:
         from bitmend.datagrams import DatagramReceiver
 
-        receiver = DatagramReceiver(source_udp, idle)
+        receiver = DatagramReceiver(source_udp, idle, stop_requested=_signal_taken)
         _say_listening(receiver)
     stopped: DamagedDataError | None = None
     report_file = None
     with (nullcontext(None) if receiver is not None else _open_input(source)) as inp:
         on_frame = (lambda r: report_file.write_text(r.to_json() + "\n")) if report else None
-        reader = RecordReader(_record_assembler(receiver if receiver is not None else inp, on_error), on_frame,
+        reader = RecordReader(record_assembler(receiver if receiver is not None else inp, on_error), on_frame,
                               keep_frame_reports=False)
         with _open_data_output(output, output_udp) as out, \
                 _open_side_file(report, "report", lambda failure: _report_end(reader, out, failure)) as report_file:

@@ -1,8 +1,9 @@
 """Datagram endpoints: `udp:HOST:PORT` as an input (bound and listened on) or an output (sent to).
 
 Each datagram received is one record; each frame or record sent is one datagram. A receiver
-runs until `--idle` seconds pass without a datagram, or until SIGINT/SIGTERM, which end it
-like the end of a file: what arrived is delivered and the summary and report are written.
+runs until `--idle` seconds pass without a datagram, or until its caller asks it to stop (the
+CLI does on SIGINT/SIGTERM), which ends it like the end of a file: what arrived is delivered
+and the summary and report are written.
 """
 
 from __future__ import annotations
@@ -10,9 +11,7 @@ from __future__ import annotations
 import select
 import socket
 from dataclasses import dataclass
-from typing import Iterator
-
-from bitmend import outputs
+from typing import Callable, Iterator
 
 MAX_DATAGRAM = 65507  # the largest UDP payload over IPv4
 POLL_SECONDS = 0.2  # how often a waiting receiver looks for a stop request
@@ -59,12 +58,15 @@ def _socket_for(endpoint: UdpEndpoint) -> socket.socket:
 class DatagramReceiver:
     """Datagrams arriving at a bound address, as an iterator of bytes."""
 
-    def __init__(self, endpoint: UdpEndpoint, idle: float | None = None, ticks: bool = False) -> None:
+    def __init__(self, endpoint: UdpEndpoint, idle: float | None = None, ticks: bool = False,
+                 stop_requested: Callable[[], str | None] | None = None) -> None:
         """ticks: also yield None at every poll without a datagram (about every 0.2 s), so
-        the caller can act on its own deadlines."""
+        the caller can act on its own deadlines. stop_requested, asked at every poll, names
+        a reason to end (a signal the caller caught) or returns None."""
         self.endpoint = endpoint
         self.idle = idle
         self.ticks = ticks
+        self._stop_requested = stop_requested
         self.received = 0
         self.stopped_by: str | None = None  # the signal that ended the run, if one did
         self._sock = _socket_for(endpoint)
@@ -80,30 +82,29 @@ class DatagramReceiver:
         import time
 
         last = time.monotonic()
-        with outputs.deferred_signals():
-            try:
-                while True:
-                    signum = outputs.take_pending_signal()
-                    if signum is not None:
-                        self.stopped_by = outputs.signal_name(signum)
+        try:
+            while True:
+                reason = self._stop_requested() if self._stop_requested is not None else None
+                if reason is not None:
+                    self.stopped_by = reason
+                    return
+                wait = POLL_SECONDS
+                if self.idle is not None:
+                    left = last + self.idle - time.monotonic()
+                    if left <= 0:
                         return
-                    wait = POLL_SECONDS
-                    if self.idle is not None:
-                        left = last + self.idle - time.monotonic()
-                        if left <= 0:
-                            return
-                        wait = min(wait, left)
-                    ready, _, _ = select.select([self._sock], [], [], wait)
-                    if not ready:
-                        if self.ticks:
-                            yield None
-                        continue
-                    data = self._sock.recv(MAX_DATAGRAM + 1)
-                    last = time.monotonic()
-                    self.received += 1
-                    yield data
-            finally:
-                self._sock.close()
+                    wait = min(wait, left)
+                ready, _, _ = select.select([self._sock], [], [], wait)
+                if not ready:
+                    if self.ticks:
+                        yield None
+                    continue
+                data = self._sock.recv(MAX_DATAGRAM + 1)
+                last = time.monotonic()
+                self.received += 1
+                yield data
+        finally:
+            self._sock.close()
 
     def close(self) -> None:
         self._sock.close()

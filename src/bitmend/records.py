@@ -218,7 +218,7 @@ class RecordReader:
         return self._assembler.scanner.bytes_read
 
 
-def _record_assembler(source, on_error: str) -> Assembler:
+def record_assembler(source, on_error: str) -> Assembler:
     if on_error not in RECORD_ON_ERROR:
         raise ValueError(f"on_error for records must be one of {', '.join(RECORD_ON_ERROR)} "
                          f"(a zero-filled record would be an invented one), got {on_error!r}")
@@ -234,7 +234,7 @@ def decode_records(source: Iterable[bytes] | BinaryIO | bytes, on_error: str = "
                    on_frame: Callable[[FrameReport], None] | None = None) -> RecordReader:
     """The records of a protected stream: `source` is an iterable of blobs (datagrams, or
     the blobs encode_records gave), a binary file, or one container in memory."""
-    return RecordReader(_record_assembler(source, on_error), on_frame)
+    return RecordReader(record_assembler(source, on_error), on_frame)
 
 
 def pump_records(source: BinaryIO, encoder, framing: str, progress: Callable[[int], None] | None = None,
