@@ -146,6 +146,33 @@ def test_interrupted_sweep_keeps_the_finished_points_and_the_finished_part_of_th
     assert sweep.values == pytest.approx((1e-2, 1e-2 * 3 ** 0.5))
 
 
+def test_a_scheduler_without_workers_is_a_campaign_error():
+    from distributed import LocalCluster
+
+    with LocalCluster(n_workers=0, processes=False, dashboard_address=None, silence_logs=logging.ERROR) as cluster:
+        with pytest.raises(cmp.CampaignError, match="has no workers"):
+            cmp.campaign(CODE, DEPTH, BSC, BITS, seed=1, frame_bytes=FRAME_BYTES, scheduler=cluster.scheduler_address,
+                         connect_timeout=1)
+
+
+def test_a_unit_failing_on_the_cluster_is_a_campaign_error_naming_the_unit(monkeypatch):
+    from distributed import LocalCluster
+
+    real = cmp.run_unit
+
+    def fail_third(job, index, frames):
+        if index == 2:
+            raise MemoryError("worker ran out")
+        return real(job, index, frames)
+
+    monkeypatch.setattr(cmp, "run_unit", fail_third)  # threads in this process: the workers see the patch
+    with LocalCluster(n_workers=1, threads_per_worker=1, processes=False, dashboard_address=None,
+                      silence_logs=logging.ERROR) as cluster:
+        with pytest.raises(cmp.CampaignError, match="work unit 2 failed on the cluster: MemoryError: worker ran out"):
+            cmp.campaign(CODE, DEPTH, BSC, BITS, seed=1, frame_bytes=FRAME_BYTES, unit_frames=UNIT_FRAMES,
+                         scheduler=cluster.scheduler_address, connect_timeout=10)
+
+
 def test_cli_interrupted_campaign_prints_what_it_measured_and_exits_130(monkeypatch, capsys):
     from bitmend import cli
 

@@ -329,17 +329,20 @@ def _connect(address: str, timeout: float):
 def open_runner(workers: int = 1, scheduler: str | None = None,
                 connect_timeout: float = CONNECT_TIMEOUT) -> Iterator[InProcess | OnDask]:
     """Where units run: this process (workers=1, no scheduler), a LocalCluster of `workers`
-    processes started here and closed on the way out, or the cluster at `scheduler`."""
+    processes started here and closed on the way out, or the cluster at `scheduler`.
+    (Local workers are spawned processes: a script that starts them needs the usual
+    `if __name__ == "__main__":` guard.)"""
     if scheduler is not None:
         address = check_scheduler_address(scheduler)
         client = _connect(address, connect_timeout)
         try:
             if not client.scheduler_info().get("workers"):
-                client.wait_for_workers(1, timeout=connect_timeout)
+                try:
+                    client.wait_for_workers(1, timeout=connect_timeout)
+                except TimeoutError:
+                    raise CampaignError(f"the Dask scheduler at {address} has no workers "
+                                        f"(waited {connect_timeout:g} s)") from None
             yield OnDask(client)
-        except TimeoutError:
-            raise CampaignError(f"the Dask scheduler at {address} has no workers "
-                                f"(waited {connect_timeout:g} s)") from None
         finally:
             client.close()
         return
@@ -352,8 +355,11 @@ def open_runner(workers: int = 1, scheduler: str | None = None,
 
     # processes, one thread each: the trial loop holds the GIL for much of its time
     with _workers_ignore_sigint():
-        cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, host="127.0.0.1",
-                               dashboard_address=None, silence_logs=logging.ERROR)
+        try:
+            cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, host="127.0.0.1",
+                                   dashboard_address=None, silence_logs=logging.ERROR)
+        except Exception as exc:  # e.g. a script calling this without `if __name__ == "__main__":`
+            raise CampaignError(f"could not start {workers} local workers: {type(exc).__name__}: {exc}") from None
     with cluster, Client(cluster, timeout=connect_timeout, set_as_default=False) as client:
         yield OnDask(client)
 
