@@ -39,9 +39,11 @@ Rebuilding: with sources Kn known, sources E lost (e = |E|) and e repair symbols
     C[Rr, E] s_E = p_Rr + C[Rr, Kn] s_Kn      so      s_E = D^-1 (p_Rr + C[Rr, Kn] s_Kn),
 
 D = C[Rr, E] (a Cauchy matrix, invertible). The e x K recovery matrix
-[D^-1 C[Rr, Kn] | D^-1] over the stacked symbols (s_Kn, p_Rr) is computed once per
-pattern of arrived symbols and cached; the bytes go through the same kernel as encoding
-(kernels/erasure.py compiled, kernels/erasure_small.py in numpy for small work).
+[D^-1 C[Rr, Kn] | D^-1] over the stacked symbols (s_Kn, p_Rr) is computed per group by
+the compiled kernel (kernels/erasure.recovery_masks, Gauss-Jordan on D, no Python per
+group), or, on the numpy path for small work, in Python once per pattern of arrived
+symbols and cached. The bytes go through the same kernel as encoding (combine_rows,
+compiled in kernels/erasure.py, its numpy twin in kernels/erasure_small.py).
 
 The code does no I/O and knows nothing of frames or containers.
 """
@@ -49,10 +51,10 @@ The code does no I/O and knows nothing of frames or containers.
 from __future__ import annotations
 
 import sys
-from types import ModuleType
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from functools import lru_cache
+from types import ModuleType
 from typing import Union
 
 import numpy as np
