@@ -120,6 +120,28 @@ def test_interrupted_campaign_carries_what_the_finished_units_measured():
     assert seen[-1].block_error == two_units.block_error
 
 
+def test_a_1e12_bit_campaign_allocates_nothing_in_proportion_to_its_size():
+    import tracemalloc
+
+    def stop_after_two(snapshot: cmp.CampaignProgress) -> None:
+        if snapshot.units_done == 2:
+            raise KeyboardInterrupt
+
+    cmp.campaign(CODE, DEPTH, BSC, 8 * FRAME_BYTES, seed=3, frame_bytes=FRAME_BYTES)  # imports and tables first
+    tracemalloc.start()
+    try:
+        with pytest.raises(cmp.CampaignInterrupted) as stopped:
+            # 122 million units of one frame: a list or an array per unit would take gigabytes
+            cmp.campaign(CODE, DEPTH, BSC, 10 ** 12, seed=3, frame_bytes=FRAME_BYTES, unit_frames=1,
+                         progress=stop_after_two)
+        peak = tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+    assert stopped.value.partial.frames == 2
+    assert f"of {-(-10 ** 12 // (8 * FRAME_BYTES)):,} frames measured" in stopped.value.partial.notes[-1]
+    assert peak < 8 << 20, peak
+
+
 def test_interrupt_before_any_unit_finishes_carries_no_partial_result(monkeypatch):
     def stop(*args):
         raise KeyboardInterrupt
