@@ -51,10 +51,11 @@ from bitmend.simulate import MAX_BITS, Measured, SimulationResult, SweepResult, 
 UNIT_STREAM = 0xCA11  # spawn-key prefix of unit seeds, apart from the data's and the channel stages' keys
 UNIT_BITS = 1 << 27  # default payload bits per work unit: ~1-5 s of one core, far above Dask's per-task cost
 IN_FLIGHT_PER_WORKER = 4  # units submitted ahead per worker: keeps workers busy, bounds memory
-CONNECT_TIMEOUT = 10.0  # seconds to reach a scheduler (and for a local cluster to start)
+CONNECT_TIMEOUT = 10.0  # seconds for a scheduler to answer (and for the client of a local cluster)
 
 # fields of SimulationResult that add up over units; every Measured field adds its events and
-# trials; every other field must be the same in every unit (code, theory, notes...)
+# trials (and its batch sums); notes are kept where every unit agrees; every other field must
+# be the same in every unit (code, depth, theory...)
 ADDITIVE = ("frames", "blocks", "payload_bits", "coded_bits")
 # the rate each batch tally of a SimulationResult belongs to (SimulationResult.tallies)
 TALLY_OF = {"bit_error": "bits", "block_error": "blocks", "detected": "detected", "undetected": "undetected",
