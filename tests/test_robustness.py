@@ -220,3 +220,16 @@ def test_random_damage_never_crashes_and_never_passes_off_bad_data(data, code, d
     assert_verified_frames_are_true(result, data, frame_bytes)
     if not damage:
         assert result.data == data and result.report.complete
+
+
+def test_skipped_bytes_count_every_byte_outside_frames_in_megabytes_of_garbage():
+    # the count used to stop at the last false marker match in the garbage (20 MB of garbage
+    # was reported as 884,057 bytes): every byte before, between and after frames counts
+    rng = np.random.default_rng(20)
+    before, between, after = (rng.integers(0, 256, size, dtype=np.uint8).tobytes()
+                              for size in (3 << 20, 1 << 20, (1 << 20) + 5))
+    first = bitmend.encode_bytes(b"gauge 7 stage 1.42m\n" * 40, frame_bytes=300)
+    second = bitmend.encode_bytes(b"gauge 8 stage 0.97m\n" * 40, frame_bytes=300)
+    result = bitmend.decode_bytes(before + first + between + second + after)
+    assert result.data == b"gauge 7 stage 1.42m\n" * 40 + b"gauge 8 stage 0.97m\n" * 40
+    assert result.report.summary.skipped_bytes == len(before) + len(between) + len(after)
