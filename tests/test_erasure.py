@@ -56,7 +56,7 @@ def test_matrix_is_the_cauchy_matrix_one_over_xi_plus_yj_computed_by_galois(k, r
 
 
 def test_format_doc_example_bytes_are_fixed():
-    # the example in docs/FORMAT.md, "The erasure code of repair frames": part of the file
+    # the example in docs/FORMAT.md, "Repair code": part of the file
     # format, so a change of construction fails here
     assert cauchy_matrix(4, 2).tolist() == [[253, 126, 255, 127], [126, 253, 127, 255]]
     repair = erasure_code(3, 2).repair_symbols([b"gauge", b"7", b"ok"])
