@@ -936,4 +936,5 @@ def main() -> None:
         else:  # last resort: never a traceback
             typer.echo(f"bitmend: internal error: {type(exc).__name__}: {exc}", err=True)
             code = EXIT_UNREADABLE
+    outputs.remove_temp_files()  # only a signal between a temp file's birth and its owner leaves one here
     raise SystemExit(code if isinstance(code, int) else EXIT_OK)
