@@ -66,6 +66,17 @@ def char_device(path: Path, major: int, minor: int) -> Path:
     return path
 
 
+def unblock_fifo_reader(fifo: Path, thread: threading.Thread) -> None:
+    """If a reader thread still waits in open() (the writer never came), open the FIFO's other
+    end for a moment so that it gets end-of-file and ends."""
+    if thread.is_alive():
+        try:
+            os.close(os.open(fifo, os.O_WRONLY | os.O_NONBLOCK))
+        except OSError:
+            pass
+        thread.join(TIMEOUT)
+
+
 def part_files(folder: Path) -> list[str]:
     return sorted(p.name for p in folder.iterdir() if p.name.endswith(".part"))
 
@@ -205,9 +216,12 @@ def test_a_fifo_output_is_written_directly_to_its_reader(tmp_path, container_fil
 
     thread = threading.Thread(target=reader, daemon=True)
     thread.start()
-    run = run_cli("decode", str(container_file), "-o", str(fifo), "--quiet")
-    thread.join(TIMEOUT)
-    assert not thread.is_alive(), "the FIFO's reader never saw the end of the data"
+    try:
+        run = run_cli("decode", str(container_file), "-o", str(fifo), "--quiet")
+        thread.join(TIMEOUT)
+        assert not thread.is_alive(), "the FIFO's reader never saw the end of the data"
+    finally:
+        unblock_fifo_reader(fifo, thread)
     assert run.code == 0, run.err
     assert received == [data]
     assert stat.S_ISFIFO(fifo.lstat().st_mode) and part_files(tmp_path) == []
@@ -414,7 +428,7 @@ def test_a_second_signal_ends_a_cleanup_that_hangs_and_still_removes_the_temp_fi
             proc.wait(TIMEOUT)
         proc.stdout.close()
         proc.stderr.close()
-        thread.join(TIMEOUT)
+        unblock_fifo_reader(fifo, thread)
     assert code in (129, 143)  # SIGHUP's status; SIGTERM's if both were handled in one go
     assert part_files(tmp_path) == [] and not target.exists()
 
@@ -515,8 +529,11 @@ def test_a_fifo_whose_reader_goes_away_is_one_line_naming_it_and_exit_141(tmp_pa
 
     thread = threading.Thread(target=reader, daemon=True)
     thread.start()
-    run = run_cli("decode", str(big_container_file), "-o", str(fifo), "--quiet")
-    thread.join(TIMEOUT)
+    try:
+        run = run_cli("decode", str(big_container_file), "-o", str(fifo), "--quiet")
+        thread.join(TIMEOUT)
+    finally:
+        unblock_fifo_reader(fifo, thread)
     line = assert_one_line(run, BROKEN_PIPE_EXIT)
     assert str(fifo) in line and "broken pipe" in line
 
