@@ -7,12 +7,12 @@ that drops, duplicates and reorders datagrams; every loop and wait is bounded.""
 from __future__ import annotations
 
 import json
-import random
 import select
 import signal
 import socket
 import struct
 import subprocess
+import sys
 import time
 
 import pytest
@@ -22,7 +22,10 @@ from hypothesis import strategies as st
 import bitmend
 from bitmend.records import RecordError, RecordSplitter, framed
 
-from conftest import bitmend_command, flip_run, run_cli
+from conftest import REPO_ROOT, bitmend_command, flip_run, run_cli
+
+sys.path.insert(0, str(REPO_ROOT / "tools"))
+from udp_relay import Relay  # noqa: E402  (the seeded relay of tools/, shared with a benchmark)
 
 WAIT = 60.0
 
@@ -136,49 +139,6 @@ def _free_port() -> int:
     with socket.socket(socket.AF_INET, socket.SOCK_DGRAM) as s:
         s.bind(("127.0.0.1", 0))
         return s.getsockname()[1]
-
-
-class Relay:
-    """A seeded datagram relay in the test: drops, duplicates and holds back datagrams
-    (reordering), then forwards them. Bounded: it stops after `idle` seconds of silence."""
-
-    def __init__(self, listen: int, forward: int, seed: int, drop: float, dup: float, hold: float) -> None:
-        self.rng = random.Random(seed)
-        self.sock = socket.socket(socket.AF_INET, socket.SOCK_DGRAM)
-        self.sock.bind(("127.0.0.1", listen))
-        self.forward = ("127.0.0.1", forward)
-        self.drop, self.dup, self.hold = drop, dup, hold
-        self.counts = {"in": 0, "dropped": 0, "duplicated": 0, "reordered": 0, "out": 0}
-
-    def run(self, idle: float = 3.0, limit: float = WAIT) -> None:
-        """Relay until `idle` seconds pass after the last datagram (the clock starts with the
-        first one, however long the sender takes to start), or `limit` seconds in all."""
-        held: list[bytes] = []
-        start = time.monotonic()
-        last = None
-        while (last is None or time.monotonic() - last < idle) and time.monotonic() - start < limit:
-            ready, _, _ = select.select([self.sock], [], [], 0.2)
-            if not ready:
-                continue
-            data = self.sock.recv(70000)
-            last = time.monotonic()
-            self.counts["in"] += 1
-            if self.rng.random() < self.drop:
-                self.counts["dropped"] += 1
-                continue
-            copies = [data, data] if self.rng.random() < self.dup else [data]
-            self.counts["duplicated"] += len(copies) - 1
-            if self.rng.random() < self.hold:
-                held += copies  # sent after the next datagram: out of order
-                self.counts["reordered"] += 1
-                continue
-            for d in copies + held:
-                self.sock.sendto(d, self.forward)
-                self.counts["out"] += 1
-            held = []
-        for d in held:
-            self.sock.sendto(d, self.forward)
-        self.sock.close()
 
 
 def test_datagrams_through_a_lossy_reordering_relay_are_delivered_in_order_once(tmp_path):

@@ -15,6 +15,7 @@ from typing import Callable, Iterator
 
 MAX_DATAGRAM = 65507  # the largest UDP payload over IPv4
 POLL_SECONDS = 0.2  # how often a waiting receiver looks for a stop request
+RECEIVE_BUFFER = 8 << 20  # bytes asked for the socket's receive buffer
 
 
 class EndpointError(ValueError):
@@ -70,6 +71,12 @@ class DatagramReceiver:
         self.received = 0
         self.stopped_by: str | None = None  # the signal that ended the run, if one did
         self._sock = _socket_for(endpoint)
+        try:
+            # a deep receive buffer rides out bursts while a frame is being decoded (the kernel
+            # caps the request at net.core.rmem_max)
+            self._sock.setsockopt(socket.SOL_SOCKET, socket.SO_RCVBUF, RECEIVE_BUFFER)
+        except OSError:
+            pass
         try:
             self._sock.bind(endpoint.address)
         except OSError as exc:
