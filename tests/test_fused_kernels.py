@@ -124,13 +124,14 @@ def test_fused_kernels_agree_with_the_numpy_twin_on_any_message_and_damage(name,
     assert out == twin_out and np.array_equal(status, twin_status)
 
 
-def test_short_codes_take_the_byte_table_path_and_long_codes_the_codeword_paths():
-    # the dispatch these tests rely on: both kinds of kernel are exercised above
-    assert _plan(get_code("hamming-7-4"), 1).kind == "linear"
-    assert _plan(get_code("golay-24-12"), 8).kind == "linear"
-    assert _plan(get_code("golay-24-12"), 1).kind == "depth1"
-    assert _plan(get_code("secded-72-64"), 8).kind == "octets"
-    assert _plan(get_code("hamming-7-4"), 16).kind == "octets"
+def test_each_code_and_depth_takes_the_kernel_chosen_for_it():
+    # the dispatch the tests above rely on, so that every kernel kind is exercised
+    kinds = {(name, depth): (_plan(get_code(name), depth).encode_kind, _plan(get_code(name), depth).decode_kind)
+             for name, depth in (("hamming-7-4", 1), ("golay-24-12", 8), ("golay-24-12", 1), ("secded-72-64", 8),
+                                 ("secded-72-64", 1), ("hamming-7-4", 16))}
+    assert kinds == {("hamming-7-4", 1): ("linear", "linear"), ("golay-24-12", 8): ("linear", "linear"),
+                     ("golay-24-12", 1): ("depth1", "depth1"), ("secded-72-64", 8): ("octets", "words"),
+                     ("secded-72-64", 1): ("words", "words"), ("hamming-7-4", 16): ("octets", "words")}
 
 
 def test_byte_transpose_moves_byte_j_of_row_i_to_byte_i_of_row_j():

@@ -93,7 +93,13 @@ def encode_segment(code: BinaryLinearCode, depth: int, message: bytes) -> bytes:
         return small.encode(message, code.P, depth, lay.groups)
     if depth == 1 or depth % 8 == 0:
         return _encode_fused(code, lay, message)
-    bitfields, blockcode = kernels
+    return _encode_words(code, lay, message)
+
+
+def _encode_words(code: BinaryLinearCode, lay: SegmentLayout, message: bytes) -> bytes:
+    """encode_segment through kernels.blockcode (any depth)."""
+    bitfields, blockcode = compiled(lay.coded_bits)
+    depth = lay.depth
     source = bitfields.to_words(message, lay.blocks * code.k)
     out = bitfields.empty_words(lay.coded_bits)
     for first, groups in _chunks(lay):
@@ -119,8 +125,15 @@ def decode_segment(code: BinaryLinearCode, depth: int, coded: bytes | np.ndarray
         return small.decode(raw[: lay.coded_bytes], code.P, depth, lay.groups, lead_m, weight, message_bytes)
     if depth == 1 or depth % 8 == 0:
         return _decode_fused(code, lay, raw, message_bytes)
+    return _decode_words(code, lay, raw, message_bytes)
+
+
+def _decode_words(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
+                  message_bytes: int) -> tuple[bytes, np.ndarray]:
+    """decode_segment through kernels.blockcode (any depth)."""
+    depth = lay.depth
     lead_m, lead_p, weight = code.leader_tables
-    bitfields, blockcode = kernels
+    bitfields, blockcode = compiled(lay.coded_bits)
     source = bitfields.to_words(raw[: lay.coded_bytes], lay.coded_bits)
     out = bitfields.empty_words(lay.blocks * code.k)
     status = [blockcode.decode_run(source[first * depth * code.n // 64:], code.k, code.r, depth, groups * depth,
@@ -135,18 +148,23 @@ def decode_segment(code: BinaryLinearCode, depth: int, coded: bytes | np.ndarray
 # An octet is 8 consecutive codewords: k message bytes in, n coded bytes out, both at depth 1
 # (codewords concatenated) and at depth 8 (byte j of the octet is bit j of its 8 codewords).
 # Short codes (n <= LINEAR_MAX_N[depth]) treat an octet as one linear map of its bytes
-# (kernels.fused.encode_linear / decode_linear, tables of at most 147 KiB); longer codes
-# go codeword by codeword (depth 1) or by 8x8 transposes (depths 8L).
+# (kernels.fused.encode_linear / decode_linear, tables of at most 147 KiB); golay codes at
+# depth 1 go codeword by codeword, encoding at depths 8L by 8x8 transposes; the rest
+# (long codes at depth 1, decoding at depths 8L beyond the tables) through kernels.blockcode.
 
 LINEAR_MAX_N = {1: 16, 8: 24}  # per depth: measured faster than the codeword kernels up to this n
+SHORT_N = 24
 TABLE_MESSAGE_BITS = 12  # a message of up to 12 bits finds its parity in one lookup
 
 
 @dataclass(frozen=True)
 class _Plan:
-    """How one code at one depth runs through kernels.fused, with its tables."""
+    """How one code at one depth runs, with its tables. Kinds: "linear" (byte tables of
+    the octet map), "depth1" (codeword by codeword), "octets" (8x8 transposes) in
+    kernels.fused, or "words" (kernels.blockcode, through byte-swapped word buffers)."""
 
-    kind: str  # "linear", "depth1" or "octets"
+    encode_kind: str
+    decode_kind: str
     encode_table: np.ndarray  # linear: (k, 256, words); else the parity table (chunks, 2^chunk_bits)
     decode_table: np.ndarray  # linear: (n, 256, words); else unused
     syndrome_mask: np.ndarray
@@ -160,8 +178,8 @@ def _plan(code: BinaryLinearCode, depth: int) -> _Plan:
     lead_m, _, weight = code.leader_tables
     if code.n <= LINEAR_MAX_N.get(depth, 0):
         encode, decode, mask = _linear_tables(code, depth)
-        return _Plan("linear", encode, decode, mask, 0, lead_m, weight)
-    k = code.k
+        return _Plan("linear", "linear", encode, decode, mask, 0, lead_m, weight)
+    k, n = code.k, code.n
     chunked = code.parity_table
     if k <= TABLE_MESSAGE_BITS:  # one lookup: the parity of every k-bit message
         values = np.arange(1 << k, dtype=np.uint64)
@@ -172,7 +190,14 @@ def _plan(code: BinaryLinearCode, depth: int) -> _Plan:
     else:
         ptab, chunk_bits = chunked, 8
     empty = np.zeros(1, dtype=np.uint64)
-    return _Plan("depth1" if depth == 1 else "octets", ptab, empty, empty, chunk_bits, lead_m, weight)
+    # measured on 16388-byte segments (one core, A/B in one process): codes longer than
+    # SHORT_N ran faster at depth 1 through kernels.blockcode (its whole-buffer byte swap
+    # beats a swap per field), and so did decoding at depths 8L; encode_octets beat it by
+    # 1.2x to 1.7x at depth 8
+    if depth == 1:
+        kind = "depth1" if n <= SHORT_N else "words"
+        return _Plan(kind, kind, ptab, empty, empty, chunk_bits, lead_m, weight)
+    return _Plan("octets", "words", ptab, empty, empty, chunk_bits, lead_m, weight)
 
 
 def _octet_position(q: int, j: int, n: int, depth: int) -> int:
@@ -250,12 +275,14 @@ def _encode_fused(code: BinaryLinearCode, lay: SegmentLayout, message: bytes) ->
     fused = _fused()
     plan = _plan(code, lay.depth)
     k, n = code.k, code.n
-    if plan.kind == "linear":
+    if plan.encode_kind == "words":
+        return _encode_words(code, lay, message)
+    if plan.encode_kind == "linear":
         octets = -(-lay.blocks // 8)
         out = _native(octets * 8 * n)
         raw = np.frombuffer(message, dtype=np.uint8) if not isinstance(message, np.ndarray) else message
         fused.encode_linear(raw, len(raw), octets, k, n, plan.encode_table, out)
-    elif plan.kind == "depth1":
+    elif plan.encode_kind == "depth1":
         src = fused.native_words(message, lay.blocks * k)
         out = _native(lay.coded_bits)
         fused.encode_depth1(src, lay.blocks, k, code.r, plan.encode_table, plan.chunk_bits, out)
@@ -271,24 +298,21 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
     fused = _fused()
     plan = _plan(code, lay.depth)
     k, n = code.k, code.n
-    if plan.kind == "linear":
+    if plan.decode_kind == "words":
+        return _decode_words(code, lay, raw, message_bytes)
+    if plan.decode_kind == "linear":
         octets = -(-lay.blocks // 8)
         status = np.zeros(8 * octets, dtype=np.uint8)
         out = _native(octets * 8 * k)
         fused.decode_linear(raw, min(len(raw), lay.coded_bytes), octets, k, n, plan.decode_table,
                             plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, out)
         status = status[: lay.blocks]
-    else:
+    else:  # depth1
         status = np.zeros(lay.blocks, dtype=np.uint8)
         src = fused.native_words(raw[: lay.coded_bytes], lay.coded_bits)
         out = _native(lay.blocks * k)
-        if plan.kind == "depth1":
-            fused.decode_depth1(src, lay.blocks, k, code.r, plan.encode_table, plan.chunk_bits,
-                                plan.leader_message, plan.leader_weight, status, out)
-        else:
-            fused.decode_octets(src, lay.groups, lay.depth // 8, k, code.r,
-                                plan.encode_table, plan.chunk_bits, plan.leader_message, plan.leader_weight,
-                                status, out)
+        fused.decode_depth1(src, lay.blocks, k, code.r, plan.encode_table, plan.chunk_bits, plan.leader_message,
+                            plan.leader_weight, status, out)
     return memoryview(out).cast("B")[:message_bytes].tobytes(), status
 
 
