@@ -300,14 +300,38 @@ def check_scheduler_address(address: str) -> str:
     return full
 
 
+def _probe(address: str, timeout: float) -> None:
+    """CampaignError at once if nothing accepts a TCP connection at a tcp:// address.
+
+    A refused port or an unknown host is the common mistake; finding it with a plain socket
+    keeps a Dask Client (which retries until its timeout, then complains again from its
+    finaliser) out of it."""
+    import socket
+
+    from distributed.comm.addressing import parse_address, parse_host_port
+
+    scheme, location = parse_address(address)
+    if scheme != "tcp":
+        return
+    host, port = parse_host_port(location)
+    try:
+        with socket.create_connection((host, port), timeout=timeout):
+            pass
+    except OSError as exc:
+        reason = exc.strerror or type(exc).__name__  # (a timeout has no strerror)
+        raise CampaignError(f"cannot reach a Dask scheduler at {address}: {reason}") from None
+
+
 def _connect(address: str, timeout: float):
     """A Client on the scheduler at address, or CampaignError within about `timeout` seconds.
 
     The Client is made in a helper thread because its handshake can wait without end on a
     port where something other than a scheduler listens; a Client that failed half-way
-    complains from its finaliser, which is silenced (the error is reported here, once)."""
+    complains from its finaliser, which is then silenced (the error is reported here, once,
+    and the process is expected to end soon after)."""
     from distributed import Client
 
+    _probe(address, timeout)
     box: dict = {}
 
     def attempt() -> None:
