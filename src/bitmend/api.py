@@ -20,10 +20,11 @@ from bitmend.codes.linear import BinaryLinearCode, CodeDefinitionError
 from bitmend.container.assembler import Assembler, DamagedDataError, NotAContainerError
 from bitmend.container.format import DEFAULT_FRAME_BYTES
 from bitmend.container.writer import FrameWriter
+from bitmend.keyfile import MIN_KEY_BYTES, KeyFileError, load_key_file
 from bitmend.report import DecodeReport, FrameReport, Summary
 
 __all__ = ["open", "Encoder", "Decoder", "encode_bytes", "decode_bytes", "Decoded", "load_code_file",
-           "NotAContainerError", "DamagedDataError"]
+           "load_key_file", "KeyFileError", "NotAContainerError", "DamagedDataError"]
 
 PathOrFile = str | os.PathLike | BinaryIO
 CodeChoice = str | BinaryLinearCode  # a catalog name, or a code object (custom codes travel in the frames)
@@ -42,17 +43,32 @@ def load_code_file(path: str | os.PathLike) -> BinaryLinearCode:
     return parse_code_definition(text, source=os.fspath(path))
 
 
+def _checked_key(key: bytes | None) -> bytes | None:
+    """A key as bytes, refused when shorter than 16 bytes (keyfile.MIN_KEY_BYTES)."""
+    if key is None:
+        return None
+    if not isinstance(key, (bytes, bytearray, memoryview)):
+        raise TypeError(f"a key is bytes, got {type(key).__name__} (bitmend.load_key_file reads a key file)")
+    key = bytes(key)
+    if len(key) < MIN_KEY_BYTES:
+        raise ValueError(f"a key must be at least {MIN_KEY_BYTES} bytes, got {len(key)}")
+    return key
+
+
 class Encoder(io.BufferedIOBase):
     """Writable binary file object: bytes written are framed, coded and sent to fileobj."""
 
     def __init__(self, fileobj: BinaryIO, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
                  frame_bytes: int = DEFAULT_FRAME_BYTES, close_fileobj: bool = False,
-                 stream_id: int | None = None, repair: str | tuple[int, int] | None = None) -> None:
+                 stream_id: int | None = None, repair: str | tuple[int, int] | None = None,
+                 key: bytes | None = None) -> None:
         """repair: 'R/K' (or (R, K)): R repair frames after every K data frames, so that any
-        R frames of a group lost or damaged are rebuilt (docs/FORMAT.md, "Repair frames")."""
+        R frames of a group lost or damaged are rebuilt (docs/FORMAT.md, "Repair frames").
+        key: a shared secret of at least 16 bytes; every frame then carries a tag under it,
+        and a decoder with the same key delivers only frames whose tag matches."""
         super().__init__()
         self._fileobj = fileobj
-        self._writer = FrameWriter(fileobj, code, depth, frame_bytes, stream_id, repair)
+        self._writer = FrameWriter(fileobj, code, depth, frame_bytes, stream_id, repair, _checked_key(key))
         self._close_fileobj = close_fileobj
 
     def writable(self) -> bool:
@@ -114,6 +130,20 @@ class Encoder(io.BufferedIOBase):
     def bytes_out(self) -> int:
         return self._writer.bytes_out
 
+    def abandon(self) -> None:
+        """Close without the closing frame, after a failure: a reader then sees a stream that
+        ended early, never one that looks whole."""
+        if self.closed:
+            return
+        self._writer.closed = True
+        self.close()
+
+    def __exit__(self, exc_type, exc, tb) -> None:
+        if exc_type is not None:
+            self.abandon()  # an error on the way: no closing frame
+        else:
+            self.close()
+
     def close(self) -> None:
         if self.closed:
             return
@@ -160,8 +190,14 @@ class Decoder(io.BufferedReader):
     """
 
     def __init__(self, fileobj: BinaryIO, on_error: str = "keep", keep_frame_reports: bool = True,
-                 on_frame: Callable[[FrameReport], None] | None = None, close_fileobj: bool = False) -> None:
-        self._assembler = Assembler(fileobj, on_error)
+                 on_frame: Callable[[FrameReport], None] | None = None, close_fileobj: bool = False,
+                 key: bytes | None = None, accept_unauthenticated: bool = False) -> None:
+        """key: the shared key of keyed frames (only frames whose tag matches are delivered);
+        accept_unauthenticated: also deliver frames whose origin cannot be checked (no tag
+        while a key is given, or tags but no key). A tag that does not match is never
+        accepted."""
+        self._assembler = Assembler(fileobj, on_error, key=_checked_key(key),
+                                    accept_unauthenticated=accept_unauthenticated)
         self._frame_reports: list[FrameReport] = []
         self._keep = keep_frame_reports
         self._on_frame = on_frame
@@ -205,7 +241,8 @@ class Decoder(io.BufferedReader):
 
 def open(file: PathOrFile, mode: str = "rb", *, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
          frame_bytes: int = DEFAULT_FRAME_BYTES, on_error: str = "keep",
-         stream_id: int | None = None, repair: str | tuple[int, int] | None = None) -> Encoder | Decoder:
+         stream_id: int | None = None, repair: str | tuple[int, int] | None = None,
+         key: bytes | None = None) -> Encoder | Decoder:
     """Open a bitmend container for reading ('rb') or writing ('wb'), from a path or a
     binary file object; code, depth and frame_bytes apply to writing, on_error to reading.
     code is a catalog name or a code object (e.g. from load_code_file): a code outside the
@@ -222,8 +259,9 @@ def open(file: PathOrFile, mode: str = "rb", *, code: CodeChoice = DEFAULT_CODE,
     else:
         raise TypeError("file must be a path or a binary file object")
     if writing:
-        return Encoder(fileobj, code, depth, frame_bytes, close_fileobj=owned, stream_id=stream_id, repair=repair)
-    return Decoder(fileobj, on_error, close_fileobj=owned)
+        return Encoder(fileobj, code, depth, frame_bytes, close_fileobj=owned, stream_id=stream_id, repair=repair,
+                       key=key)
+    return Decoder(fileobj, on_error, close_fileobj=owned, key=key)
 
 
 @dataclass(frozen=True)
@@ -236,19 +274,21 @@ class Decoded:
 
 def encode_bytes(data: bytes, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
                  frame_bytes: int = DEFAULT_FRAME_BYTES, stream_id: int | None = None,
-                 repair: str | tuple[int, int] | None = None) -> bytes:
+                 repair: str | tuple[int, int] | None = None, key: bytes | None = None) -> bytes:
     """The container for data (one-shot); code is a catalog name or a code object;
     stream_id is drawn at random unless given (give one only to make output reproducible);
     repair 'R/K' adds R repair frames after every K data frames."""
     sink = io.BytesIO()
-    with Encoder(sink, code, depth, frame_bytes, stream_id=stream_id, repair=repair) as enc:
+    with Encoder(sink, code, depth, frame_bytes, stream_id=stream_id, repair=repair, key=key) as enc:
         enc.write(data)
     return sink.getvalue()
 
 
-def decode_bytes(container: bytes, on_error: str = "keep") -> Decoded:
+def decode_bytes(container: bytes, on_error: str = "keep", key: bytes | None = None,
+                 accept_unauthenticated: bool = False) -> Decoded:
     """Decode a whole container held in memory; raises NotAContainerError if no frame is
-    found and, with on_error='fail', DamagedDataError at the first damaged or lost frame."""
-    with Decoder(io.BytesIO(container), on_error) as dec:
+    found and, with on_error='fail', DamagedDataError at the first damaged or lost frame.
+    key and accept_unauthenticated as for Decoder."""
+    with Decoder(io.BytesIO(container), on_error, key=key, accept_unauthenticated=accept_unauthenticated) as dec:
         data = dec.read()
         return Decoded(data, dec.report)

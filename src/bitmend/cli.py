@@ -67,7 +67,11 @@ def _errors() -> Iterator[None]:
     from bitmend.codes.catalog import UnknownCodeError
     from bitmend.codes.linear import CodeDefinitionError
     from bitmend.container.assembler import DamagedDataError, NotAContainerError
+    from bitmend.container.repair import RepairSpecError
+    from bitmend.datagrams import EndpointError
+    from bitmend.keyfile import KeyFileError
     from bitmend.planning import PlanError
+    from bitmend.records import RecordError
 
     try:
         yield
@@ -89,7 +93,8 @@ def _errors() -> Iterator[None]:
         _fail(str(exc), exc.exit_code)
     except UnknownCodeError as exc:
         _fail(str(exc), EXIT_USAGE)
-    except (CodeDefinitionError, PlanError) as exc:
+    except (CodeDefinitionError, PlanError, KeyFileError, RecordError, EndpointError, RepairSpecError) as exc:
+        # a definition, key, record framing, endpoint or repair ratio that cannot be used
         _fail(str(exc), EXIT_USAGE)
     except ChannelSpecError as exc:
         _fail(str(exc), EXIT_USAGE)
@@ -274,6 +279,8 @@ def codes(ctx: typer.Context, as_json: bool = typer.Option(False, "--json", help
                    "symbols are bytes)")
 
 
+KEY_FILE_HELP = ("Shared key (at least 16 bytes, raw or hex; not readable by others): every frame carries a tag "
+                 "under it, and decode delivers only frames whose tag matches.")
 CODE_FILE_HELP = ("Custom code: a text file ('generator' or 'parity-check', then rows of 0/1) or JSON "
                   "({\"generator\": [[...]]} or {\"parity_check\": [[...]]}).")
 
@@ -341,6 +348,8 @@ def encode(
                                          help="After every K data frames (K <= 32) send R repair frames: any R "
                                               "frames of the group that are lost or damaged are rebuilt exactly. "
                                               "A group also closes at --max-delay and at the end."),
+    key_file: Optional[str] = typer.Option(None, "--key-file", metavar="FILE",
+                                           help=KEY_FILE_HELP),
 ) -> None:
     """Wrap a byte stream in coded, self-contained frames.
 
@@ -366,6 +375,7 @@ def encode(
         if source_udp is not None and records is not None:
             raise CliError("a datagram is already one record: --records applies to byte-stream input", EXIT_USAGE)
         chosen = _load_code(code, code_file)  # unknown names and bad files fail before any output is made
+        key = _load_key(key_file)
         from bitmend.container.writer import FrameWriter
         try:
             FrameWriter(io.BytesIO(), chosen, depth, frame_bytes, repair=repair)  # limits, before any output
@@ -377,11 +387,11 @@ def encode(
         if source_udp is not None:
             with outputs.deferred_signals():  # a signal ends the datagram input; the run finishes cleanly
                 _encode_datagrams(source_udp, output, output_udp, code or chosen, depth, frame_bytes, idle, repair,
-                                  delay)
+                                  delay, key)
             return
         with _open_input(source) as inp, _open_data_output(output, output_udp) as out:
             with _progress("encoding", _input_size(inp), True) as tick:
-                with Encoder(out, code or chosen, depth, frame_bytes, repair=repair) as enc:
+                with Encoder(out, code or chosen, depth, frame_bytes, repair=repair, key=key) as enc:
                     if records is not None:
                         pump_records(inp, enc, records, tick, max_delay=delay)
                     else:
@@ -443,7 +453,8 @@ def _open_data_output(output: Optional[str], endpoint):
 
 
 def _encode_datagrams(endpoint, output: Optional[str], output_udp, code, depth: int, frame_bytes: int,
-                      idle: Optional[float], repair: Optional[str], max_delay: Optional[float]) -> None:
+                      idle: Optional[float], repair: Optional[str], max_delay: Optional[float],
+                      key: Optional[bytes]) -> None:
     """encode udp:HOST:PORT: each datagram received is one record, sent at once as one frame;
     with --repair a group closes after K datagrams or --max-delay after its first."""
     import time
@@ -456,7 +467,7 @@ def _encode_datagrams(endpoint, output: Optional[str], output_udp, code, depth: 
     refused = 0
     group_since: Optional[float] = None
     with _open_data_output(output, output_udp) as out:
-        with Encoder(out, code, depth, frame_bytes, repair=repair) as enc:
+        with Encoder(out, code, depth, frame_bytes, repair=repair, key=key) as enc:
             for datagram in receiver:
                 if datagram is not None:
                     if len(datagram) > frame_bytes:
@@ -493,6 +504,13 @@ def decode(
     idle: Optional[float] = typer.Option(None, "--idle", metavar="SECONDS",
                                          help="With IN = udp:HOST:PORT: end after this long without a datagram "
                                               "(default: run until SIGINT or SIGTERM, which end it cleanly)."),
+    key_file: Optional[str] = typer.Option(None, "--key-file", metavar="FILE",
+                                           help=KEY_FILE_HELP),
+    accept_unauthenticated: bool = typer.Option(False, "--accept-unauthenticated",
+                                                help="Also deliver frames whose origin cannot be checked: frames "
+                                                     "without a tag while --key-file is given, or keyed frames "
+                                                     "without --key-file. A tag that does not match is never "
+                                                     "accepted."),
 ) -> None:
     """Recover the data; exit 0 only if every byte was CRC-verified.
 
@@ -519,17 +537,20 @@ def decode(
         if on_error not in ON_ERROR_CHOICES:
             raise CliError(f"--on-error must be one of {', '.join(ON_ERROR_CHOICES)}, got {on_error!r}", EXIT_USAGE)
         outputs.check_distinct({"-o": output or "-", "--report": report})
+        key = _load_key(key_file)
         if record_mode or source_udp is not None:
             with (outputs.deferred_signals() if source_udp is not None else nullcontext()):
                 # with a datagram input, a signal ends the input and the run finishes cleanly
-                _decode_records(source, source_udp, output, output_udp, report, on_error, records, idle, quiet)
+                _decode_records(source, source_udp, output, output_udp, report, on_error, records, idle, quiet,
+                                key, accept_unauthenticated)
             return
         stopped: DamagedDataError | None = None
         report_file = None
         with _open_input(source) as inp:
             # made before any output (it reads nothing yet): a run stopped at any point has a summary
             on_frame = (lambda r: report_file.write_text(r.to_json() + "\n")) if report else None
-            decoder = Decoder(inp, on_error, keep_frame_reports=False, on_frame=on_frame)
+            decoder = Decoder(inp, on_error, keep_frame_reports=False, on_frame=on_frame, key=key,
+                              accept_unauthenticated=accept_unauthenticated)
             # the output is the outer context: the report's summary is written once the output is
             # whole (out.prepare()), and a report that cannot be written takes the output with it
             with _open_output(output) as out, \
@@ -546,6 +567,7 @@ def decode(
                         stopped = exc  # --on-error fail: keep the verified part written so far
                 out.prepare()
         summary = decoder.summary
+        _say_key_mismatch(decoder._assembler)
         if not quiet:
             typer.echo(summary.one_line(), err=True)
             for note in summary.notes:
@@ -555,8 +577,31 @@ def decode(
         raise typer.Exit(EXIT_OK if summary.complete else EXIT_DAMAGED)
 
 
+def _load_key(key_file: Optional[str]) -> Optional[bytes]:
+    if key_file is None:
+        return None
+    from bitmend.keyfile import load_key_file
+
+    try:
+        return load_key_file(key_file)
+    except OSError as exc:
+        raise CliError(f"cannot read key file {key_file}: {exc.strerror or exc}", EXIT_UNREADABLE) from None
+
+
+def _say_key_mismatch(assembler) -> None:
+    """One clear line when frames were held back because the key and the frames disagree."""
+    if assembler.keyed_without_key:
+        typer.echo(f"bitmend decode: the frames are keyed: give --key-file to check them "
+                   f"({assembler.keyed_without_key} frames not delivered; nothing unverified was written)", err=True)
+    elif assembler.untagged_with_key:
+        typer.echo(f"bitmend decode: the frames carry no tag, but --key-file was given "
+                   f"({assembler.untagged_with_key} frames not delivered; --accept-unauthenticated takes them)",
+                   err=True)
+
+
 def _decode_records(source: str, source_udp, output: Optional[str], output_udp, report: Optional[str],
-                    on_error: str, framing: Optional[str], idle: Optional[float], quiet: bool) -> None:
+                    on_error: str, framing: Optional[str], idle: Optional[float], quiet: bool,
+                    key: Optional[bytes] = None, accept_unauthenticated: bool = False) -> None:
     """decode in record mode (--records, or datagrams in or out): each verified frame's data
     is one record, written in its framing or sent as one datagram; lost records are left out."""
     from bitmend.container.assembler import DamagedDataError
@@ -572,7 +617,8 @@ def _decode_records(source: str, source_udp, output: Optional[str], output_udp, 
     report_file = None
     with (nullcontext(None) if receiver is not None else _open_input(source)) as inp:
         on_frame = (lambda r: report_file.write_text(r.to_json() + "\n")) if report else None
-        reader = RecordReader(record_assembler(receiver if receiver is not None else inp, on_error), on_frame,
+        reader = RecordReader(record_assembler(receiver if receiver is not None else inp, on_error, key,
+                                               accept_unauthenticated), on_frame,
                               keep_frame_reports=False)
         with _open_data_output(output, output_udp) as out, \
                 _open_side_file(report, "report", lambda failure: _report_end(reader, out, failure)) as report_file:
@@ -587,6 +633,7 @@ def _decode_records(source: str, source_udp, output: Optional[str], output_udp, 
             if hasattr(out, "prepare"):
                 out.prepare()
     summary = reader.summary
+    _say_key_mismatch(reader._assembler)
     if not quiet:
         typer.echo(summary.one_line(), err=True)
         if reader.missing:

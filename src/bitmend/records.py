@@ -125,13 +125,13 @@ class _FrameCollector:
 
 def encode_records(records: Iterable[bytes], code=DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
                    frame_bytes: int = DEFAULT_FRAME_BYTES, stream_id: int | None = None,
-                   repair: str | tuple[int, int] | None = None) -> Iterator[bytes]:
+                   repair: str | tuple[int, int] | None = None, key: bytes | None = None) -> Iterator[bytes]:
     """One protected blob (a whole frame) per record, as each record comes, then the
     stream's closing frame (empty); with repair 'R/K', R repair blobs after every K
     records. Send each blob as one datagram, or write them back to back: either way
     `decode_records` gives the records back."""
     collector = _FrameCollector()
-    writer = FrameWriter(collector, code, depth, frame_bytes, stream_id, repair)
+    writer = FrameWriter(collector, code, depth, frame_bytes, stream_id, repair, key)
     for record in records:
         writer.send_record(record)
         yield from collector.take()
@@ -143,7 +143,9 @@ class BlobScanner:
     """FrameScanner's interface over separate blobs (datagrams): each blob is searched for
     frames on its own, so a damaged or foreign datagram costs only itself."""
 
-    def __init__(self, blobs: Iterable[bytes], on_blob: Callable[[int], None] | None = None) -> None:
+    def __init__(self, blobs: Iterable[bytes], on_blob: Callable[[int], None] | None = None,
+                 key: bytes | None = None) -> None:
+        self._key = key
         self._blobs = blobs
         self._on_blob = on_blob
         self.stats = ScanStats()
@@ -154,7 +156,7 @@ class BlobScanner:
         for blob in self._blobs:
             self.blobs += 1
             self.bytes_read += len(blob)
-            scanner = FrameScanner(io.BytesIO(blob))
+            scanner = FrameScanner(io.BytesIO(blob), key=self._key)
             found = False
             for frame in scanner.frames():
                 found = True
@@ -218,23 +220,26 @@ class RecordReader:
         return self._assembler.scanner.bytes_read
 
 
-def record_assembler(source, on_error: str) -> Assembler:
+def record_assembler(source, on_error: str, key: bytes | None = None, accept_unauthenticated: bool = False) -> Assembler:
     if on_error not in RECORD_ON_ERROR:
         raise ValueError(f"on_error for records must be one of {', '.join(RECORD_ON_ERROR)} "
                          f"(a zero-filled record would be an invented one), got {on_error!r}")
     # the assembler drops damaged frames' bytes under 'drop'; 'keep' hands them on as they are
+    keys = {"key": key, "accept_unauthenticated": accept_unauthenticated}
     if isinstance(source, (bytes, bytearray, memoryview)):
-        return Assembler(io.BytesIO(bytes(source)), on_error)
+        return Assembler(io.BytesIO(bytes(source)), on_error, **keys)
     if hasattr(source, "read"):
-        return Assembler(source, on_error)
-    return Assembler(None, on_error, scanner=BlobScanner(source))
+        return Assembler(source, on_error, **keys)
+    return Assembler(None, on_error, scanner=BlobScanner(source, key=key), **keys)
 
 
 def decode_records(source: Iterable[bytes] | BinaryIO | bytes, on_error: str = "drop",
-                   on_frame: Callable[[FrameReport], None] | None = None) -> RecordReader:
+                   on_frame: Callable[[FrameReport], None] | None = None, key: bytes | None = None,
+                   accept_unauthenticated: bool = False) -> RecordReader:
     """The records of a protected stream: `source` is an iterable of blobs (datagrams, or
-    the blobs encode_records gave), a binary file, or one container in memory."""
-    return RecordReader(record_assembler(source, on_error), on_frame)
+    the blobs encode_records gave), a binary file, or one container in memory. key and
+    accept_unauthenticated as for bitmend.Decoder."""
+    return RecordReader(record_assembler(source, on_error, key, accept_unauthenticated), on_frame)
 
 
 def pump_records(source: BinaryIO, encoder, framing: str, progress: Callable[[int], None] | None = None,

@@ -6,6 +6,7 @@ import json
 from dataclasses import asdict, dataclass, field
 
 CLEAN, CORRECTED, DAMAGED, LOST, REBUILT = "clean", "corrected", "damaged", "lost", "rebuilt"
+UNAUTHENTICATED = "unauthenticated"  # a frame held back by the key rules: never delivered
 
 
 @dataclass(frozen=True)
@@ -76,6 +77,7 @@ class Summary:
     streams: int = 0  # streams found in the input
     rebuilt: int = 0  # data frames that never arrived whole, rebuilt from repair frames and verified
     repair_frames: int = 0  # repair frames that arrived intact
+    unauthenticated: int = 0  # frames not delivered: a tag that did not match, or none to check
 
     def to_json(self) -> str:
         return json.dumps({"type": "summary", **asdict(self)}, separators=(",", ":"))
@@ -86,7 +88,8 @@ class Summary:
         parts = [_count(self.frames, "frame"), f"{self.clean} clean", f"{self.corrected} corrected",
                  f"{self.damaged} damaged", f"{self.lost} lost",
                  f"{self.corrected_symbols} {self.symbol_unit} corrected", _count(self.bytes_out, "byte") + " out"]
-        for value, what in ((self.rebuilt, "rebuilt"), (self.duplicates, "duplicate"), (self.reordered, "reordered"),
+        for value, what in ((self.rebuilt, "rebuilt"), (self.unauthenticated, "unauthenticated"),
+                            (self.duplicates, "duplicate"), (self.reordered, "reordered"),
                             (self.foreign, "foreign"), (self.late, "late")):
             if value:
                 parts.append(f"{value} {what}")

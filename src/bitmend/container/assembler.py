@@ -14,7 +14,7 @@ from typing import BinaryIO, Iterator
 from bitmend.container import format as fmt
 from bitmend.container.delivery import Delivered, Event, LostRun, Sequencer, StreamEnded
 from bitmend.container.reader import DecodedFrame, FrameScanner
-from bitmend.report import CLEAN, CORRECTED, DAMAGED, LOST, REBUILT, FrameReport, Summary
+from bitmend.report import CLEAN, CORRECTED, DAMAGED, LOST, REBUILT, UNAUTHENTICATED, FrameReport, Summary
 
 ON_ERROR_CHOICES = ("keep", "zero", "drop", "fail")
 MAX_LOST_LISTED = 100_000  # a gap wider than this is listed only up to this many frames
@@ -37,6 +37,7 @@ class _Counts:
     damaged: int = 0
     lost: int = 0
     rebuilt: int = 0
+    unauthenticated: int = 0
     bytes_out: int = 0
     corrected_symbols: int = 0
     failed_blocks: int = 0
@@ -59,13 +60,24 @@ class Assembler:
     report carries more data of the frame reported just before (zeros of a long lost
     run). summary() when done."""
 
-    def __init__(self, source: BinaryIO | None, on_error: str = "keep", scanner=None) -> None:
+    def __init__(self, source: BinaryIO | None, on_error: str = "keep", scanner=None, key: bytes | None = None,
+                 accept_unauthenticated: bool = False) -> None:
         """source: a container byte stream; or give `scanner`, anything with `frames()`,
-        `stats` and `bytes_read` like FrameScanner (e.g. one over separate datagrams)."""
+        `stats` and `bytes_read` like FrameScanner (e.g. one over separate datagrams).
+
+        key: the shared key of keyed frames. With a key, only frames whose tag matches are
+        delivered (or used to rebuild others); frames without a tag are not delivered either
+        unless accept_unauthenticated. Without a key, keyed frames cannot be checked and are
+        delivered only with accept_unauthenticated. Frames held back are reported with
+        status 'unauthenticated' and count as missing for their stream."""
         if on_error not in ON_ERROR_CHOICES:
             raise ValueError(f"on_error must be one of {', '.join(ON_ERROR_CHOICES)}, got {on_error!r}")
         self.on_error = on_error
-        self.scanner = scanner if scanner is not None else FrameScanner(source)
+        self.key = key
+        self.accept_unauthenticated = accept_unauthenticated
+        self.scanner = scanner if scanner is not None else FrameScanner(source, key=key)
+        self.keyed_without_key = 0  # keyed frames held back: no key to check them with
+        self.untagged_with_key = 0  # frames without a tag held back: a key was given
         self.sequencer = Sequencer()
         self._counts = _Counts()
         self._notes: list[str] = []
@@ -153,9 +165,36 @@ class Assembler:
                 name = f"stream {event.stream_id:016x}" if event.stream_id is not None else "the stream"
                 self._notes.append(f"{name} ended without its closing frame")
 
+    def _admit(self, frame: DecodedFrame) -> bool:
+        """Whether a found frame may take part in delivery, by the key rules (see __init__)."""
+        header = frame.header
+        if self.accept_unauthenticated and not (self.key is not None and header.keyed):
+            return True
+        if self.key is None:
+            if not header.keyed:
+                return True
+            self.keyed_without_key += 1
+        elif not header.keyed:
+            self.untagged_with_key += 1
+        elif frame.authentic:
+            return True
+        return False
+
+    def _unauthenticated(self, frame: DecodedFrame) -> FrameReport:
+        header = frame.header
+        report = FrameReport(header.seq, frame.offset, UNAUTHENTICATED, len(frame.block_status),
+                             frame.corrected_blocks, frame.corrected_symbols, frame.failed_blocks, frame.crc_ok,
+                             self._counts.bytes_out, 0, frame.truncated, frame.failed_count,
+                             stream=_stream_name(header), closing=header.last)
+        self._record(report)
+        return report
+
     def __iter__(self) -> Iterator[tuple[bytes, FrameReport | None]]:
         for frame in self.scanner.frames():
             self._any_frame = True
+            if not self._admit(frame):
+                yield b"", self._unauthenticated(frame)
+                continue
             for event in self.sequencer.push(frame):
                 yield from self._handle(event)
         for event in self.sequencer.finish():
@@ -172,8 +211,14 @@ class Assembler:
         d = self.sequencer.counts
         end_seen = self._streams_ended > 0 and self._streams_closed == self._streams_ended
         complete = (end_seen and c.damaged == 0 and c.lost == 0 and not self._truncated
-                    and d.foreign == 0 and d.late == 0)
+                    and d.foreign == 0 and d.late == 0 and c.unauthenticated == 0)
         notes = list(self._notes) + list(self.sequencer.notes)
+        if self.keyed_without_key:
+            notes.insert(0, f"{self.keyed_without_key} keyed frames not delivered: no key to check their tags "
+                            "(give the key file, or accept unauthenticated frames explicitly)")
+        if self.untagged_with_key:
+            notes.insert(0, f"{self.untagged_with_key} frames without a tag not delivered: a key was given "
+                            "(accept unauthenticated frames explicitly to take them)")
         notes += list(dict.fromkeys(self.scanner.stats.header_errors))[:10]
         units = {"bytes" if bits == 8 else "bits" for bits in self._symbol_bits} or {"bits"}
         return Summary(c.frames, c.clean, c.corrected, c.damaged, c.lost, c.bytes_out,
@@ -181,4 +226,5 @@ class Assembler:
                        self.scanner.stats.skipped_bytes, notes,
                        units.pop() if len(units) == 1 else "symbols (bits or bytes)",
                        duplicates=d.duplicates, foreign=d.foreign, reordered=d.reordered, late=d.late,
-                       streams=d.streams, rebuilt=c.rebuilt, repair_frames=d.repair_frames)
+                       streams=d.streams, rebuilt=c.rebuilt, repair_frames=d.repair_frames,
+                       unauthenticated=c.unauthenticated)

@@ -23,6 +23,8 @@ interleaved group) follows the header, with a copy before the header copy:
 
 from __future__ import annotations
 
+import hashlib
+import hmac
 import struct
 from dataclasses import dataclass, field, replace
 from functools import cached_property, lru_cache
@@ -71,8 +73,10 @@ DEFAULT_FRAME_BYTES = 16384
 CRC_BYTES = 4
 FLAG_LAST = 0x01  # the frame closes its stream
 FLAG_REPAIR = 0x02  # (version 2) a repair frame across the data frames of a group: docs/FORMAT.md
-FLAG_IN_GROUP = 0x08  # (version 2) a data frame of a stream that sends repair frames (0x04: keyed, reserved)
-KNOWN_FLAGS = {1: FLAG_LAST, 2: FLAG_LAST | FLAG_REPAIR | FLAG_IN_GROUP}
+FLAG_KEYED = 0x04  # (version 2) the message carries a tag under a shared key after its CRC-32C
+FLAG_IN_GROUP = 0x08  # (version 2) a data frame of a stream that sends repair frames
+KNOWN_FLAGS = {1: FLAG_LAST, 2: FLAG_LAST | FLAG_REPAIR | FLAG_KEYED | FLAG_IN_GROUP}
+TAG_BYTES = 16  # HMAC-SHA-256 truncated to 128 bits (RFC 2104 section 5; RFC 4231 test case 5)
 POSITION_BITS = 48  # (version 2) stream byte offset of a data frame's first payload byte, mod 2^48
 SEQ_MODULUS = 1 << 32
 CUSTOM_CODE_ID = 0  # the frame carries its own code in a code-definition block
@@ -135,6 +139,7 @@ class FrameHeader:  # noqa: PLW1641 (cached_property needs __dict__; frozen stil
     position: int = 0  # (version 2) stream offset of the first payload byte, mod 2^48
     repair: bool = False  # (version 2) a repair frame: `position` holds its group fields
     in_group: bool = False  # (version 2) a data frame whose stream sends repair frames
+    keyed: bool = False  # (version 2) the coded message ends with a tag under a shared key
 
     @classmethod
     def for_defined_code(cls, code: BinaryLinearCode, depth: int, seq: int, length: int,
@@ -184,8 +189,13 @@ class FrameHeader:  # noqa: PLW1641 (cached_property needs __dict__; frozen stil
     def coded_bytes(self) -> int:
         if self.code_id == CUSTOM_CODE_ID:
             k, r = self._shape()
-            return layout(_Geometry(k + r, k), self.depth, self.length + CRC_BYTES).coded_bytes
-        return layout(self.code, self.depth, self.length + CRC_BYTES).coded_bytes
+            return layout(_Geometry(k + r, k), self.depth, self.message_bytes).coded_bytes
+        return layout(self.code, self.depth, self.message_bytes).coded_bytes
+
+    @property
+    def message_bytes(self) -> int:
+        """Bytes of the coded message: payload, its CRC-32C, and the tag of a keyed frame."""
+        return self.length + CRC_BYTES + (TAG_BYTES if self.keyed else 0)
 
     @cached_property
     def frame_bytes(self) -> int:
@@ -202,7 +212,7 @@ class FrameHeader:  # noqa: PLW1641 (cached_property needs __dict__; frozen stil
 
     def record(self) -> bytes:
         flags = ((FLAG_LAST if self.last else 0) | (FLAG_REPAIR if self.repair else 0)
-                 | (FLAG_IN_GROUP if self.in_group else 0))
+                 | (FLAG_KEYED if self.keyed else 0) | (FLAG_IN_GROUP if self.in_group else 0))
         length = self.length
         if self.code_id == CUSTOM_CODE_ID:
             k, r = self._shape()
@@ -294,7 +304,8 @@ def _parse_record(body: bytes, layout_: HeaderLayout) -> FrameHeader:
         except KeyError:
             raise HeaderError(f"frame uses unknown code id {code_id}") from None
     header = FrameHeader(code_id, depth, seq, length, bool(flags & FLAG_LAST), version, shape, None,
-                         stream_id, position, bool(flags & FLAG_REPAIR), bool(flags & FLAG_IN_GROUP))
+                         stream_id, position, bool(flags & FLAG_REPAIR), bool(flags & FLAG_IN_GROUP),
+                         bool(flags & FLAG_KEYED))
     if shape is not None and header.frame_bytes > MAX_FRAME_WIRE_BYTES:
         raise HeaderError(f"frame of {header.frame_bytes} bytes exceeds the limit {MAX_FRAME_WIRE_BYTES}")
     return header
@@ -370,12 +381,29 @@ def unchecked_reading_code(k: int, r: int) -> BinaryLinearCode:
                             description="stand-in: message bits read without correction")
 
 
-def encode_frame(header: FrameHeader, payload: bytes) -> bytes:
-    """marker | header | coded(payload + CRC-32C) | header copy."""
+def frame_tag(key: bytes, header: FrameHeader, payload: bytes) -> bytes:
+    """The tag of a keyed frame: HMAC-SHA-256 under the shared key, truncated to its first
+    16 bytes, over the header record without its CRC (version, flags, code id, depth,
+    stream identity, sequence number, position, length) followed by the payload."""
+    return hmac.new(key, header.record()[:-CRC_BYTES] + payload, hashlib.sha256).digest()[:TAG_BYTES]
+
+
+def tag_matches(key: bytes, header: FrameHeader, payload: bytes, tag: bytes) -> bool:
+    """True if tag is the frame's tag under key (compared in constant time)."""
+    return hmac.compare_digest(frame_tag(key, header, payload), bytes(tag))
+
+
+def encode_frame(header: FrameHeader, payload: bytes, key: bytes | None = None) -> bytes:
+    """marker | header | coded(payload + CRC-32C [+ tag]) | header copy; a keyed header
+    needs the key its tag is made with."""
     if len(payload) != header.length:
         raise ValueError(f"payload is {len(payload)} bytes, header says {header.length}")
+    if header.keyed and key is None:
+        raise ValueError("a keyed frame needs its key")
     coded_header = encode_header(header)
     message = payload + struct.pack(">I", crc32c(payload))
+    if header.keyed:
+        message += frame_tag(key, header, payload)
     definition = encode_definition(header.code, header.version) if header.code_id == CUSTOM_CODE_ID else b""
     return (MARKER_BYTES + coded_header + definition + encode_segment(header.code, header.depth, message)
             + definition + coded_header)

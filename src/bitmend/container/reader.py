@@ -46,6 +46,7 @@ class DecodedFrame:
     truncated: bool = False  # the input ended inside the frame
     header_from_copy: bool = False  # the leading header was hit; the copy was used
     marker_distance: int = 0
+    authentic: bool | None = None  # keyed frame: its tag matched the reader's key (None: not checked)
 
     @cached_property
     def corrected_blocks(self) -> int:
@@ -82,7 +83,10 @@ class ScanStats:
 class FrameScanner:
     """Iterate the frames of a container read from a binary file object."""
 
-    def __init__(self, source: BinaryIO, read_chunk: int = READ_CHUNK, decode_payloads: bool = True) -> None:
+    def __init__(self, source: BinaryIO, read_chunk: int = READ_CHUNK, decode_payloads: bool = True,
+                 key: bytes | None = None) -> None:
+        """key: the shared key that keyed frames' tags are checked with (None: not checked)."""
+        self._key = key
         self._source = source
         self._read = getattr(source, "read1", None) or source.read
         self._decode_payloads = decode_payloads
@@ -254,23 +258,28 @@ class FrameScanner:
                                 from_copy, marker_distance)
         header, checked = self._frame_code(bit, header)
         code = header.code if checked else fmt.unchecked_reading_code(*header.shape)
+        authentic: bool | None = False if header.keyed and self._key is not None else None
         if complete:
             coded = self._bytes_at(payload_bit, coded_len)
-            message, status = decode_segment(code, header.depth, coded, header.length + fmt.CRC_BYTES)
-            payload, check = message[: header.length], message[header.length:]
+            message, status = decode_segment(code, header.depth, coded, header.message_bytes)
+            payload = message[: header.length]
+            check = message[header.length: header.length + fmt.CRC_BYTES]
             crc_ok = struct.unpack(">I", check)[0] == fmt.crc32c(payload)
+            if header.keyed and self._key is not None and crc_ok:
+                authentic = fmt.tag_matches(self._key, header, bytes(payload),
+                                            message[header.length + fmt.CRC_BYTES:])
         else:
             # the input ended inside the frame: decode only the groups that arrived whole, and
             # for Reed-Solomon the cut group too, its missing tail as erasures (work and
             # memory follow the bytes present, not the length the header claims)
             coded = self._bytes_at(payload_bit, (available_bits + 7) // 8)
-            payload, status = decode_truncated(code, header.depth, coded, header.length + fmt.CRC_BYTES,
+            payload, status = decode_truncated(code, header.depth, coded, header.message_bytes,
                                                available_bits, header.length)
             crc_ok = False
         if not checked:  # no block could be checked; only the CRC speaks for the data
             status = np.full(len(status), 255, dtype=np.uint8)
         return DecodedFrame(header, bit >> 3, bit, payload, status, crc_ok, not complete, from_copy,
-                            marker_distance)
+                            marker_distance, authentic)
 
     # ---- the scan ----------------------------------------------------------------------
     def frames(self) -> Iterator[DecodedFrame]:

@@ -135,7 +135,7 @@ class GroupBuilder:
                                      shape=template.shape, defined_code=template.defined_code,
                                      stream_id=template.stream_id,
                                      position=pack_group_fields(count, self.repairs, i, self.group),
-                                     repair=True)
+                                     repair=True, keyed=template.keyed)
             frames.append((header, repair[i].tobytes()))
         self.first_seq, self.symbols = None, []
         return frames

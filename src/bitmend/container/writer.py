@@ -39,7 +39,7 @@ class FrameWriter:
 
     def __init__(self, sink: BinaryIO, code: str | BinaryLinearCode, depth: int,
                  frame_bytes: int = fmt.DEFAULT_FRAME_BYTES, stream_id: int | None = None,
-                 repair: tuple[int, int] | str | None = None) -> None:
+                 repair: tuple[int, int] | str | None = None, key: bytes | None = None) -> None:
         if not 1 <= depth <= MAX_DEPTH:
             raise ValueError(f"depth must be 1..{MAX_DEPTH}, got {depth}")
         if not 1 <= frame_bytes <= fmt.MAX_PAYLOAD_BYTES:
@@ -61,6 +61,7 @@ class FrameWriter:
         self._seq = 0
         self._position = 0  # stream offset of the next frame's first payload byte
         # repair frames: R after every K data frames (container/repair.py), or none
+        self._key = key  # frames carry a tag under this shared key (flag 0x04)
         spec = parse_repair(repair)
         self._group = GroupBuilder(*spec) if spec else None
         self.repair_frames = 0
@@ -74,10 +75,11 @@ class FrameWriter:
         if self._defined_code is not None:
             header = fmt.FrameHeader.for_defined_code(self._defined_code, self._depth, self._seq, len(payload), last,
                                                       self.stream_id, position)
-            header = replace(header, in_group=in_group)
+            header = replace(header, in_group=in_group, keyed=self._key is not None)
         else:
             header = fmt.FrameHeader(self._code_id, self._depth, self._seq, len(payload), last,
-                                     stream_id=self.stream_id, position=position, in_group=in_group)
+                                     stream_id=self.stream_id, position=position, in_group=in_group,
+                                     keyed=self._key is not None)
         self._send(header, payload)
         self._seq = (self._seq + 1) % fmt.SEQ_MODULUS
         self._position += len(payload)
@@ -85,7 +87,7 @@ class FrameWriter:
             self.end_group(header)
 
     def _send(self, header: fmt.FrameHeader, payload: bytes) -> None:
-        frame = fmt.encode_frame(header, payload)
+        frame = fmt.encode_frame(header, payload, self._key)
         self._sink.write(frame)
         self.bytes_out += len(frame)
 
@@ -103,6 +105,7 @@ class FrameWriter:
             template = (fmt.FrameHeader.for_defined_code(self._defined_code, self._depth, 0, 0, stream_id=self.stream_id)
                         if self._defined_code is not None
                         else fmt.FrameHeader(self._code_id, self._depth, 0, 0, stream_id=self.stream_id))
+            template = replace(template, keyed=self._key is not None)
         for header, payload in self._group.repair_frames(template):
             self._send(header, payload)
             self.repair_frames += 1
