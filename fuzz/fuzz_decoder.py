@@ -4,7 +4,8 @@
 
 Each input is read as a recipe: it picks a payload, a code, a depth and a frame size,
 builds a real container, and a second encode of the same size and settings (another
-stream); it rearranges whole frames (replays, swaps, moves, frames spliced in from the other
+stream), keyed or not (the other stream under another key) and with or without repair
+frames; it rearranges whole frames (replays, swaps, moves, frames spliced in from the other
 stream, the other stream appended), then damages bytes (bit flips, bursts, inserted, deleted
 or overwritten bytes, truncation, raw fuzz bytes spliced in) and decodes it under a random
 on-error policy. Invariants, checked on every input:
@@ -32,17 +33,19 @@ with atheris.instrument_imports():
 CODES = code_names()
 POLICIES = ("keep", "zero", "drop")
 STREAM_A, STREAM_B = 0xA, 0xB
+KEY, OTHER_KEY = bytes(range(16, 48)), bytes(range(48, 80))
+REPAIRS = (None, None, "1/4", "3/8")
 
 
 def check(result: bitmend.Decoded, streams: dict[str, bytes], frame_bytes: int, whole: list[bytes]) -> None:
     seen = set()
     for report in result.report.frames:
-        if report.status == "lost":
+        if report.status in ("lost", "unauthenticated"):
             continue
         if (report.stream, report.seq) in seen:
             raise AssertionError(f"frame {report.seq} of stream {report.stream} delivered twice")
         seen.add((report.stream, report.seq))
-        if report.status in ("clean", "corrected"):
+        if report.status in ("clean", "corrected", "rebuilt"):
             data = streams[report.stream]
             start = report.seq * frame_bytes
             got = result.data[report.out_offset: report.out_offset + report.bytes]
@@ -113,20 +116,27 @@ def test_one_input(raw: bytes) -> None:
     data = fdp.ConsumeBytes(fdp.ConsumeIntInRange(0, 2000))
     policy = POLICIES[fdp.ConsumeIntInRange(0, len(POLICIES) - 1)]
     other = bytes(reversed(data))
-    first = bitmend.encode_bytes(data, code=code, depth=depth, frame_bytes=frame_bytes, stream_id=STREAM_A)
-    second = bitmend.encode_bytes(other, code=code, depth=depth, frame_bytes=frame_bytes, stream_id=STREAM_B)
+    keyed = fdp.ConsumeBool()  # keyed frames: the reader has the key; the other stream another key
+    repair = REPAIRS[fdp.ConsumeIntInRange(0, len(REPAIRS) - 1)]
+    first = bitmend.encode_bytes(data, code=code, depth=depth, frame_bytes=frame_bytes, stream_id=STREAM_A,
+                                 repair=repair, key=KEY if keyed else None)
+    second = bitmend.encode_bytes(other, code=code, depth=depth, frame_bytes=frame_bytes, stream_id=STREAM_B,
+                                  repair=repair, key=OTHER_KEY if keyed else None)
     a_frames = frames_of(first)
     frames, appended = rearrange(fdp, a_frames, frames_of(second))
     container = bytearray(b"".join(frames))
     changed = damage(fdp, container)
     try:
-        result = bitmend.decode_bytes(bytes(container), on_error=policy)
+        result = bitmend.decode_bytes(bytes(container), on_error=policy, key=KEY if keyed else None)
     except bitmend.NotAContainerError:
         if not changed and frames:
             raise AssertionError("an undamaged container was not recognised")
         return
     streams = {f"{STREAM_A:016x}": data, f"{STREAM_B:016x}": other}
-    check(result, streams, frame_bytes, [data, data + other] if appended else [data])
+    check(result, streams, frame_bytes, [data, data + other] if appended and not keyed else [data])
+    if keyed and any(r.stream == f"{STREAM_B:016x}" and r.status in ("clean", "corrected", "rebuilt")
+                     for r in result.report.frames):
+        raise AssertionError("a frame under another key was delivered")
     if not changed and frames == a_frames and not (result.report.complete and result.data == data):
         raise AssertionError("an undamaged container did not decode completely")
 
