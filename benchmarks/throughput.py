@@ -1,7 +1,7 @@
 """Payload throughput of the Python API (one core): encode, clean decode, decode at p = 1e-3.
 
     python benchmarks/throughput.py [--mib 64] [--codes hamming-7-4,secded-72-64,golay-24-12]
-                                    [--depths 1,8] [--flip-rate 1e-3]
+                                    [--depths 1,8] [--flip-rate 1e-3] [--keyed]
 
 MB/s counts payload bytes (10^6 bytes per MB); each figure is the best of --repeat runs. Data is random; the damaged input is made
 once per case with a fixed seed, outside the timed region. A warm-up run compiles or loads
@@ -21,16 +21,19 @@ import bitmend
 from bitmend.channel.bsc import flip_bits
 
 
-def _encode(data: bytes, code: str, depth: int) -> bytes:
+KEY = bytes(range(32, 64))  # --keyed: every frame carries a tag under this key
+
+
+def _encode(data: bytes, code: str, depth: int, key: bytes | None = None) -> bytes:
     sink = io.BytesIO()
-    with bitmend.Encoder(sink, code, depth) as enc:
+    with bitmend.Encoder(sink, code, depth, key=key) as enc:
         for i in range(0, len(data), 1 << 20):
             enc.write(data[i: i + (1 << 20)])
     return sink.getvalue()
 
 
-def _decode(blob: bytes) -> tuple[bytes, bool]:
-    with bitmend.Decoder(io.BytesIO(blob), keep_frame_reports=False) as dec:
+def _decode(blob: bytes, key: bytes | None = None) -> tuple[bytes, bool]:
+    with bitmend.Decoder(io.BytesIO(blob), keep_frame_reports=False, key=key) as dec:
         parts = []
         while chunk := dec.read1(1 << 20):
             parts.append(chunk)
@@ -44,24 +47,26 @@ def main() -> None:
     ap.add_argument("--depths", default="1,8")
     ap.add_argument("--flip-rate", type=float, default=1e-3)
     ap.add_argument("--repeat", type=int, default=3, help="runs per case; the best is reported")
+    ap.add_argument("--keyed", action="store_true", help="keyed frames (a tag per frame under a shared key)")
     args = ap.parse_args()
+    key = KEY if args.keyed else None
     data = np.random.default_rng(1).integers(0, 256, args.mib << 20, dtype=np.uint8).tobytes()
     _decode(_encode(data[:100_000], "hamming-7-4", 8))  # warm-up: load compiled kernels
-    print(f"{args.mib} MiB random payload, pid {os.getpid()}")
+    print(f"{args.mib} MiB random payload{', keyed frames' if key else ''}, pid {os.getpid()}")
     print(f"{'code':<14}{'depth':>6}{'encode MB/s':>13}{'decode MB/s':>13}{'decode p=' + format(args.flip_rate, 'g'):>18}")
     for code in args.codes.split(","):
         for depth in (int(d) for d in args.depths.split(",")):
             best = [float("inf")] * 3  # best of --repeat runs: the machine is shared
             for _ in range(args.repeat):
                 t0 = time.perf_counter()
-                blob = _encode(data, code, depth)
+                blob = _encode(data, code, depth, key)
                 t1 = time.perf_counter()
-                out, ok = _decode(blob)
+                out, ok = _decode(blob, key)
                 t2 = time.perf_counter()
                 assert out == data and ok
                 noisy, _ = flip_bits(blob, args.flip_rate, np.random.default_rng(7))
                 t3 = time.perf_counter()
-                _decode(noisy)
+                _decode(noisy, key)
                 t4 = time.perf_counter()
                 best = [min(b, t) for b, t in zip(best, (t1 - t0, t2 - t1, t4 - t3))]
             mb = len(data) / 1e6
