@@ -870,8 +870,8 @@ def plan(
                                       "bsc:p=1e-3 | burst:enter=1e-4,leave=0.1,bad=0.5[,good=0] | bytes:p=1e-3 | "
                                       "drop:p=0.01 | slip:p=1e-5. Repeat to chain models."),
     target: float = typer.Option(..., "--target", help="Residual error rate to meet, e.g. 1e-9."),
-    per: str = typer.Option("bit", "--per", help="What the target counts: bit (wrong bits per delivered bit) "
-                            "or frame (frames not delivered verified)."),
+    per: str = typer.Option("bit", "--per", help="What the target counts: bit (wrong bits per delivered bit; "
+                            "with drop:p=, bits never delivered count too) or frame (frames not delivered verified)."),
     max_overhead: Optional[str] = typer.Option(None, "--max-overhead", help="Largest overhead to accept, as a "
                                                "fraction or a percentage (0.25 or 25%); counts the whole frame."),
     frame_bytes: int = typer.Option(DEFAULT_FRAME_BYTES, "--frame-bytes", help="Payload bytes per frame."),
@@ -888,7 +888,8 @@ def plan(
 ) -> None:
     """Rank codes that meet a residual error target on a channel by whole-frame overhead, each
     at its cheapest interleaving depth; with the formulas and assumptions behind each
-    prediction, and on a BSC each code's distance to the best possible code."""
+    prediction, and on a BSC each code's distance to the best possible code. With drop:p=
+    in the channel, also the repair ratio R/K (encode --repair) that rebuilds lost frames."""
     from bitmend.api import load_code_file
     from bitmend.planning import make_plan
 

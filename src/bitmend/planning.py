@@ -43,18 +43,19 @@ bit error is an upper bound. Both are said in the plan's assumptions.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from functools import lru_cache
 from typing import Sequence
 
 import numpy as np
 
-from bitmend.analysis import limits, residual
+from bitmend.analysis import limits, repair_groups, residual
 from bitmend.channel.models import BSC, BitSlip, ByteSubstitution, ChannelModel, FrameDrop, GilbertElliott
 from bitmend.channel.spec import ChannelSpecError, parse_channels
 from bitmend.codes.catalog import MAX_DEPTH, code_names, get_code
 from bitmend.codes.linear import BinaryLinearCode
 from bitmend.container import format as fmt
+from bitmend.container.repair import MAX_GROUP, MAX_REPAIR, SYMBOL_OVERHEAD
 from bitmend.interleave import layout
 
 PER_CHOICES = ("bit", "frame")
@@ -94,6 +95,40 @@ class Prediction:
 
 
 @dataclass(frozen=True)
+class RepairChoice:
+    """R repair frames after every K data frames (`encode --repair R/K`), and what they buy.
+
+    q is the chance that a data frame is missing before repair (dropped, or failed after
+    decoding): q = 1 - (1 - p_drop) (1 - P_fail), the prediction's frame_error. A missing
+    data frame stays missing when at least R of the other K + R - 1 frames of its group are
+    missing too (analysis.repair_groups): residual = e P[Bin(K-1, q) + Bin(R, q_r) >= R],
+    e = q for frames, e = the bad-bit share of a data frame for bits."""
+
+    r: int
+    k: int
+    repair_frame_bytes: int  # one repair frame on the wire (its payload: a frame's + the 15-byte symbol head and CRC)
+    overhead: float  # R W_r / (K B): the repair frames' share, included in the candidate's overhead
+    frame_loss: float  # q, before repair
+    repair_frame_loss: float  # q_r: a repair frame missing
+    bad_bits: float  # e for bits: share of a data frame's payload bits lost or wrong, before repair
+    not_rebuilt: float  # P[a missing data frame is not rebuilt]
+    group_failure: float  # P[more than R of a group's K + R frames missing]
+    frame_error: float  # residual frame loss after repair: q x not_rebuilt
+    bit_error: float  # residual bad-bit share after repair: bad_bits x not_rebuilt
+
+    @property
+    def spec(self) -> str:
+        return f"{self.r}/{self.k}"
+
+    def to_dict(self) -> dict:
+        return {"R": self.r, "K": self.k, "spec": self.spec, "repair_frame_wire_bytes": self.repair_frame_bytes,
+                "overhead": self.overhead, "frame_loss_before": self.frame_loss,
+                "repair_frame_loss": self.repair_frame_loss, "bad_bits_before": self.bad_bits,
+                "not_rebuilt": self.not_rebuilt, "group_failure": self.group_failure,
+                "frame_error": self.frame_error, "bit_error": self.bit_error}
+
+
+@dataclass(frozen=True)
 class Candidate:
     code: str
     n: int
@@ -114,6 +149,13 @@ class Candidate:
     burst_quantile: float | None = None  # share of bad spells no longer than D t
     weights_known: bool = True  # False: every failure counted as a miscorrection (bit error a bound)
     limit: limits.DistanceToLimit | None = None  # on a BSC: the best code of the same length, same block error
+    repair: RepairChoice | None = None  # with a drop channel: the repair frames chosen (None: none needed)
+    lost_bits_counted: bool = False  # a drop channel: the bit rate counts bits never delivered too
+    after_repair: tuple[float, float] | None = None  # a drop channel: (bit, frame) rates after the repair chosen
+
+    @property
+    def repair_spec(self) -> str | None:
+        return None if self.repair is None else self.repair.spec
 
     @property
     def limit_gap(self) -> float | None:
@@ -136,6 +178,10 @@ class Candidate:
                "meets_target": self.meets_target, "within_overhead": self.within_overhead,
                "weights_known": self.weights_known,
                "predicted": self.prediction.to_dict(),
+               "repair": None if self.repair is None else self.repair.to_dict(),
+               "after_repair": None if self.after_repair is None else
+               {"bit_error": self.after_repair[0], "frame_error": self.after_repair[1],
+                "lost_bits_counted": self.lost_bits_counted},
                "limit": None if self.limit is None else {**self.limit.to_dict(), "rate_gap_shown": self.limit_gap}}
         if self.burst_covered_bits is not None:
             out["burst_covered_bits"] = self.burst_covered_bits
@@ -173,6 +219,44 @@ class Verification:
 
 
 @dataclass(frozen=True)
+class RepairVerification:
+    """The top choice's repair ratio run through the real encoder, `inject` (every channel
+    of the plan) and decoder, beside the prediction. Over G whole groups of K data frames:
+    data frames missing before repair (rebuilt or lost) against q, groups that lost data for
+    good against P[M > R] (independent trials: Clopper-Pearson), and data frames lost for
+    good against the exact distribution of their total (G independent groups)."""
+
+    spec: str
+    code: str
+    depth: int
+    seed: int
+    frames: int  # data frames sent (whole groups)
+    groups: int
+    missing: int  # data frames that needed a rebuild: dropped or damaged
+    predicted_q: float
+    missing_low: float
+    missing_high: float
+    failed_groups: int
+    predicted_group_failure: float
+    group_low: float
+    group_high: float
+    lost: int  # data frames lost for good
+    predicted_lost: float  # frames x the predicted residual frame loss
+    lost_low: int  # central 95% of the predicted total
+    lost_high: int
+    exact: bool  # every delivered frame is byte for byte what was sent
+
+    @property
+    def agrees(self) -> bool:
+        return (self.missing_low <= self.predicted_q <= self.missing_high
+                and self.group_low <= self.predicted_group_failure <= self.group_high
+                and self.lost_low <= self.lost <= self.lost_high and self.exact)
+
+    def to_dict(self) -> dict:
+        return {**self.__dict__, "agrees": self.agrees}
+
+
+@dataclass(frozen=True)
 class Plan:
     channels: tuple[str, ...]
     channel_lines: tuple[str, ...]
@@ -189,9 +273,11 @@ class Plan:
     depth_rule: str
     skipped: tuple[str, ...] = ()
     verification: Verification | None = None
+    repair_verification: RepairVerification | None = None
     max_depth: int = MAX_DEPTH
     rank_rule: str = ""
     limit_note: str = ""
+    repair_rule: str = ""  # with a drop channel: how R/K is chosen; empty otherwise (no repair proposed)
 
     @property
     def top(self) -> Candidate | None:
@@ -206,8 +292,9 @@ class Plan:
                 "over_budget": [c.to_dict() for c in self.over_budget],
                 "formulas": list(self.formulas), "assumptions": list(self.assumptions),
                 "depth_rule": self.depth_rule, "rank_rule": self.rank_rule, "max_depth": self.max_depth,
-                "limit_note": self.limit_note, "skipped": list(self.skipped),
-                "verification": self.verification.to_dict() if self.verification else None}
+                "limit_note": self.limit_note, "repair_rule": self.repair_rule, "skipped": list(self.skipped),
+                "verification": self.verification.to_dict() if self.verification else None,
+                "repair_verification": self.repair_verification.to_dict() if self.repair_verification else None}
 
     def render(self, shown: int = SHOWN) -> list[str]:
         """The plan as text lines for a terminal."""
@@ -443,6 +530,73 @@ def _cheapest_depth(setup: _Setup, code, custom: bool) -> Candidate:
     return _candidate(setup, code, custom, depths[pick], *predictions[pick], weights_known=weights is not None)
 
 
+def _bad_bits(prediction: Prediction, channel: _Channel) -> float:
+    """The share of a data frame's payload bits that go bad before repair, with a drop
+    channel: all of them when the frame is lost outright (dropped, or both header copies
+    failed: nothing is delivered), else the wrong bits as delivered (prediction.bit_error)."""
+    lost = 1.0 - (1.0 - channel.drop) * (1.0 - prediction.header_loss)
+    return min(1.0, lost + (1.0 - lost) * prediction.bit_error)
+
+
+def _cheapest_with_repair(setup: _Setup, code, custom: bool) -> Candidate:
+    """With a drop channel: the code at the depth D and repair ratio R/K (R = 0: no repair
+    frames) whose stream meets the target with the fewest wire bytes per data frame,
+    W(D) + (R/K) W_r(D); on a tie the smaller group K (a rebuilt frame waits for its group),
+    then the shallower depth. Every depth 1..max_depth and every R, K of 1..32 is evaluated
+    (analysis.repair_groups.not_rebuilt_table does all R and K at once). When nothing meets
+    the target: the choice with the lowest rate within the overhead limit (else overall)."""
+    depths = tuple(range(1, setup.max_depth + 1))
+    weights = _weights(code)
+    data = predict_depths(code, depths, setup.channel, setup.frame_bytes, custom, weights)
+    # a repair frame's payload is the group's longest source symbol: a full frame's payload
+    # plus its 11-byte head (flags, position, length) and 4-byte CRC-32C (container/repair.py)
+    repair_bytes = setup.frame_bytes + SYMBOL_OVERHEAD
+    repairs = (predict_depths(code, depths, setup.channel, repair_bytes, custom, weights)
+               if repair_bytes <= fmt.MAX_PAYLOAD_BYTES else None)
+    q = np.array([p.frame_error for p, _ in data])
+    wire = np.array([h.frame_bytes for _, h in data], dtype=float)
+    if repairs is None:  # a frame so large that its repair symbol would pass the reader's limit
+        q_r, wire_r, max_r = q, wire, 0
+    else:
+        q_r = np.array([p.frame_error for p, _ in repairs])
+        wire_r = np.array([h.frame_bytes for _, h in repairs], dtype=float)
+        max_r = MAX_REPAIR
+    bad = q if setup.per == "frame" else np.array([_bad_bits(p, setup.channel) for p, _ in data])
+    table = repair_groups.not_rebuilt_table(q, q_r, MAX_GROUP, max_r)  # [depth, K - 1, R]
+    rates = bad[:, None, None] * table
+    ks = np.arange(1, MAX_GROUP + 1, dtype=float)[None, :, None]
+    rs = np.arange(max_r + 1, dtype=float)[None, None, :]
+    # wire bytes per data frame; (K W + R W_r) / K rounds the same rational the same way
+    # for equal ratios (1/8, 2/16), so equal overheads tie exactly
+    cost = (ks * wire[:, None, None] + rs * wire_r[:, None, None]) / ks
+    d_idx, k_idx, r_idx = np.indices(rates.shape)
+    meets = rates <= setup.target
+    if meets.any():
+        pool = meets
+        order = np.lexsort((r_idx[pool], d_idx[pool], k_idx[pool], cost[pool]))
+    else:
+        within = (cost / setup.frame_bytes - 1.0 <= setup.max_overhead + 1e-12) if setup.max_overhead is not None \
+            else np.ones_like(meets)
+        pool = within if within.any() else np.ones_like(meets)
+        order = np.lexsort((d_idx[pool], k_idx[pool], cost[pool], rates[pool]))
+    pick = order[0]
+    di, ki, ri = int(d_idx[pool][pick]), int(k_idx[pool][pick]), int(r_idx[pool][pick])
+    prediction, header = data[di]
+    base = _candidate(setup, code, custom, depths[di], prediction, header, weights_known=weights is not None)
+    k, r = ki + 1, ri
+    overhead = float(cost[di, ki, ri]) / setup.frame_bytes - 1.0
+    rate = float(rates[di, ki, ri])
+    qd, qr, kept = float(q[di]), float(q_r[di]), float(table[di, ki, ri])
+    bits = _bad_bits(prediction, setup.channel)
+    choice = None
+    if r > 0:
+        choice = RepairChoice(r, k, int(wire_r[di]), r * float(wire_r[di]) / (k * setup.frame_bytes), qd, qr, bits,
+                              kept, repair_groups.group_failure(k, r, qd, qr), qd * kept, bits * kept)
+    return replace(base, overhead=overhead, rate=rate, meets_target=rate <= setup.target,
+                   within_overhead=setup.max_overhead is None or overhead <= setup.max_overhead + 1e-12,
+                   repair=choice, lost_bits_counted=True, after_repair=(bits * kept, qd * kept))
+
+
 def parse_overhead(text: str | float | None) -> float | None:
     """'25%' or '0.25' -> 0.25; None stays None (no limit)."""
     if text is None or isinstance(text, (int, float)):
@@ -491,9 +645,10 @@ def make_plan(channels: str | ChannelModel | Sequence[str | ChannelModel], targe
     codes += [(code, True) for code in extra_codes]
 
     candidates = []
+    search = _cheapest_with_repair if channel.drop > 0 else _cheapest_depth  # no drop: no repair proposed
     for code, custom in codes:
         try:
-            candidates.append(_cheapest_depth(setup, code, custom))
+            candidates.append(search(setup, code, custom))
         except ValueError as exc:  # e.g. a custom code's frames too large for the reader's limit
             skipped.append(f"{code.name}: {exc}")
     ranked = sorted((c for c in candidates if c.meets_target and c.within_overhead),
@@ -509,11 +664,62 @@ def make_plan(channels: str | ChannelModel | Sequence[str | ChannelModel], targe
                              [code for code, _ in codes if _weights(code) is None and _symbol_bits(code) == 1],
                              any(_symbol_bits(code) > 1 for code, _ in codes)),
                 _depth_rule(channel, setup.max_depth), tuple(skipped), max_depth=setup.max_depth,
-                rank_rule=RANK_RULE, limit_note=_limit_note(setup))
+                rank_rule=RANK_RULE, limit_note=_limit_note(setup),
+                repair_rule=REPAIR_RULE if channel.drop > 0 else "")
     if verify and ranked:
         plan = Plan(**{**plan.__dict__, "verification": verify_candidate(plan, ranked[0], extra_codes,
                                                                           verify_bits, seed)})
+        if ranked[0].repair is not None:
+            plan = Plan(**{**plan.__dict__, "repair_verification": verify_repair(plan, ranked[0], extra_codes, seed)})
     return plan
+
+
+VERIFY_REPAIR_BYTES = 8 << 20  # payload of the repair run: a few seconds through the real codec
+VERIFY_REPAIR_FRAMES = 2048
+
+
+def verify_repair(plan: Plan, candidate: Candidate, extra_codes: Sequence[BinaryLinearCode] = (), seed: int = 1,
+                  frames: int | None = None) -> RepairVerification:
+    """Encode random whole groups with the candidate's code, depth and --repair R/K, send
+    them through `inject` with every channel of the plan, decode, and count what was
+    missing before repair and what stayed lost (module bitmend.analysis.repair_groups)."""
+    import random
+
+    from bitmend.analysis.intervals import clopper_pearson
+    from bitmend.api import decode_bytes, encode_bytes
+    from bitmend.inject import inject_bytes
+
+    rc = candidate.repair
+    if rc is None:
+        raise ValueError("the candidate sends no repair frames")
+    code = next((c for c in extra_codes if c.name == candidate.code), None) if candidate.custom else None
+    code = code if code is not None else candidate.code
+    wanted = frames or min(VERIFY_REPAIR_FRAMES, max(1, VERIFY_REPAIR_BYTES // plan.frame_bytes))
+    groups = max(1, wanted // rc.k)
+    count = groups * rc.k  # whole groups: the last one is full too
+    data = random.Random(seed).randbytes(count * plan.frame_bytes)
+    blob = encode_bytes(data, code=code, depth=candidate.depth, frame_bytes=plan.frame_bytes, repair=rc.spec)
+    damaged, _ = inject_bytes(blob, list(plan.channels), seed=seed)
+    decoded = decode_bytes(damaged, on_error="drop")  # frames not delivered verified leave no bytes
+    status = {f.seq: f.status for f in decoded.report.frames if f.seq is not None and f.seq < count}
+    delivered = sorted(seq for seq, st in status.items() if st in ("clean", "corrected", "rebuilt"))
+    lost = [seq for seq in range(count) if status.get(seq) not in ("clean", "corrected", "rebuilt")]
+    missing = sum(1 for seq in range(count) if status.get(seq) not in ("clean", "corrected"))
+    failed = len({seq // rc.k for seq in lost})
+    fb = plan.frame_bytes
+    exact = decoded.data == b"".join(data[seq * fb:(seq + 1) * fb] for seq in delivered)
+    m_low, m_high = clopper_pearson(missing, count)
+    g_low, g_high = clopper_pearson(failed, groups)
+    # the total lost over independent groups: the per-group distribution convolved G times
+    per_group = repair_groups.lost_per_group_pmf(rc.k, rc.r, rc.frame_loss, rc.repair_frame_loss)
+    total = np.array([1.0])
+    for _ in range(groups):
+        total = np.convolve(total, per_group)
+    cdf = np.cumsum(total)
+    low, high = int(np.searchsorted(cdf, 0.025)), int(np.searchsorted(cdf, 0.975))
+    return RepairVerification(rc.spec, candidate.code, candidate.depth, seed, count, groups, missing, rc.frame_loss,
+                              m_low, m_high, failed, rc.group_failure, g_low, g_high, len(lost),
+                              rc.frame_error * count, low, high, exact)
 
 
 # ---- verification -------------------------------------------------------------------------------
@@ -545,6 +751,9 @@ def verify_candidate(plan: Plan, candidate: Candidate, extra_codes: Sequence[Bin
     if len(flips) < len(plan.channels):
         notes.append("simulate runs the flip channels only; drop and slip losses are in the prediction, "
                      "not in the measurement")
+    if candidate.repair is not None:
+        notes.append(f"with --repair {candidate.repair.spec} the target applies after repair; this run checks the "
+                     "frame failure before repair (P_fail), the repair check below the rest")
     if not flips:
         flips = (BSC(0.0),)
     bits = bits or verify_bits_for(candidate, plan.per, plan.frame_bytes, plan.target)
@@ -603,6 +812,22 @@ def _formulas(channel: _Channel, per: str, symbols: bool = False) -> tuple[str, 
               "for one header copy (11 golay-24-12 codewords at depth 11, P_G their block error)"]
     if channel.drop or channel.slip:
         lines.append("P_loss = 1 - (1 - p_drop) (1 - p_slip)^W,  W the frame's wire bits")
+    if channel.drop:
+        lines += ["repair R/K: a data frame is missing with q = 1 - (1 - p_drop)(1 - P_fail) = P_frame, P_fail its "
+                  "failure after decoding (CRC, both headers, slip); in a group of K data + R repair frames the "
+                  "missing count M is Binomial(K+R, q), and a data frame is delivered unless M > R (any K of the "
+                  "K+R rebuild the group)",
+                  "residual frame loss = E[missing data frames in groups with M > R] / K "
+                  "= (1/(K+R)) sum_{m=R+1}^{K+R} m C(K+R,m) q^m (1-q)^(K+R-m) = q P[Binomial(K+R-1, q) >= R] "
+                  "(a data frame is lost when it is missing and at least R of the other K+R-1 are too)",
+                  "a repair frame carries B + 15 payload bytes (symbol head and CRC-32C), so its own q_r is "
+                  "computed at that size and the residual taken exactly as q P[Bin(K-1, q) + Bin(R, q_r) >= R]",
+                  "overhead with repair = (K W + R W_r) / (K B) - 1,  W and W_r the wire bytes of a data and a "
+                  "repair frame, B the payload bytes of a data frame"]
+        if per == "bit":
+            lines.append("bit rate with repair = e P[Bin(K-1, q) + Bin(R, q_r) >= R],  e = P_lost + (1 - P_lost) "
+                         "P_bit, P_lost = 1 - (1 - p_drop)(1 - P_H^2): a frame that is not rebuilt loses all its "
+                         "bits when it never arrived, and keeps its wrong bits when it arrived damaged")
     if channel.slip:
         lines.append("P_bit += P_slip / 4: a frame with a slip is delivered with the bits after it at random")
     return tuple(lines)
@@ -636,7 +861,11 @@ def _assumptions(channel: _Channel, per: str, custom: bool, unweighted: Sequence
                      "miscorrection and a wrong byte as 128/255 wrong bits, so the bit error is an upper bound")
     if unweighted:
         lines.append(_unweighted_text(unweighted))
-    if per == "bit":
+    if per == "bit" and channel.drop:
+        lines.append("the bit rate counts payload bits as `decode --on-error keep` writes them, wrong or not, and, "
+                     "with a drop channel, every payload bit of a frame never delivered (neither arrived nor rebuilt) "
+                     "as a bad bit: otherwise frames lost would not count at all")
+    elif per == "bit":
         lines.append("the bit rate counts payload bits as `decode --on-error keep` writes them, wrong or not, "
                      "before the CRC flags the frame; frames lost outright deliver nothing and are not counted")
     else:
@@ -657,14 +886,32 @@ def _assumptions(channel: _Channel, per: str, custom: bool, unweighted: Sequence
         lines.append("flips of different channels on the same bit would cancel; adding the counts ignores "
                      "that, an upper bound")
     if channel.drop:
-        lines.append("drop: no code inside a frame restores a frame that vanished; it puts a floor under "
-                     "the frame rate that no choice here can lower")
+        lines += ["drop combined with the bit-error channel: the drop channel takes each frame with probability "
+                  "p_drop, independently of the bit errors, and a frame that is not dropped fails with the "
+                  "probability P_fail predicted above; so a frame is missing with q = 1 - (1 - p_drop)(1 - P_fail)",
+                  "losses are independent from frame to frame (drop draws each frame apart; bit errors in one frame "
+                  "say nothing of the next: a frame spans far more bits than a burst lasts), so the missing "
+                  "frames of a group are binomial; clustered losses (a fade longer than a frame) would cost more",
+                  "repair: the erasure code is MDS (any K of a group's K+R frames rebuild it; fewer rebuild none of "
+                  "the missing data frames); groups are full (a stream's last, shorter group is stronger); the "
+                  "reader holds a whole group (at most 32 data frames, within its reorder window); a rebuilt frame "
+                  "is verified by its CRC-32C",
+                  "without repair frames no code inside a frame restores a frame that vanished: the frame loss "
+                  "stays at p_drop or above"]
     if channel.slip:
         lines.append("slip: a slip anywhere in a frame costs that frame; the reader resynchronises at the next")
     lines.append("overhead = wire bytes / payload bytes - 1 for a full frame: marker, header and copy (74 bytes), "
                  "CRC-32C (4), parity, padding to whole groups and bytes" +
                  (", two code-definition blocks for a code in the stream" if custom else ""))
     return tuple(lines)
+
+
+REPAIR_RULE = (f"a drop channel loses whole frames, which no code inside a frame restores: each code and depth is "
+               f"tried with every repair ratio R/K (R repair frames after every K data frames, 1 <= K <= {MAX_GROUP}, "
+               f"1 <= R <= {MAX_REPAIR}; `encode --repair R/K`) and without; the repair frames' wire bytes "
+               "(R/K of a repair frame per data frame) are added to the whole-frame overhead, and the cheapest "
+               "combination that meets the target is kept (on a tie the smaller group K: a rebuilt frame waits for "
+               "its group; frames that arrive whole wait for nothing)")
 
 
 RANK_RULE = ("codes are ranked by the overhead of a whole frame on the wire (marker, both headers, CRC, parity, "
@@ -720,9 +967,18 @@ def _share(q: float) -> str:
     return f"{100 * q:.1f}%" if 1 - q >= 1e-3 else f"all but {1 - q:.1e}"
 
 
-def _describe(c: Candidate, per: str) -> str:
+def _after_repair(c: Candidate) -> tuple[float, float]:
+    """(bit, frame) rates as the target counts them: after repair with a drop channel (bits
+    never delivered counted as bad), else the prediction's own."""
     p = c.prediction
-    row = (f"{c.code:<16}{c.depth:>6}{_pct(c.overhead):>10}{p.bit_error:>11.2e}{p.frame_error:>12.2e}"
+    return c.after_repair if c.after_repair is not None else (p.bit_error, p.frame_error)
+
+
+def _describe(c: Candidate, per: str, repair_column: bool = False) -> str:
+    p = c.prediction
+    bit, frame = _after_repair(c) if repair_column else (p.bit_error, p.frame_error)
+    repair = f"{c.repair_spec or '-':>7}" if repair_column else ""
+    row = (f"{c.code:<16}{c.depth:>6}{repair}{_pct(c.overhead):>10}{bit:>11.2e}{frame:>12.2e}"
            f"{p.block_error:>12.2e}{_gap(c)}")
     if c.burst_covered_bits is not None:
         share = _share(c.burst_quantile)
@@ -735,35 +991,48 @@ def _render(plan: Plan, shown: int) -> list[str]:
     limit = "no limit" if plan.max_overhead is None else f"at most {_pct(plan.max_overhead)}"
     lines = ["channel:"] + [f"  {spec}: {text}" for spec, text in zip(plan.channels, plan.channel_lines)]
     lines += [f"target: at most {plan.target:.3g} {what}; frames of {plan.frame_bytes} payload bytes; "
-              f"overhead {limit}", f"rank: {plan.rank_rule}", f"depth: {plan.depth_rule}", plan.limit_note, ""]
-    head = (f"{'code':<16}{'depth':>6}{'overhead':>10}{'bit err':>11}{'frame err':>12}{'block err':>12}"
-            f"{'rate gap':>9}")
+              f"overhead {limit}", f"rank: {plan.rank_rule}", f"depth: {plan.depth_rule}"]
+    repairs = bool(plan.repair_rule)
+    if repairs:
+        lines.append(f"repair: {plan.repair_rule}")
+    lines += [plan.limit_note, ""]
+    head = (f"{'code':<16}{'depth':>6}{'repair' if repairs else '':>{7 if repairs else 0}}{'overhead':>10}{'bit err':>11}"
+            f"{'frame err':>12}{'block err':>12}{'rate gap':>9}")
     if plan.ranked:
         lines.append(f"{len(plan.ranked)} choice{'s' * (len(plan.ranked) != 1)} meet the target; "
                      f"cheapest whole frame first:")
         lines.append("rank " + head)
+        if repairs:
+            lines.append("     (bit err and frame err after the repair frames; bits never delivered count as bad)")
         for i, c in enumerate(plan.ranked[:shown], 1):
-            lines.append(f"{i:>4} " + _describe(c, plan.per))
+            lines.append(f"{i:>4} " + _describe(c, plan.per, repairs))
         top = plan.ranked[0]
         code = f"--code-file <the file of {top.code}>" if top.custom else f"--code {top.code}"
-        lines += ["", f"choice: bitmend encode {code} --depth {top.depth} --frame-bytes {plan.frame_bytes}"]
+        repair = f" --repair {top.repair_spec}" if top.repair is not None else ""
+        lines += ["", f"choice: bitmend encode {code} --depth {top.depth} --frame-bytes {plan.frame_bytes}{repair}"]
         lines += _worked(top, plan)
     else:
         lines.append(f"nothing meets the target {plan.target:.3g} "
                      f"{'within the overhead limit' if plan.max_overhead is not None else ''}".rstrip() + ".")
+        if repairs:
+            lines.append(f"no repair ratio R/K (1 <= K <= {MAX_GROUP}, 1 <= R <= {MAX_REPAIR}) with any code and depth "
+                         "brings the lost frames down to the target" +
+                         (" within the overhead limit" if plan.max_overhead is not None else ""))
         if plan.closest:
             lines.append("closest within the limit:" if plan.max_overhead is not None else "closest:")
             lines.append("     " + head + "   off by")
             for c in plan.closest:
-                lines.append("     " + _describe(c, plan.per) + f"   {c.times_target:.3g}x the target")
+                lines.append("     " + _describe(c, plan.per, repairs) + f"   {c.times_target:.3g}x the target")
             lines += _worked(plan.closest[0], plan)
     if plan.over_budget:
         lines.append("")
         lines.append("meet the target but cost more than the overhead limit:")
         for c in plan.over_budget:
-            lines.append("     " + _describe(c, plan.per))
+            lines.append("     " + _describe(c, plan.per, repairs))
     if plan.verification:
         lines += [""] + _render_verification(plan.verification)
+    if plan.repair_verification:
+        lines += [""] + _render_repair_verification(plan.repair_verification, plan.target)
     lines += ["", "formulas:"] + [f"  {f}" for f in plan.formulas]
     lines += ["assumptions:"] + [f"  - {a}" for a in plan.assumptions]
     if plan.skipped:
@@ -773,8 +1042,9 @@ def _render(plan: Plan, shown: int) -> list[str]:
 
 def _worked(c: Candidate, plan: Plan) -> list[str]:
     p = c.prediction
+    frame_overhead = c.frame_wire_bytes / plan.frame_bytes - 1.0
     lines = [f"  {c.code} ({c.n},{c.k}), d = {c.d}, t = {c.t}, depth {c.depth}: one frame is {c.frame_wire_bytes} "
-             f"bytes on the wire for {plan.frame_bytes} payload bytes ({_pct(c.overhead)} overhead), "
+             f"bytes on the wire for {plan.frame_bytes} payload bytes ({_pct(frame_overhead)} overhead), "
              f"B = {c.blocks} codewords",
              f"  P_B = sum_(i>{c.t}) P(i) = {p.block_error:.3g} "
              + (f"(miscorrected {p.miscorrected:.3g}); " if c.weights_known else
@@ -782,6 +1052,43 @@ def _worked(c: Candidate, plan: Plan) -> list[str]:
              + f"P_bit = {p.bit_error:.3g}{'' if c.weights_known else ' (an upper bound)'}",
              f"  P_frame = 1 - (1 - {p.block_error:.3g})^{c.blocks} x (1 - {p.header_loss:.2g}) x "
              f"(1 - {p.channel_loss:.2g}) = {p.frame_error:.3g}"]
+    if c.repair is not None:
+        lines += _worked_repair(c.repair, plan)
+    elif c.lost_bits_counted:
+        lines.append("  no repair frames: a frame that is dropped or fails stays lost "
+                     f"(frame loss {p.frame_error:.3g}, bad bits {c.after_repair[0]:.3g})")
+    return lines
+
+
+def _worked_repair(rc: RepairChoice, plan: Plan) -> list[str]:
+    """The repair choice's numbers in the formula's terms."""
+    n = rc.k + rc.r
+    lines = [f"  repair {rc.spec}: {rc.r} repair frame{'s' * (rc.r != 1)} of {rc.repair_frame_bytes} bytes after every "
+             f"{rc.k} data frames: R W_r / (K B) = {rc.r} x {rc.repair_frame_bytes} / ({rc.k} x {plan.frame_bytes}) "
+             f"= {_pct(rc.overhead)} of the payload, included in the overhead above",
+             f"  q = P_frame = {rc.frame_loss:.3g} per data frame (q_r = {rc.repair_frame_loss:.3g} per repair frame); "
+             f"P(more than {rc.r} of a group's {n} frames missing) = {rc.group_failure:.3g}",
+             f"  residual frame loss = q P[Bin({rc.k - 1}, q) + Bin({rc.r}, q_r) >= {rc.r}] = {rc.frame_loss:.3g} x "
+             f"{rc.not_rebuilt:.3g} = {rc.frame_error:.3g}"]
+    if plan.per == "bit":
+        lines.append(f"  residual bad bits = e x {rc.not_rebuilt:.3g} = {rc.bit_error:.3g}, e = {rc.bad_bits:.3g} "
+                     "(a lost frame's bits all count; a damaged one's wrong bits as delivered)")
+    return lines
+
+
+def _render_repair_verification(v: RepairVerification, target: float) -> list[str]:
+    lines = [f"repair check: {v.frames} data frames ({v.groups} groups) of {v.code} at depth {v.depth} with "
+             f"--repair {v.spec} through encode | inject (every channel above, seed {v.seed}) | decode:",
+             f"  missing before repair: {v.missing} ({v.missing / v.frames:.3g}; 95% interval {v.missing_low:.3g} .. "
+             f"{v.missing_high:.3g}), predicted q = {v.predicted_q:.3g}",
+             f"  groups that lost data for good: {v.failed_groups} of {v.groups} (95% interval {v.group_low:.3g} .. "
+             f"{v.group_high:.3g}), predicted {v.predicted_group_failure:.3g}",
+             f"  data frames lost for good: {v.lost}, predicted {v.predicted_lost:.3g} (95% of runs lose "
+             f"{v.lost_low} .. {v.lost_high}); delivered frames {'exact' if v.exact else 'NOT EXACT'}",
+             "  " + ("agrees with the prediction" if v.agrees else "DISAGREES with the prediction")
+             + (f"; a run this short cannot show a loss as rare as {target:.3g}: the formula carries that "
+                "(tests/test_plan_repair.py checks it at a loss a run can measure)"
+                if v.predicted_lost < 3 else "")]
     return lines
 
 
