@@ -675,7 +675,8 @@ def inspect(
                 payload += 0 if h.repair else h.length
                 wire += h.frame_bytes
                 streams[stream] = streams.get(stream, 0) + 1
-                notes = [w for w, on in (("last", h.last), ("repair", h.repair), ("truncated", f.truncated),
+                notes = [w for w, on in (("last", h.last), ("repair", h.repair), ("keyed", h.keyed),
+                                         ("truncated", f.truncated),
                                          ("header from copy", f.header_from_copy)) if on]
                 if as_json:
                     typer.echo(json.dumps({"type": "frame", "seq": h.seq, "offset": f.offset,
@@ -683,7 +684,8 @@ def inspect(
                                            "position": h.position if h.identified and not h.repair else None,
                                            "code": names.get(h.code_id) or h.code_name,
                                            "depth": h.depth, "payload_bytes": h.length, "frame_bytes": h.frame_bytes,
-                                           "last": h.last, "repair": h.repair, "truncated": f.truncated,
+                                           "last": h.last, "repair": h.repair, "keyed": h.keyed,
+                                           "truncated": f.truncated,
                                            "marker_distance": f.marker_distance}, separators=(",", ":")))
                 else:
                     typer.echo(f"{h.seq:>8} {f.offset:>12} {stream or '(version 1)':<17}"
