@@ -18,7 +18,7 @@ prediction runs in three steps, all closed forms from `bitmend.analysis`:
    frame losses (drop, slip).
 
 Overhead counts everything on the wire for a full frame: marker, header and its copy
-(74 bytes), the payload CRC-32C (4 bytes), the code's parity, padding to whole groups of D
+(128 bytes in format version 2), the payload CRC-32C (4 bytes), the code's parity, padding to whole groups of D
 codewords and to whole bytes, and, for a code defined in the stream, its two
 definition blocks. `FrameHeader(...).frame_bytes` gives the exact size.
 
@@ -29,6 +29,17 @@ The overhead is not monotone in the depth (padding to whole groups of D codeword
 smallest depth that meets the target is not always the cheapest. On a burst channel the plan
 says which share of the chain's bad spells the depth covers: depth D corrects every burst of
 up to D t bits, and spell lengths are geometric with mean 1/leave.
+
+With a drop channel (`drop:p=`, whole frames lost) each code and depth is also tried with
+every repair ratio R/K of `encode --repair` (R repair frames after every K data frames,
+1 <= K, R <= 32) and without; a data frame is missing with q = 1 - (1 - p_drop)(1 - P_fail),
+P_fail its failure after decoding (the P_frame above without the drop), and is lost for good
+when at least R of the other K + R - 1 frames of its group are missing too:
+P_res = q P[Binomial(K+R-1, q) >= R] (`analysis.repair_groups`, which also takes a repair
+frame's own, slightly larger, miss probability). The repair frames' wire bytes, R/K of a
+repair frame per data frame, join the whole-frame overhead the codes are ranked by. For a
+bit target the bits of a frame never delivered count as bad bits. Without a drop channel no
+repair is proposed.
 
 On a binary symmetric channel each choice also carries its distance to the limit
 (`analysis.limits`): the best rate any code of its length could have at its block error
@@ -808,8 +819,9 @@ def _formulas(channel: _Channel, per: str, symbols: bool = False) -> tuple[str, 
     lines += ["P_B = sum_{i>t} P(i)   (bounded-distance decoding fails)",
               "P_bit = (1/n) sum_{i>t} P(i) (i + m_i (min(n, i+t) - i)),  m_i = N_i / C(n,i), N_i the weight-i "
               "patterns within t of a non-zero codeword (from the weight distribution)",
-              "P_frame = 1 - (1 - P_B)^B (1 - P_H^2) (1 - P_loss),  B codewords per frame, P_H = 1 - (1 - P_G)^11 "
-              "for one header copy (11 golay-24-12 codewords at depth 11, P_G their block error)"]
+              f"P_frame = 1 - (1 - P_B)^B (1 - P_H^2) (1 - P_loss),  B codewords per frame, "
+              f"P_H = 1 - (1 - P_G)^{fmt.HEADER_DEPTH} for one header copy ({fmt.HEADER_DEPTH} {fmt.HEADER_CODE} "
+              f"codewords at depth {fmt.HEADER_DEPTH}, P_G their block error)"]
     if channel.drop or channel.slip:
         lines.append("P_loss = 1 - (1 - p_drop) (1 - p_slip)^W,  W the frame's wire bits")
     if channel.drop:
@@ -900,7 +912,8 @@ def _assumptions(channel: _Channel, per: str, custom: bool, unweighted: Sequence
                   "stays at p_drop or above"]
     if channel.slip:
         lines.append("slip: a slip anywhere in a frame costs that frame; the reader resynchronises at the next")
-    lines.append("overhead = wire bytes / payload bytes - 1 for a full frame: marker, header and copy (74 bytes), "
+    lines.append(f"overhead = wire bytes / payload bytes - 1 for a full frame: marker, header and copy "
+                 f"({len(fmt.MARKER_BYTES) + 2 * fmt.HEADER_BYTES} bytes), "
                  "CRC-32C (4), parity, padding to whole groups and bytes" +
                  (", two code-definition blocks for a code in the stream" if custom else ""))
     return tuple(lines)
