@@ -134,6 +134,14 @@ def test_without_a_feasible_ratio_the_plan_says_so():
     assert "no repair ratio R/K" in "\n".join(plan.render())
 
 
+def test_frames_too_large_for_a_repair_symbol_get_no_repair_and_the_plan_says_why():
+    from bitmend.container import format as fmt
+
+    plan = make_plan("drop:p=0.01", target=1e-3, per="frame", frame_bytes=fmt.MAX_PAYLOAD_BYTES, max_depth=1)
+    assert plan.top is None and all(c.repair is None for c in plan.candidates)
+    assert f"--frame-bytes {fmt.MAX_PAYLOAD_BYTES - SYMBOL_OVERHEAD} or less" in "\n".join(plan.render())
+
+
 def test_plan_cli_json_gives_r_and_k():
     run = run_cli("plan", "--channel", "drop:p=0.02", "--target", "1e-6", "--per", "frame", "--frame-bytes", "1024",
                   "--max-depth", "2", "--json")

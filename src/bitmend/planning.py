@@ -1027,7 +1027,11 @@ def _render(plan: Plan, shown: int) -> list[str]:
     else:
         lines.append(f"nothing meets the target {plan.target:.3g} "
                      f"{'within the overhead limit' if plan.max_overhead is not None else ''}".rstrip() + ".")
-        if repairs:
+        if repairs and plan.frame_bytes + SYMBOL_OVERHEAD > fmt.MAX_PAYLOAD_BYTES:
+            lines.append(f"no repair frames at this frame size: a repair frame carries {SYMBOL_OVERHEAD} bytes more "
+                         f"than a data frame, above the reader's {fmt.MAX_PAYLOAD_BYTES}-byte payload limit; "
+                         f"use --frame-bytes {fmt.MAX_PAYLOAD_BYTES - SYMBOL_OVERHEAD} or less")
+        elif repairs:
             lines.append(f"no repair ratio R/K (1 <= K <= {MAX_GROUP}, 1 <= R <= {MAX_REPAIR}) with any code and depth "
                          "brings the lost frames down to the target" +
                          (" within the overhead limit" if plan.max_overhead is not None else ""))
