@@ -154,3 +154,11 @@ def test_cli_repair_rebuilds_what_a_dropping_channel_lost_unless_a_group_lost_mo
     assert (dec.code == 0) == (not beyond)
     lost_bytes = {seq: data[256 * seq: 256 * (seq + 1)] for seq in beyond}
     assert dec.out == b"".join(data[256 * i: 256 * (i + 1)] for i in range(300) if i not in lost_bytes)
+
+
+def test_repair_refuses_frames_too_large_for_a_repair_frame_to_carry():
+    # a repair symbol is a payload plus 15 bytes (flags, position, length, CRC-32C)
+    with pytest.raises(ValueError, match="at most 1048561"):
+        bitmend.encode_bytes(b"x", frame_bytes=fmt.MAX_PAYLOAD_BYTES, repair="1/4")
+    blob = bitmend.encode_bytes(b"x" * 100, frame_bytes=fmt.MAX_PAYLOAD_BYTES - 15, repair="1/4")
+    assert bitmend.decode_bytes(blob).report.summary.repair_frames == 1

@@ -9,7 +9,7 @@ from typing import BinaryIO
 from bitmend.codes.catalog import MAX_DEPTH, code_id, code_names, get_code
 from bitmend.codes.linear import BinaryLinearCode
 from bitmend.container import format as fmt
-from bitmend.container.repair import GroupBuilder, parse_repair
+from bitmend.container.repair import SYMBOL_OVERHEAD, GroupBuilder, parse_repair
 
 
 def resolve_code(code: str | BinaryLinearCode) -> tuple[int, BinaryLinearCode | None]:
@@ -63,6 +63,10 @@ class FrameWriter:
         # repair frames: R after every K data frames (container/repair.py), or none
         self._key = key  # frames carry a tag under this shared key (flag 0x04)
         spec = parse_repair(repair)
+        if spec and frame_bytes + SYMBOL_OVERHEAD > fmt.MAX_PAYLOAD_BYTES:
+            # a repair frame carries a data frame's payload and 15 bytes of its place and CRC
+            raise ValueError(f"with repair frames a frame holds at most {fmt.MAX_PAYLOAD_BYTES - SYMBOL_OVERHEAD} "
+                             f"bytes, got --frame-bytes {frame_bytes}")
         self._group = GroupBuilder(*spec) if spec else None
         self.repair_frames = 0
         self.bytes_in = 0
