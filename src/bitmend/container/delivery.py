@@ -40,6 +40,8 @@ HALF_SEQ = fmt.SEQ_MODULUS // 2
 POSITION_MODULUS = 1 << fmt.POSITION_BITS
 _RECENT_STREAMS = 16  # closed streams remembered, so their late copies count as duplicates
 _RECENT_LOST = 4096  # sequence numbers declared lost remembered, so a late arrival is named as such
+_FOREIGN_STREAMS_KEPT = 1024  # foreign stream ids remembered
+_NOTES_KEPT = 20
 
 
 @dataclass(frozen=True)
@@ -139,8 +141,9 @@ class Sequencer:
         self._aside: list[DecodedFrame] = []  # frames of other streams while the current is open
         self._recent_closed: deque[int] = deque(maxlen=_RECENT_STREAMS)
         self._recent_lost: deque[tuple[int, int]] = deque(maxlen=_RECENT_LOST)
-        self._foreign_ids: dict[int, int] = {}  # stream id (-1: version 1) -> frames skipped as foreign
-        self._foreign_seen: set[int] = set()
+        # stream id (-1: version 1) -> frames skipped as foreign; bounded against hostile input
+        # naming a new stream in every frame (those are still counted)
+        self._foreign_ids: dict[int, int] = {}
 
     # ---- public --------------------------------------------------------------------------
     def push(self, frame: DecodedFrame) -> list[Event]:
@@ -165,7 +168,7 @@ class Sequencer:
             else:
                 self._aside.append(frame)
                 if len(self._aside) >= self.window:
-                    self._resolve_aside(events, at_end=False)
+                    self._resolve_aside(events)
                 return events
         elif current.closed and key is None and header.seq == 0:
             self._start(None)  # version 1: a closed stream followed by another
@@ -176,7 +179,7 @@ class Sequencer:
         """End of input: release what waits, report what never came."""
         events: list[Event] = []
         if self._aside:
-            self._resolve_aside(events, at_end=True)
+            self._resolve_aside(events)
         current = self._current
         if current is not None and not current.closed:
             self._release_all(current, events)
@@ -207,7 +210,7 @@ class Sequencer:
         if stream.closed or ahead < 0:
             if (stream.key, seq) in self._recent_lost:
                 self.counts.late += 1
-                self.notes.append(f"frame {seq} came after it had been declared lost; dropped")
+                self._note(f"frame {seq} came after it had been declared lost; dropped")
             else:
                 self.counts.duplicates += 1
             return
@@ -385,7 +388,7 @@ class Sequencer:
             data = parse_symbol(sources[j].tobytes())
             seq = (group.first + j) % fmt.SEQ_MODULUS
             if data is None:
-                self.notes.append(f"frame {seq}: its rebuild from repair frames did not check; not used")
+                self._note(f"frame {seq}: its rebuild from repair frames did not check; not used")
                 continue
             header = replace(group.template, seq=seq, length=len(data.payload), last=data.last,
                              position=data.position, repair=False, in_group=True)
@@ -398,7 +401,7 @@ class Sequencer:
         return rebuilt_any
 
     # ---- other streams -----------------------------------------------------------------------
-    def _resolve_aside(self, events: list[Event], at_end: bool) -> None:
+    def _resolve_aside(self, events: list[Event]) -> None:
         """Frames of other streams arrived while the current one was open and it has not
         come back (window full, or end of input). A stream among them that starts afresh
         (its frame 0 is there) follows the current one, which ended unclosed; every other
@@ -414,7 +417,7 @@ class Sequencer:
         assert current is not None
         self._release_all(current, events)
         self._end(current, events)
-        self.notes.append("a stream ended without its closing frame and a new one began")
+        self._note("a stream ended without its closing frame and a new one began")
         self._start(restart)
         for other in waiting:
             key = other.header.stream_id if other.header.identified else None
@@ -424,25 +427,21 @@ class Sequencer:
                 self._count_foreign(other)
 
     def _is_foreign(self, key: int | None) -> bool:
-        return (-1 if key is None else key) in self._foreign_ids or (-1 if key is None else key) in self._foreign_seen
+        return (-1 if key is None else key) in self._foreign_ids
 
     def _count_foreign(self, frame: DecodedFrame) -> None:
         self.counts.foreign += 1
         key = frame.header.stream_id if frame.header.identified else -1
-        self._foreign_ids[key] = self._foreign_ids.get(key, 0) + 1
+        if key in self._foreign_ids or len(self._foreign_ids) < _FOREIGN_STREAMS_KEPT:
+            self._foreign_ids[key] = self._foreign_ids.get(key, 0) + 1
 
     def _note_foreign(self) -> None:
         for key, count in list(self._foreign_ids.items())[:10]:
             name = f"stream {key:016x}" if key >= 0 else "a version 1 stream"
-            self.notes.append(f"{count} frame{'s' if count != 1 else ''} of {name} skipped: "
-                              "they belong to another stream")
-        self._foreign_seen.update(self._foreign_ids)
-        self._foreign_ids.clear()
+            self._note(f"{count} frame{'s' if count != 1 else ''} of {name} skipped: they belong to another stream")
 
+    def _note(self, text: str) -> None:
+        """A note for the summary; at most _NOTES_KEPT, so damage cannot grow them without bound."""
+        if len(self.notes) < _NOTES_KEPT:
+            self.notes.append(text)
 
-def events_of(frames: Iterator[DecodedFrame], window: int = REORDER_WINDOW) -> Iterator[Event]:
-    """All delivery events for a sequence of found frames (a convenience for tests)."""
-    sequencer = Sequencer(window)
-    for frame in frames:
-        yield from sequencer.push(frame)
-    yield from sequencer.finish()
