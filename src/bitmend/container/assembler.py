@@ -19,6 +19,7 @@ from bitmend.report import CLEAN, CORRECTED, DAMAGED, LOST, REBUILT, UNAUTHENTIC
 ON_ERROR_CHOICES = ("keep", "zero", "drop", "fail")
 MAX_LOST_LISTED = 100_000  # a gap wider than this is listed only up to this many frames
 ZERO_CHUNK = 1 << 20  # zeros for a lost run are produced in pieces of this size
+MAX_NOTES = 20
 
 
 class NotAContainerError(ValueError):
@@ -88,6 +89,10 @@ class Assembler:
         self._stream_names: dict[int, str | None] = {}
         self._symbol_bits: set[int] = set()  # symbol sizes of the codes seen (1 binary, 8 RS)
 
+    def _note(self, text: str) -> None:
+        if len(self._notes) < MAX_NOTES:  # damage must not grow the summary without bound
+            self._notes.append(text)
+
     # ---- per-frame bookkeeping ---------------------------------------------------------
     def _record(self, report: FrameReport) -> None:
         c = self._counts
@@ -130,11 +135,11 @@ class Assembler:
         count, gap = run.count, run.gap_bytes
         if gap is not None and gap > count * fmt.MAX_PAYLOAD_BYTES:
             # positions either side disagree with any legal frame sizes: not believed
-            self._notes.append(f"frames {run.first_seq}..: stream positions do not fit {count} lost frames; "
+            self._note(f"frames {run.first_seq}..: stream positions do not fit {count} lost frames; "
                                "missing bytes unknown")
             gap = None
         if count > MAX_LOST_LISTED:
-            self._notes.append(f"{count} frames lost from sequence {run.first_seq}; the first {MAX_LOST_LISTED} "
+            self._note(f"{count} frames lost from sequence {run.first_seq}; the first {MAX_LOST_LISTED} "
                                "are listed")
         stream = self._stream_names.get(run.stream_index)
         fill = gap if (self.on_error == "zero" and gap is not None) else 0
@@ -163,7 +168,7 @@ class Assembler:
                 self._streams_closed += 1
             else:
                 name = f"stream {event.stream_id:016x}" if event.stream_id is not None else "the stream"
-                self._notes.append(f"{name} ended without its closing frame")
+                self._note(f"{name} ended without its closing frame")
 
     def _admit(self, frame: DecodedFrame) -> bool:
         """Whether a found frame may take part in delivery, by the key rules (see __init__)."""
