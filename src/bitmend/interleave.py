@@ -102,6 +102,9 @@ def _encode_words(code: BinaryLinearCode, lay: SegmentLayout, message: bytes) ->
     depth = lay.depth
     source = bitfields.to_words(message, lay.blocks * code.k)
     out = bitfields.empty_words(lay.coded_bits)
+    if lay.blocks <= CHUNK_BLOCKS:  # one call (headers, frames): no piece list
+        blockcode.encode_run(source, lay.blocks, code.k, code.r, depth, code.parity_table, out)
+        return bitfields.to_bytes(out, lay.coded_bytes)
     for first, groups in _chunks(lay):
         blockcode.encode_run(source[first * depth * code.k // 64:], groups * depth, code.k, code.r, depth,
                              code.parity_table, out[first * depth * code.n // 64:])
@@ -136,6 +139,10 @@ def _decode_words(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
     bitfields, blockcode = compiled(lay.coded_bits)
     source = bitfields.to_words(raw[: lay.coded_bytes], lay.coded_bits)
     out = bitfields.empty_words(lay.blocks * code.k)
+    if lay.blocks <= CHUNK_BLOCKS:  # one call (headers, frames): no piece list
+        status = blockcode.decode_run(source, code.k, code.r, depth, lay.blocks, code.parity_table, lead_m, lead_p,
+                                      weight, code.word_table, out)
+        return bitfields.to_bytes(out, message_bytes), status
     status = [blockcode.decode_run(source[first * depth * code.n // 64:], code.k, code.r, depth, groups * depth,
                                    code.parity_table, lead_m, lead_p, weight, code.word_table,
                                    out[first * depth * code.k // 64:])
