@@ -70,8 +70,16 @@ def _errors() -> Iterator[None]:
     from bitmend.container.repair import RepairSpecError
     from bitmend.datagrams import EndpointError
     from bitmend.keyfile import KeyFileError
-    from bitmend.planning import PlanError
     from bitmend.records import RecordError
+
+    # planning (and its analysis modules) is heavy to import: only a command that loaded it
+    # can raise its error, so it is looked up when an error arrives, not before
+    class _NoPlanError(Exception):
+        pass
+
+    def plan_error() -> type[Exception]:
+        module = sys.modules.get("bitmend.planning")
+        return module.PlanError if module is not None else _NoPlanError
 
     try:
         yield
@@ -93,7 +101,7 @@ def _errors() -> Iterator[None]:
         _fail(str(exc), exc.exit_code)
     except UnknownCodeError as exc:
         _fail(str(exc), EXIT_USAGE)
-    except (CodeDefinitionError, PlanError, KeyFileError, RecordError, EndpointError, RepairSpecError) as exc:
+    except (CodeDefinitionError, plan_error(), KeyFileError, RecordError, EndpointError, RepairSpecError) as exc:
         # a definition, key, record framing, endpoint or repair ratio that cannot be used
         _fail(str(exc), EXIT_USAGE)
     except ChannelSpecError as exc:
