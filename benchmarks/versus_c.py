@@ -13,7 +13,9 @@ the C program and bitmend back to back on the same core:
   payload + CRC of default frames (16388 bytes), i.e. the coding without the container;
 - C: the MB/s the reference program prints for the same code (64 MiB, its own timer).
 
-Ratios are bitmend / C from the same run; "p/clean" is decode at p over clean decode. MB/s
+Ratios are bitmend / C from the same run; "p/clean" is decode at p over clean decode;
+"outside" is the share of the api time spent outside the segment coding (framing, headers,
+CRC, the reader, the API's buffers): 1 - engine time / api time, for encode and decode. MB/s
 counts payload bytes (10^6 per MB). Codes without a C counterpart (--all) show no ratio.
 The machine is shared: pin to one core (taskset or --cpu) and read the ratios, which
 move far less than the absolute figures. A benchmark, not a test: it asserts only that
@@ -105,7 +107,7 @@ def main() -> None:
               f"cpus {sorted(os.sched_getaffinity(0))}")
         head = (f"{'code':<14}{'depth':>5} | {'encode':>7}{'C':>6}{'ratio':>6} | {'decode':>7}{'C':>6}{'ratio':>6}"
                 f" | {'p=' + format(args.flip_rate, 'g'):>8}{'p/clean':>8} | {'engine enc':>10}{'ratio':>6}"
-                f"{'dec':>6}{'ratio':>6}")
+                f"{'dec':>6}{'ratio':>6} | {'outside':>9}")
         print(head)
         print("-" * len(head))
         for name in names:
@@ -147,7 +149,8 @@ def _line(row, flip_rate: float) -> str:
             f" | {rate['dec']:>7.0f}{c['decode'] or 0:>6.0f}{_ratio(rate['dec'], c['decode']):>6}"
             f" | {rate['noisy']:>8.0f}{rate['noisy'] / rate['dec']:>8.2f}"
             f" | {rate['seg_enc']:>10.0f}{_ratio(rate['seg_enc'], c['encode']):>6}"
-            f"{rate['seg_dec']:>6.0f}{_ratio(rate['seg_dec'], c['decode']):>6}")
+            f"{rate['seg_dec']:>6.0f}{_ratio(rate['seg_dec'], c['decode']):>6}"
+            f" | {1 - rate['enc'] / rate['seg_enc']:>4.0%} {1 - rate['dec'] / rate['seg_dec']:>4.0%}")
 
 
 def _markdown(rows, flip_rate: float) -> str:
