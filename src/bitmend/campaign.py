@@ -35,7 +35,7 @@ import sys
 import threading
 import uuid
 from contextlib import contextmanager
-from dataclasses import dataclass, fields, replace
+from dataclasses import dataclass, field, fields, replace
 from typing import Callable, Iterator, Sequence
 
 import numpy as np
@@ -191,9 +191,14 @@ class Tally:
             return Measured.from_tally(self._batched[name])
         return Measured.of(*self._counts[name])
 
-    def running(self, name: str = "block_error") -> Measured | None:
-        """The interval of one rate over the units merged so far."""
-        return self._measured(name) if name in self._counts else None
+    def running(self, name: str = "block_error") -> Callable[[], Measured | None]:
+        """The interval of one rate over the units merged so far, computed when called (an
+        interval loads scipy: a run whose progress nobody shows never pays for it)."""
+        if name not in self._counts:
+            return lambda: None
+        counts = self._counts[name]
+        batched = BatchTally().merge(self._batched[name]) if name in self._batched else None  # a snapshot
+        return lambda: Measured.from_tally(batched) if batched is not None else Measured.of(*counts)
 
     def result(self, interrupted: bool = False) -> SimulationResult | None:
         """The merged result of units 0..merged_units-1, or None before the first."""
@@ -224,7 +229,13 @@ class CampaignProgress:
     payload_bits: int  # of the whole campaign (all points of a sweep)
     units_done: int
     units: int
-    block_error: Measured | None  # running interval over the units merged in order (this point)
+    running_block_error: Callable[[], Measured | None] = field(repr=False, compare=False)
+
+    @property
+    def block_error(self) -> Measured | None:
+        """The running block error and its interval over the units merged in order (this
+        point), None before the first; computed on demand."""
+        return self.running_block_error()
 
 
 # ---- runners: where units execute -----------------------------------------------------------------
