@@ -208,9 +208,10 @@ def _plan(code: BinaryLinearCode, depth: int) -> _Plan:
 
 
 def _octet_position(q: int, j: int, n: int, depth: int) -> int:
-    """Stream bit, within its octet's n bytes, of bit j of codeword q (of the octet's 8):
-    concatenated at depth 1, transposed (byte j, bit q) at depth 8."""
-    return q * n + j if depth == 1 else 8 * j + q
+    """Stream bit, within a step of octets, of bit j of the step's codeword q: codewords
+    concatenated at depth 1; at depth 8, octet q // 8 takes n bytes, and its byte j holds
+    bit j of its 8 codewords."""
+    return q * n + j if depth == 1 else 8 * n * (q // 8) + 8 * j + q % 8
 
 
 def _vector_words(bits: list[int], nbits: int = 192) -> np.ndarray:
@@ -235,6 +236,15 @@ def _byte_tables(units: np.ndarray, words: int) -> np.ndarray:
     return np.ascontiguousarray(table[:, :, :words])
 
 
+def _octets_per_step(code: BinaryLinearCode) -> int:
+    """Octets coded per table step. One, except for codes of n <= 3 (rep-3), whose octet
+    is a single message byte: they take as many octets as fill 24 coded bytes (three
+    words), trading wider table rows for fewer steps. For hamming-7-4 and secded-8-4 the
+    wider rows cost more than the steps they save (one word per input byte instead of
+    three)."""
+    return 24 // code.n if code.n <= 3 else 1
+
+
 @lru_cache(maxsize=64)
 def _linear_tables(code: BinaryLinearCode, depth: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """(encode table, decode table, syndrome mask) of the octet maps of a short code at
@@ -246,23 +256,26 @@ def _linear_tables(code: BinaryLinearCode, depth: int) -> tuple[np.ndarray, np.n
     bit j - k, into syndrome q at bits 8k + q*r .. 8k + q*r + r - 1 of the result, so
     the result is the 8 received messages followed by their 8 syndromes."""
     k, r, n = code.k, code.r, code.n
+    m = _octets_per_step(code)
     P = code.P
-    enc_units = np.zeros((8 * k, 3), dtype=np.uint64)
-    for i in range(8 * k):
+    enc_units = np.zeros((8 * m * k, 3), dtype=np.uint64)
+    for i in range(8 * m * k):
         q, j = divmod(i, k)
         bits = [_octet_position(q, j, n, depth)]
         bits += [_octet_position(q, k + c, n, depth) for c in range(r) if P[j, c]]
         enc_units[i] = _vector_words(bits)
-    dec_units = np.zeros((8 * n, 3), dtype=np.uint64)
-    for q in range(8):
+    dec_units = np.zeros((8 * m * n, 3), dtype=np.uint64)
+    syndromes = 8 * m * k  # first bit of the syndromes in a decoded step
+    for q in range(8 * m):
         for j in range(n):
             if j < k:
-                bits = [q * k + j] + [8 * k + q * r + c for c in range(r) if P[j, c]]
+                bits = [q * k + j] + [syndromes + q * r + c for c in range(r) if P[j, c]]
             else:
-                bits = [8 * k + q * r + (j - k)]
+                bits = [syndromes + q * r + (j - k)]
             dec_units[_octet_position(q, j, n, depth)] = _vector_words(bits)
-    words = -(-n // 8)
-    return _byte_tables(enc_units, words), _byte_tables(dec_units, words), _vector_words(list(range(8 * k, 8 * n)))
+    words = -(-m * n // 8)
+    return (_byte_tables(enc_units, words), _byte_tables(dec_units, words),
+            _vector_words(list(range(syndromes, 8 * m * n))))
 
 
 @lru_cache(maxsize=None)
@@ -285,10 +298,11 @@ def _encode_fused(code: BinaryLinearCode, lay: SegmentLayout, message: bytes) ->
     if plan.encode_kind == "words":
         return _encode_words(code, lay, message)
     if plan.encode_kind == "linear":
-        octets = -(-lay.blocks // 8)
-        out = _native(octets * 8 * n)
+        m = _octets_per_step(code)
+        steps = -(-lay.blocks // (8 * m))
+        out = _native(steps * 8 * m * n)
         raw = np.frombuffer(message, dtype=np.uint8) if not isinstance(message, np.ndarray) else message
-        fused.encode_linear(raw, len(raw), octets, k, n, plan.encode_table, out)
+        fused.encode_linear(raw, len(raw), steps, m * k, m * n, plan.encode_table, out)
     elif plan.encode_kind == "depth1":
         src = fused.native_words(message, lay.blocks * k)
         out = _native(lay.coded_bits)
@@ -308,10 +322,11 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
     if plan.decode_kind == "words":
         return _decode_words(code, lay, raw, message_bytes)
     if plan.decode_kind == "linear":
-        octets = -(-lay.blocks // 8)
-        status = np.zeros(8 * octets, dtype=np.uint8)
-        out = _native(octets * 8 * k)
-        fused.decode_linear(raw, min(len(raw), lay.coded_bytes), octets, k, n, plan.decode_table,
+        m = _octets_per_step(code)
+        steps = -(-lay.blocks // (8 * m))
+        status = np.zeros(steps * 8 * m, dtype=np.uint8)
+        out = _native(steps * 8 * m * k)
+        fused.decode_linear(raw, min(len(raw), lay.coded_bytes), steps, m * k, m * n, k, code.r, plan.decode_table,
                             plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, out)
         status = status[: lay.blocks]
     else:  # depth1

@@ -319,8 +319,9 @@ def vector_xor(x0, x1, x2, pos, width, value):
 
 @njit(cache=True)
 def encode_linear(in8, length, octets, k, n, table, out):
-    """Octets of short codes: octet t (8 codewords) is the XOR over its k message bytes
-    of table[pos, byte] (its n stream bytes as table.shape[2] <= 3 words): parity, the
+    """Short codes, a step of whole octets at a time: step t (8m codewords, k = 8m k_code
+    bits of message in k bytes, n coded bytes out) is the XOR over its k message bytes of
+    table[pos, byte] (its n stream bytes as table.shape[2] <= 3 words): parity, the
     codeword layout and interleaving are all linear in the message bits, so one table
     does them at once. in8 holds `length` message bytes; bytes past them read as zero."""
     index, acc, held = 0, U64(0), 0
@@ -349,14 +350,16 @@ def encode_linear(in8, length, octets, k, n, table, out):
 
 
 @njit(cache=True)
-def decode_linear(in8, length, octets, k, n, table, syndrome_mask, leader_message, leader_weight, status, out):
-    """Octets of short codes, decoded: XOR over the n received bytes of table[pos, byte]
-    gives the 8 received messages (bits 0 .. 8k-1, concatenated) and their 8 syndromes
+def decode_linear(in8, length, octets, k, n, code_k, r, table, syndrome_mask, leader_message, leader_weight,
+                  status, out):
+    """Short codes decoded a step of whole octets at a time (n received bytes, k message
+    bytes, per = 8k / code_k codewords): XOR over the n received bytes of table[pos, byte]
+    gives the per received messages (bits 0 .. 8k-1, concatenated) and their syndromes
     (r bits each, concatenated from bit 8k). All-zero syndromes: the messages go out as
     they are; otherwise each codeword with s != 0 is corrected by its coset leader
     (status w) or left as received (status FAILED). status must be zeroed. in8 holds
     `length` received bytes; bytes past them read as zero."""
-    r = n - k
+    per = 8 * k // code_k
     whole = min(octets, length // n)
     index, acc, held = 0, U64(0), 0
     nw = table.shape[2]
@@ -381,12 +384,12 @@ def decode_linear(in8, length, octets, k, n, table, syndrome_mask, leader_messag
             if nw > 2:
                 x2 ^= table[pos, byte, 2]
         if (x0 & m0) | (x1 & m1) | (x2 & m2):
-            for q in range(8):
+            for q in range(per):
                 s = vector_field(x0, x1, x2, 8 * k + q * r, r)
                 if s != U64(0):
                     w = leader_weight[s]
                     if w != FAILED:
-                        x0, x1, x2 = vector_xor(x0, x1, x2, q * k, k, leader_message[s])
-                    status[8 * t + q] = w
+                        x0, x1, x2 = vector_xor(x0, x1, x2, q * code_k, code_k, leader_message[s])
+                    status[per * t + q] = w
         index, acc, held = put_vector(out, index, acc, held, x0, x1, x2, 8 * k)
     finish(out, index, acc, held)
