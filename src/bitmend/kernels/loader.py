@@ -3,7 +3,10 @@
 numba and the cached machine code of our kernels take about 0.2-0.3 s to load. A process
 that only moves a few small segments uses the numpy twins in kernels.small instead; the
 first large piece of work loads the compiled kernels, and from then on everything uses
-them.
+them. Many small pieces (a stream of short records or datagrams) load them too, once their
+work adds up to about what the load costs: the numpy twins spend ~0.3 s on 2^21 bits of
+small segments, so a long run of packets pays the load once instead of the twins' overhead
+on every packet (the rent-or-buy rule).
 """
 
 from __future__ import annotations
@@ -12,6 +15,18 @@ import sys
 from types import ModuleType
 
 SMALL_WORK_BITS = 1 << 16  # work below this size runs in numpy until numba is loaded
+SMALL_WORK_TOTAL_BITS = 1 << 21  # small work adding up to this loads numba too
+
+
+class _Tally:
+    small_bits = 0  # work done in the numpy twins so far in this process
+
+
+def _worth_loading(work_bits: int) -> bool:
+    if work_bits >= SMALL_WORK_BITS:
+        return True
+    _Tally.small_bits += work_bits
+    return _Tally.small_bits >= SMALL_WORK_TOTAL_BITS
 
 
 def compiled_loaded() -> bool:
@@ -20,7 +35,7 @@ def compiled_loaded() -> bool:
 
 def compiled(work_bits: int) -> tuple[ModuleType, ModuleType] | None:
     """(bitfields, blockcode) when already loaded or when work_bits is large, else None."""
-    if compiled_loaded() or work_bits >= SMALL_WORK_BITS:
+    if compiled_loaded() or _worth_loading(work_bits):
         from bitmend.kernels import bitfields, blockcode
 
         return bitfields, blockcode
@@ -30,7 +45,7 @@ def compiled(work_bits: int) -> tuple[ModuleType, ModuleType] | None:
 def compiled_cyclic(work_bits: int) -> ModuleType | None:
     """kernels.cyclic (BCH and Reed-Solomon) on the same terms as compiled(): once numba
     is loaded anyway, or when work_bits is large; else None (use kernels.cyclic_small)."""
-    if "bitmend.kernels.cyclic" in sys.modules or compiled_loaded() or work_bits >= SMALL_WORK_BITS:
+    if "bitmend.kernels.cyclic" in sys.modules or compiled_loaded() or _worth_loading(work_bits):
         from bitmend.kernels import cyclic
 
         return cyclic
