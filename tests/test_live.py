@@ -110,3 +110,18 @@ def test_a_slow_source_gets_a_frame_within_the_deadline_of_its_first_byte():
 def test_a_fast_source_still_gets_full_frames():
     assert _frame_sizes([(0.0, bytes(400))] * 10, 0.2) == [1000, 1000, 1000, 1000]
     assert _frame_sizes([(0.5, b"x" * 10)], None) == [10]  # no deadline: the closing frame carries it
+
+
+def test_a_repair_group_closes_max_delay_after_its_first_frame_on_a_slow_link():
+    # lines 0.5 s apart, deadline 0.2 s, repair 1/4: each line's frame goes out at its
+    # deadline and its group closes at the next one, with its repair frame, long before
+    # four frames could fill it
+    link = _ScriptedLink([(0.5, b"line one\n"), (1.5, b"line two\n"), (2.5, b"line three\n")])
+    sink = io.BytesIO()
+    enc = bitmend.Encoder(sink, "hamming-7-4", 1, frame_bytes=1000, stream_id=1, repair="1/4")
+    pump_encode(link, enc, 0.2, clock=lambda: link.now)
+    enc.close()
+    from bitmend.container.reader import FrameScanner
+    kinds = ["R" if f.header.repair else "D" for f in FrameScanner(io.BytesIO(sink.getvalue()),
+                                                                   decode_payloads=False).frames()]
+    assert kinds == ["D", "R", "D", "R", "D", "R"]  # the last line's frame closes the stream, then its repair

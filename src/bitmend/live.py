@@ -17,6 +17,8 @@ from typing import BinaryIO, Callable
 
 DEFAULT_MAX_DELAY = 0.2  # seconds: well under what a person or a control loop notices on a telemetry link
 READ_BYTES = 1 << 20
+SLACK = 1e-6  # seconds: a deadline this close counts as reached (a clock read back after waiting
+              # exactly until a deadline can fall short of it by rounding)
 
 
 class LiveReader:
@@ -82,8 +84,8 @@ def pump_encode(source: BinaryIO | LiveReader, encoder, max_delay: float | None,
         oldest = arrivals.oldest_waiting(encoder.bytes_in, encoder.pending_bytes) if max_delay is not None else None
         deadlines = [t + max_delay for t in (oldest, groups.since()) if t is not None and max_delay is not None]
         timeout = min(deadlines) - clock() if deadlines else None
-        if timeout is not None and timeout <= 0:
-            if oldest is not None and oldest + max_delay <= clock():
+        if timeout is not None and timeout <= SLACK:
+            if oldest is not None and oldest + max_delay <= clock() + SLACK:
                 encoder.flush()  # the deadline of the oldest waiting byte: send what is held now
             groups.check(max_delay)
             continue
@@ -120,6 +122,6 @@ class GroupClock:
 
     def check(self, max_delay: float | None) -> None:
         since = self.since()
-        if since is not None and max_delay is not None and self._clock() - since >= max_delay:
+        if since is not None and max_delay is not None and self._clock() - since >= max_delay - SLACK:
             self._encoder.end_group()
             self._since = None
