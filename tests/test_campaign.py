@@ -162,7 +162,9 @@ def test_a_1e12_bit_campaign_allocates_nothing_in_proportion_to_its_size():
         tracemalloc.stop()
     assert stopped.value.partial.frames == 2
     assert f"of {-(-10 ** 12 // (8 * FRAME_BYTES)):,} frames measured" in stopped.value.partial.notes[-1]
-    assert peak < 8 << 20, peak
+    # one 8-byte entry per unit would be ~1 GB; the bound leaves room for what other threads
+    # (the event loop an earlier Dask test left running) allocate while this runs
+    assert peak < 100 << 20, peak
 
 
 def test_interrupt_before_any_unit_finishes_carries_no_partial_result(monkeypatch):
