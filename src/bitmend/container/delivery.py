@@ -221,24 +221,21 @@ class Sequencer:
             if not stream.held[seq].crc_ok and frame.crc_ok:
                 stream.held[seq] = frame  # an intact copy replaces a damaged one still waiting
             return
+        out_of_order = stream.highest is not None and _ahead(seq, stream.highest) < 0
+        if stream.highest is None or _ahead(seq, stream.highest) > 0:
+            stream.highest = seq
         if seq in stream.damaged:
             self.counts.duplicates += 1
             if not frame.crc_ok:
                 return
             del stream.damaged[seq]  # an intact copy of a frame that waits damaged: it takes its place
-            ahead = _ahead(seq, stream.expected)
         elif not frame.crc_ok and stream.uses_repair:
             # a damaged frame of a stream with repair frames waits for its group's repair
             # (or an intact copy); it is delivered damaged only when the window passes it
             stream.damaged[seq] = frame
-            if stream.highest is None or _ahead(seq, stream.highest) > 0:
-                stream.highest = seq
             self._rebuild_around(stream, seq, events)
             self._slide(stream, seq, events)
             return
-        out_of_order = stream.highest is not None and _ahead(seq, stream.highest) < 0
-        if stream.highest is None or _ahead(seq, stream.highest) > 0:
-            stream.highest = seq
         if ahead == 0:
             self._release(stream, frame, out_of_order, events)
             self._drain(stream, events)

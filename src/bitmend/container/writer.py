@@ -60,8 +60,8 @@ class FrameWriter:
         self._pending = bytearray()
         self._seq = 0
         self._position = 0  # stream offset of the next frame's first payload byte
-        # repair frames: R after every K data frames (container/repair.py), or none
         self._key = key  # frames carry a tag under this shared key (flag 0x04)
+        # repair frames: R after every K data frames (container/repair.py), or none
         spec = parse_repair(repair)
         if spec and frame_bytes + SYMBOL_OVERHEAD > fmt.MAX_PAYLOAD_BYTES:
             # a repair frame carries a data frame's payload and 15 bytes of its place and CRC
@@ -73,22 +73,24 @@ class FrameWriter:
         self.bytes_out = 0
         self.closed = False
 
-    def _emit(self, payload: bytes, last: bool) -> None:
+    def _header(self, length: int, last: bool) -> fmt.FrameHeader:
+        """The header of the next data frame (the writer's code, depth, stream and flags)."""
         position = self._position % (1 << fmt.POSITION_BITS)
-        in_group = self._group is not None
+        flags = {"in_group": self._group is not None, "keyed": self._key is not None}
         if self._defined_code is not None:
-            header = fmt.FrameHeader.for_defined_code(self._defined_code, self._depth, self._seq, len(payload), last,
+            header = fmt.FrameHeader.for_defined_code(self._defined_code, self._depth, self._seq, length, last,
                                                       self.stream_id, position)
-            header = replace(header, in_group=in_group, keyed=self._key is not None)
-        else:
-            header = fmt.FrameHeader(self._code_id, self._depth, self._seq, len(payload), last,
-                                     stream_id=self.stream_id, position=position, in_group=in_group,
-                                     keyed=self._key is not None)
+            return replace(header, **flags)
+        return fmt.FrameHeader(self._code_id, self._depth, self._seq, length, last,
+                               stream_id=self.stream_id, position=position, **flags)
+
+    def _emit(self, payload: bytes, last: bool) -> None:
+        header = self._header(len(payload), last)
         self._send(header, payload)
         self._seq = (self._seq + 1) % fmt.SEQ_MODULUS
         self._position += len(payload)
         if self._group is not None and (self._group.add(header, payload) or last):
-            self.end_group(header)
+            self.end_group()
 
     def _send(self, header: fmt.FrameHeader, payload: bytes) -> None:
         frame = fmt.encode_frame(header, payload, self._key)
@@ -100,17 +102,13 @@ class FrameWriter:
         """Data frames were sent whose repair frames are not yet sent."""
         return self._group is not None and bool(self._group.symbols)
 
-    def end_group(self, template: fmt.FrameHeader | None = None) -> None:
+    def end_group(self) -> None:
         """Send the repair frames of the open group now (a full group does so by itself; a
         deadline or the end of the stream closes a short one)."""
         if not self.group_open:
             return
-        if template is None:
-            template = (fmt.FrameHeader.for_defined_code(self._defined_code, self._depth, 0, 0, stream_id=self.stream_id)
-                        if self._defined_code is not None
-                        else fmt.FrameHeader(self._code_id, self._depth, 0, 0, stream_id=self.stream_id))
-            template = replace(template, keyed=self._key is not None)
-        for header, payload in self._group.repair_frames(template):
+        # repair frames take the stream's code, depth, identity and key from a data header
+        for header, payload in self._group.repair_frames(self._header(0, False)):
             self._send(header, payload)
             self.repair_frames += 1
 
