@@ -45,8 +45,8 @@ from bitmend.channel.chain import fresh_seed
 from bitmend.channel.models import ChannelModel
 from bitmend.channel.spec import parse_channels, parse_sweep, sweep_channels
 from bitmend.codes.linear import BinaryLinearCode
-from bitmend.container.format import DEFAULT_FRAME_BYTES, MAX_PAYLOAD_BYTES
-from bitmend.simulate import MAX_BITS, Measured, SimulationResult, SweepResult, check_channels, simulate
+from bitmend.container.format import DEFAULT_FRAME_BYTES
+from bitmend.simulate import Measured, SimulationResult, SweepResult, check_arguments, simulate
 
 UNIT_STREAM = 0xCA11  # spawn-key prefix of unit seeds, apart from the data's and the channel stages' keys
 UNIT_BITS = 1 << 27  # default payload bits per work unit: ~1-5 s of one core, far above Dask's per-task cost
@@ -440,13 +440,7 @@ def _workers_ignore_sigint() -> Iterator[None]:
 
 def _check(code, depth: int, models: Sequence[ChannelModel], bits: int, frame_bytes: int,
            unit_frames: int | None) -> int:
-    check_channels(models)
-    if not 1 <= depth <= 255:
-        raise ValueError(f"depth must be 1..255, got {depth}")
-    if not 1 <= frame_bytes <= MAX_PAYLOAD_BYTES:
-        raise ValueError(f"frame_bytes must be 1..{MAX_PAYLOAD_BYTES}, got {frame_bytes}")
-    if not 1 <= bits <= MAX_BITS:
-        raise ValueError(f"bits must be 1..{MAX_BITS}, got {bits}")
+    check_arguments(models, depth, frame_bytes, bits)
     unit_frames = default_unit_frames(frame_bytes) if unit_frames is None else int(unit_frames)
     if unit_frames < 1:
         raise ValueError(f"unit_frames must be >= 1, got {unit_frames}")

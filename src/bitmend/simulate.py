@@ -348,6 +348,17 @@ def check_channels(models: Sequence[ChannelModel]) -> None:
                                "change framing or bit timing: test those with bitmend inject and bitmend decode")
 
 
+def check_arguments(models: Sequence[ChannelModel], depth: int, frame_bytes: int, bits: int) -> None:
+    """Refuse channels simulate cannot run and sizes outside their limits (ValueError)."""
+    check_channels(models)
+    if not 1 <= depth <= 255:
+        raise ValueError(f"depth must be 1..255, got {depth}")
+    if not 1 <= frame_bytes <= MAX_PAYLOAD_BYTES:
+        raise ValueError(f"frame_bytes must be 1..{MAX_PAYLOAD_BYTES}, got {frame_bytes}")
+    if not 1 <= bits <= MAX_BITS:
+        raise ValueError(f"bits must be 1..{MAX_BITS}, got {bits}")
+
+
 def _popcount(values: np.ndarray) -> int:
     return int(np.bitwise_count(values).sum(dtype=np.int64)) if values.size else 0
 
@@ -361,13 +372,7 @@ def simulate(code: str | BinaryLinearCode, depth: int = 1,
     every frame. The same seed gives the same result."""
     name, the_code = _resolve_code(code)
     models = parse_channels(channels)
-    check_channels(models)
-    if not 1 <= depth <= 255:
-        raise ValueError(f"depth must be 1..255, got {depth}")
-    if not 1 <= frame_bytes <= MAX_PAYLOAD_BYTES:
-        raise ValueError(f"frame_bytes must be 1..{MAX_PAYLOAD_BYTES}, got {frame_bytes}")
-    if not 1 <= bits <= MAX_BITS:
-        raise ValueError(f"bits must be 1..{MAX_BITS}, got {bits}")
+    check_arguments(models, depth, frame_bytes, bits)
     seed = fresh_seed() if seed is None else int(seed)
     chain = ChannelChain(models, seed)
     data_rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(DATA_STREAM,)))
