@@ -17,7 +17,7 @@ import json
 import os
 import sys
 from contextlib import contextmanager, nullcontext
-from typing import BinaryIO, Callable, Iterator, Optional
+from typing import BinaryIO, Callable, Iterator, Optional, Sequence
 
 import typer
 
@@ -574,15 +574,24 @@ def decode(
                     except DamagedDataError as exc:
                         stopped = exc  # --on-error fail: keep the verified part written so far
                 out.prepare()
-        summary = decoder.summary
-        _say_key_mismatch(decoder._assembler)
-        if not quiet:
-            typer.echo(summary.one_line(), err=True)
-            for note in summary.notes:
-                typer.echo(f"bitmend decode: note: {note}", err=True)
-        if stopped is not None:
-            raise CliError(f"stopped: {stopped}", EXIT_DAMAGED)
-        raise typer.Exit(EXIT_OK if summary.complete else EXIT_DAMAGED)
+        _end_decode(decoder._assembler, stopped, quiet)
+
+
+def _end_decode(assembler, stopped, quiet: bool, first_notes: Sequence[str] = (),
+                last_lines: Sequence[str] = ()) -> None:
+    """decode's last words on stderr (a key mismatch, the summary, its notes) and its exit
+    code: 0 only when the output is complete."""
+    summary = assembler.summary()
+    _say_key_mismatch(assembler)
+    if not quiet:
+        typer.echo(summary.one_line(), err=True)
+        for note in [*first_notes, *summary.notes]:
+            typer.echo(f"bitmend decode: note: {note}", err=True)
+        for line in last_lines:
+            typer.echo(f"bitmend decode: {line}", err=True)
+    if stopped is not None:
+        raise CliError(f"stopped: {stopped}", EXIT_DAMAGED)
+    raise typer.Exit(EXIT_OK if summary.complete else EXIT_DAMAGED)
 
 
 def _load_key(key_file: Optional[str]) -> Optional[bytes]:
@@ -640,21 +649,15 @@ def _decode_records(source: str, source_udp, output: Optional[str], output_udp, 
                 stopped = exc
             if hasattr(out, "prepare"):
                 out.prepare()
-    summary = reader.summary
-    _say_key_mismatch(reader._assembler)
-    if not quiet:
-        typer.echo(summary.one_line(), err=True)
-        if reader.missing:
-            shown = ", ".join(str(n) for n in reader.missing[:20]) + (" ..." if len(reader.missing) > 20 else "")
-            typer.echo(f"bitmend decode: note: records missing (by sequence number): {shown}", err=True)
-        for note in summary.notes:
-            typer.echo(f"bitmend decode: note: {note}", err=True)
-        if receiver is not None:
-            ended = f"; ended by {receiver.stopped_by}" if receiver.stopped_by else ""
-            typer.echo(f"bitmend decode: {receiver.received} datagrams received{ended}", err=True)
-    if stopped is not None:
-        raise CliError(f"stopped: {stopped}", EXIT_DAMAGED)
-    raise typer.Exit(EXIT_OK if summary.complete else EXIT_DAMAGED)
+    missing = []
+    if reader.missing:
+        shown = ", ".join(str(n) for n in reader.missing[:20]) + (" ..." if len(reader.missing) > 20 else "")
+        missing.append(f"records missing (by sequence number): {shown}")
+    received = []
+    if receiver is not None:
+        ended = f"; ended by {receiver.stopped_by}" if receiver.stopped_by else ""
+        received.append(f"{receiver.received} datagrams received{ended}")
+    _end_decode(reader._assembler, stopped, quiet, missing, received)
 
 
 @app.command()
