@@ -30,6 +30,8 @@ import sys
 import numpy as np
 from numba import njit
 
+from bitmend.kernels.blockcode import codeword_words, transpose8  # shared with the word-buffer kernels
+
 U64 = np.uint64
 FAILED = 255  # block status: syndrome without a coset leader of weight <= t
 SPARE_WORDS = 2  # zero words after the data, so a two-word load never runs off the end
@@ -102,31 +104,6 @@ def parity(m, ptab, chunk_bits):
     for c in range(1, ptab.shape[0]):
         p ^= ptab[c, (m >> U64(chunk_bits * c)) & mask]
     return p
-
-
-@njit(cache=True, inline="always")
-def transpose8(x):
-    """Transpose the 8x8 bit matrix in x (byte 0 = most significant = row 0, bit 7 of each
-    byte = column 0) by three rounds of masked swaps (Hacker's Delight 7-3)."""
-    t = (x ^ (x >> U64(7))) & U64(0x00AA00AA00AA00AA)
-    x = x ^ t ^ (t << U64(7))
-    t = (x ^ (x >> U64(14))) & U64(0x0000CCCC0000CCCC)
-    x = x ^ t ^ (t << U64(14))
-    t = (x ^ (x >> U64(28))) & U64(0x00000000F0F0F0F0)
-    return x ^ t ^ (t << U64(28))
-
-
-@njit(cache=True, inline="always")
-def left_codeword(m, p, k, r):
-    """Codeword (m, p) left-aligned in two words (w0 = bits 0..63, w1 = bits 64..)."""
-    n = k + r
-    if n <= 64:
-        return ((m << U64(r)) | p) << U64(64 - n), U64(0)
-    room = 64 - k  # parity bits that still fit in w0
-    if room == 0:
-        return m, p << U64(64 - r)
-    spill = r - room
-    return (m << U64(room)) | (p >> U64(spill)), p << U64(64 - spill)
 
 
 # ---- depth 1 ---------------------------------------------------------------------------------
@@ -208,7 +185,7 @@ def byte_transpose(a0, a1, a2, a3, a4, a5, a6, a7):
 @njit(cache=True, inline="always")
 def _codeword(src, bit, k, r, ptab, chunk_bits):
     m = field(src, bit, k)
-    return left_codeword(m, parity(m, ptab, chunk_bits), k, r)
+    return codeword_words(m, parity(m, ptab, chunk_bits), k, r)
 
 
 @njit(cache=True, inline="always")
