@@ -46,6 +46,7 @@ from bitmend.channel.models import ChannelModel
 from bitmend.channel.spec import parse_channels, parse_sweep, sweep_channels
 from bitmend.codes.linear import BinaryLinearCode
 from bitmend.container.format import DEFAULT_FRAME_BYTES
+from bitmend.errors import BitmendError
 from bitmend.simulate import Measured, SimulationResult, SweepResult, check_arguments, simulate
 
 UNIT_STREAM = 0xCA11  # spawn-key prefix of unit seeds, apart from the data's and the channel stages' keys
@@ -76,7 +77,7 @@ TALLY_OF = {"bit_error": "bits", "block_error": "blocks", "detected": "detected"
 EXACT = "clopper-pearson"  # Measured.method of a rate taken as binomial (BSC block and frame counts)
 
 
-class CampaignError(Exception):
+class CampaignError(BitmendError):
     """The cluster could not be reached or a unit failed on it (I/O class: exit 3 in the CLI)."""
 
 

@@ -13,12 +13,14 @@ import socket
 from dataclasses import dataclass
 from typing import Callable, Iterator
 
+from bitmend.errors import SettingError
+
 MAX_DATAGRAM = 65507  # the largest UDP payload over IPv4
 POLL_SECONDS = 0.2  # how often a waiting receiver looks for a stop request
 RECEIVE_BUFFER = 8 << 20  # bytes asked for the socket's receive buffer
 
 
-class EndpointError(ValueError):
+class EndpointError(SettingError):
     """A malformed udp:HOST:PORT, or a frame too large for one datagram."""
 
 

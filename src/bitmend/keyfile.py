@@ -12,12 +12,14 @@ import os
 import stat
 import string
 
+from bitmend.errors import SettingError
+
 MIN_KEY_BYTES = 16  # 128 bits: the strength of the truncated tag
 MAX_KEY_FILE_BYTES = 4096
 _HEX = set(string.hexdigits) | set(string.whitespace)
 
 
-class KeyFileError(ValueError):
+class KeyFileError(SettingError):
     """A key file that cannot be used: one line naming the file and the reason."""
 
 

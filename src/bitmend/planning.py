@@ -67,6 +67,7 @@ from bitmend.codes.catalog import MAX_DEPTH, code_names, get_code
 from bitmend.codes.linear import BinaryLinearCode
 from bitmend.container import format as fmt
 from bitmend.container.repair import MAX_GROUP, MAX_REPAIR, SYMBOL_OVERHEAD
+from bitmend.errors import SettingError
 from bitmend.interleave import layout
 
 PER_CHOICES = ("bit", "frame")
@@ -76,7 +77,7 @@ VERIFY_MAX_BITS = 1 << 24  # a "short" run: a few seconds at simulate's speed
 VERIFY_EVENTS = 30  # events the verification run aims to see at the predicted rate
 
 
-class PlanError(ValueError):
+class PlanError(SettingError):
     """Arguments that make no plan (one line)."""
 
 

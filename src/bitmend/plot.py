@@ -17,13 +17,14 @@ from bitmend.analysis import limits
 from bitmend.channel.models import BSC
 from bitmend.channel.spec import parse_channels, sweep_channels
 from bitmend.codes.linear import BinaryLinearCode
+from bitmend.errors import BitmendError
 from bitmend.simulate import SimulationResult, SweepResult, theory_for
 
 FORMATS = (".png", ".svg")
 PANELS = (("bit_error", "residual bit error rate"), ("block_error", "block (codeword) error rate"))
 
 
-class PlotUnavailableError(RuntimeError):
+class PlotUnavailableError(BitmendError, RuntimeError):
     """matplotlib is not installed."""
 
 

@@ -26,6 +26,7 @@ from bitmend.container.assembler import Assembler, DamagedDataError
 from bitmend.container.format import DEFAULT_FRAME_BYTES, MAX_PAYLOAD_BYTES
 from bitmend.container.reader import FrameScanner, ScanStats
 from bitmend.container.writer import FrameWriter
+from bitmend.errors import SettingError
 from bitmend.report import CLEAN, CORRECTED, DAMAGED, REBUILT, DecodeReport, FrameReport, Summary
 
 FRAMINGS = ("line", "u16", "u32")
@@ -34,7 +35,7 @@ _PREFIX = {"u16": struct.Struct(">H"), "u32": struct.Struct(">I")}
 MAX_HELD_LINE = MAX_PAYLOAD_BYTES  # a line longer than the largest frame is refused, not buffered
 
 
-class RecordError(ValueError):
+class RecordError(SettingError):
     """Input that cannot be cut into records of the framing asked for."""
 
 

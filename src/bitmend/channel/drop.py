@@ -23,9 +23,10 @@ from bitmend.channel.events import Events
 from bitmend.channel.ledger import StageRecord
 from bitmend.channel.models import FrameDrop
 from bitmend.channel.stages import generator
+from bitmend.errors import ContainerError
 
 
-class NoFramesError(ValueError):
+class NoFramesError(ContainerError, ValueError):
     """drop was asked to act on a stream that holds no container frame."""
 
 

@@ -19,9 +19,10 @@ from typing import Iterable
 import numpy as np
 
 from bitmend.channel.models import MODELS, REQUIRED, ChannelModel
+from bitmend.errors import SettingError
 
 
-class ChannelSpecError(ValueError):
+class ChannelSpecError(SettingError):
     """A channel SPEC or sweep that cannot be understood; the message is one line."""
 
 

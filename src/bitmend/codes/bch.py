@@ -25,16 +25,17 @@ from math import comb
 import numpy as np
 
 from bitmend.analysis.weights import WeightDistribution, macwilliams
+from bitmend.codes.base import SystematicBinaryCode, as_rows
+from bitmend.errors import CodeError
 from bitmend.kernels import cyclic_small
 from bitmend.kernels.gf2m import GF2m, bch_designed_range, bch_generator, binary_register_table, field
-from bitmend.codes.base import SystematicBinaryCode, as_rows
 from bitmend.kernels.loader import compiled_cyclic
 
 FAILED = 255
 LISTING_LIMIT_BITS = 20  # weight distributions list at most 2^20 words (of the code or of its dual)
 
 
-class BCHParameterError(ValueError):
+class BCHParameterError(CodeError):
     """(n, k) that no primitive narrow-sense binary BCH code (or shortening of one) has."""
 
 

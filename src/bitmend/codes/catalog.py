@@ -18,6 +18,7 @@ from bitmend.codes import families
 from bitmend.codes.bch import BCHCode
 from bitmend.codes.linear import BinaryLinearCode
 from bitmend.codes.reed_solomon import ReedSolomonCode
+from bitmend.errors import CodeError
 
 DEFAULT_CODE = "golay-24-12"
 DEFAULT_DEPTH = 8
@@ -67,7 +68,7 @@ _BY_NAME = {e.name: e for e in CATALOG}
 _BY_ID = {e.code_id: e for e in CATALOG}
 
 
-class UnknownCodeError(KeyError):
+class UnknownCodeError(CodeError, KeyError):
     """A code name or id that the catalog does not hold."""
 
     def __str__(self) -> str:  # KeyError would quote the message

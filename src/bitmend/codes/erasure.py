@@ -59,6 +59,7 @@ from typing import Union
 
 import numpy as np
 
+from bitmend.errors import CodeError
 from bitmend.kernels import erasure_small
 from bitmend.kernels.erasure_small import coefficient_masks, gf_inverse, gf_matmul, inv_table, mul_table
 from bitmend.kernels.loader import SMALL_WORK_BITS, compiled_loaded
@@ -70,7 +71,7 @@ SymbolLike = Union[bytes, bytearray, memoryview, np.ndarray]
 Received = Union[Mapping[int, SymbolLike], tuple[Sequence[int] | np.ndarray, Sequence[SymbolLike] | np.ndarray]]
 
 
-class ErasureCodeError(ValueError):
+class ErasureCodeError(CodeError):
     """Bad parameters or symbols given to a FrameErasureCode."""
 
 

@@ -20,6 +20,7 @@ import numpy as np
 
 from bitmend.analysis.weights import WeightDistribution, weight_distribution
 from bitmend.codes.base import SystematicBinaryCode, as_rows
+from bitmend.errors import CodeError
 from bitmend.kernels.gf2 import as_bit_matrix, row_reduce
 
 MAX_MESSAGE_BITS = 64  # k: a message is one uint64 in the kernels
@@ -28,7 +29,7 @@ WORD_TABLE_MAX_N = 16  # codes this short decode by one lookup per received word
 FAILED = 255  # block status of an uncorrectable block (as in kernels.blockcode)
 
 
-class CodeDefinitionError(ValueError):
+class CodeDefinitionError(CodeError):
     """A generator or parity-check matrix that does not define a usable code."""
 
 

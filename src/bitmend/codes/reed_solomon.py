@@ -26,9 +26,10 @@ from math import comb
 import numpy as np
 
 from bitmend.analysis.weights import WeightDistribution
+from bitmend.codes.base import BlockCode, as_rows
+from bitmend.errors import CodeError
 from bitmend.kernels import cyclic_small
 from bitmend.kernels.gf2m import GF2m, field, rs_generator, symbol_register_table
-from bitmend.codes.base import BlockCode, as_rows
 from bitmend.kernels.loader import compiled_cyclic
 
 FAILED = 255
@@ -36,7 +37,7 @@ RS_FIELD_POLYNOMIAL = 0x11D
 RS_FIRST_ROOT = 1
 
 
-class ReedSolomonParameterError(ValueError):
+class ReedSolomonParameterError(CodeError):
     """(n, k) that this family does not provide."""
 
 

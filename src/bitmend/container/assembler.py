@@ -14,6 +14,7 @@ from typing import BinaryIO, Iterator
 from bitmend.container import format as fmt
 from bitmend.container.delivery import Delivered, Event, LostRun, Sequencer, StreamEnded
 from bitmend.container.reader import DecodedFrame, FrameScanner
+from bitmend.errors import ContainerError
 from bitmend.report import CLEAN, CORRECTED, DAMAGED, LOST, REBUILT, UNAUTHENTICATED, FrameReport, Summary
 
 ON_ERROR_CHOICES = ("keep", "zero", "drop", "fail")
@@ -22,11 +23,11 @@ ZERO_CHUNK = 1 << 20  # zeros for a lost run are produced in pieces of this size
 MAX_NOTES = 20
 
 
-class NotAContainerError(ValueError):
+class NotAContainerError(ContainerError, ValueError):
     """The input holds no bitmend frame at all."""
 
 
-class DamagedDataError(ValueError):
+class DamagedDataError(ContainerError, ValueError):
     """on_error='fail' and a frame was damaged or lost."""
 
 

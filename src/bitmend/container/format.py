@@ -35,6 +35,7 @@ import numpy as np
 
 from bitmend.codes.catalog import MAX_DEPTH, code_by_id, get_code
 from bitmend.codes.linear import MAX_MESSAGE_BITS, MAX_PARITY_BITS, BinaryLinearCode, CodeDefinitionError
+from bitmend.errors import ContainerError
 from bitmend.interleave import decode_segment, encode_segment, layout
 
 FORMAT_VERSION = 2  # the version this bitmend writes; it reads every version in HEADER_LAYOUTS
@@ -103,7 +104,7 @@ def _fastest_crc32c():
 crc32c = _fastest_crc32c()
 
 
-class HeaderError(ValueError):
+class HeaderError(ContainerError, ValueError):
     """A header that decoded and checked but holds values this reader cannot use."""
 
 

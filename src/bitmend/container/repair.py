@@ -21,6 +21,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from bitmend.container import format as fmt
+from bitmend.errors import SettingError
 
 SYMBOL_HEAD = 11  # flags, position, length
 SYMBOL_OVERHEAD = SYMBOL_HEAD + fmt.CRC_BYTES
@@ -28,7 +29,7 @@ MAX_GROUP = 32  # data frames per group: a group fits the reader's reorder windo
 MAX_REPAIR = 32
 
 
-class RepairSpecError(ValueError):
+class RepairSpecError(SettingError):
     """A --repair R/K that cannot be used."""
 
 

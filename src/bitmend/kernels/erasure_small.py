@@ -24,13 +24,14 @@ from __future__ import annotations
 
 import numpy as np
 
+from bitmend.errors import BitmendError
 from bitmend.kernels.gf2m import field
 
 REPLICATE = np.uint64(0x0101010101010101)  # byte 0x01 in every byte of a word
 _SMALL_BLOCK = 1 << 20  # bytes of (rows, k, columns) products per numpy step
 
 
-class SingularMatrixError(ValueError):
+class SingularMatrixError(BitmendError, ValueError):
     """A square matrix over GF(2^8) that has no inverse."""
 
 
