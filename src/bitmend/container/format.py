@@ -35,7 +35,7 @@ import numpy as np
 
 from bitmend.codes.catalog import MAX_DEPTH, code_by_id, get_code
 from bitmend.codes.linear import MAX_MESSAGE_BITS, MAX_PARITY_BITS, BinaryLinearCode, CodeDefinitionError
-from bitmend.errors import ContainerError
+from bitmend.errors import ContainerError, SettingError
 from bitmend.interleave import decode_segment, encode_segment, layout
 
 FORMAT_VERSION = 2  # the version this bitmend writes; it reads every version in HEADER_LAYOUTS
@@ -71,6 +71,19 @@ MAX_PAYLOAD_BYTES = 1 << 20  # frame payload limit: bounds every allocation a he
 # depth 255, stay under it; custom-code frames are refused above it): sizes the look-back window
 MAX_FRAME_WIRE_BYTES = 8 + 2 * 60 + 3 * (MAX_PAYLOAD_BYTES + 4 + 255 * 3)
 DEFAULT_FRAME_BYTES = 16384
+
+def check_depth(depth: int) -> int:
+    """depth itself if a header can carry it (1..MAX_DEPTH), else SettingError."""
+    if not 1 <= depth <= MAX_DEPTH:
+        raise SettingError(f"depth must be 1..{MAX_DEPTH}, got {depth}")
+    return depth
+
+
+def check_frame_bytes(frame_bytes: int) -> int:
+    """frame_bytes itself if a frame may carry that much payload (1..MAX_PAYLOAD_BYTES), else SettingError."""
+    if not 1 <= frame_bytes <= MAX_PAYLOAD_BYTES:
+        raise SettingError(f"frame size must be 1..{MAX_PAYLOAD_BYTES} bytes, got {frame_bytes}")
+    return frame_bytes
 CRC_BYTES = 4
 FLAG_LAST = 0x01  # the frame closes its stream
 FLAG_REPAIR = 0x02  # (version 2) a repair frame across the data frames of a group: docs/FORMAT.md
