@@ -72,6 +72,7 @@ MAX_PAYLOAD_BYTES = 1 << 20  # frame payload limit: bounds every allocation a he
 MAX_FRAME_WIRE_BYTES = 8 + 2 * 60 + 3 * (MAX_PAYLOAD_BYTES + 4 + 255 * 3)
 DEFAULT_FRAME_BYTES = 16384
 
+
 def check_depth(depth: int) -> int:
     """depth itself if a header can carry it (1..MAX_DEPTH), else SettingError."""
     if not 1 <= depth <= MAX_DEPTH:
@@ -84,6 +85,8 @@ def check_frame_bytes(frame_bytes: int) -> int:
     if not 1 <= frame_bytes <= MAX_PAYLOAD_BYTES:
         raise SettingError(f"frame size must be 1..{MAX_PAYLOAD_BYTES} bytes, got {frame_bytes}")
     return frame_bytes
+
+
 CRC_BYTES = 4
 FLAG_LAST = 0x01  # the frame closes its stream
 FLAG_REPAIR = 0x02  # (version 2) a repair frame across the data frames of a group: docs/FORMAT.md
