@@ -222,7 +222,18 @@ class Decoder(io.BufferedReader):
 
     @property
     def summary(self) -> Summary:
+        """What the stream held so far (final once it is read to the end)."""
         return self._assembler.summary()
+
+    @property
+    def keyed_without_key(self) -> int:
+        """Frames held back because they carry a tag and no key was given to check it."""
+        return self._assembler.keyed_without_key
+
+    @property
+    def untagged_with_key(self) -> int:
+        """Frames held back because they carry no tag while a key was given."""
+        return self._assembler.untagged_with_key
 
     @property
     def bytes_read(self) -> int:
