@@ -14,12 +14,15 @@ import os
 from dataclasses import dataclass
 from typing import BinaryIO, Callable, Iterator
 
-from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH
+from bitmend.codes.base import BlockCode
+from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH, code_id
 from bitmend.codes.custom import MAX_DEFINITION_CHARS, parse_code_definition
 from bitmend.codes.linear import BinaryLinearCode, CodeDefinitionError
-from bitmend.container.assembler import Assembler, DamagedDataError, NotAContainerError
-from bitmend.container.format import DEFAULT_FRAME_BYTES
+from bitmend.container.assembler import ON_ERROR_CHOICES, Assembler, DamagedDataError, NotAContainerError
+from bitmend.container.format import DEFAULT_FRAME_BYTES, check_depth, check_frame_bytes
+from bitmend.container.repair import parse_repair
 from bitmend.container.writer import FrameWriter
+from bitmend.errors import SettingError
 from bitmend.keyfile import MIN_KEY_BYTES, KeyFileError, load_key_file
 from bitmend.report import DecodeReport, FrameReport, Summary
 
@@ -27,7 +30,7 @@ __all__ = ["open", "Encoder", "Decoder", "encode_bytes", "decode_bytes", "Decode
            "load_key_file", "KeyFileError", "NotAContainerError", "DamagedDataError"]
 
 PathOrFile = str | os.PathLike | BinaryIO
-CodeChoice = str | BinaryLinearCode  # a catalog name, or a code object (custom codes travel in the frames)
+CodeChoice = str | BlockCode  # a catalog name, or a code object (custom codes travel in the frames)
 
 
 def load_code_file(path: str | os.PathLike) -> BinaryLinearCode:
@@ -55,8 +58,44 @@ def _checked_key(key: bytes | None) -> bytes | None:
     return key
 
 
+def _name_of(fileobj: BinaryIO) -> str | bytes:
+    """The name a file object reports: its own `name` when that is a path (str or bytes),
+    else '' (as gzip.GzipFile does: in-memory files and descriptors have no path)."""
+    name = getattr(fileobj, "name", "")
+    return name if isinstance(name, (str, bytes)) else ""
+
+
+def _check_write_settings(code: CodeChoice, depth: int, frame_bytes: int,
+                          repair: str | tuple[int, int] | None) -> None:
+    """UnknownCodeError for a code name outside the catalog, SettingError for a depth or
+    frame size a header cannot carry, RepairSpecError for a malformed repair spec: before
+    any file is opened or any byte is written."""
+    if isinstance(code, str):
+        code_id(code)
+    check_depth(depth)
+    check_frame_bytes(frame_bytes)
+    parse_repair(repair)
+
+
+def _check_on_error(on_error: str) -> None:
+    if on_error not in ON_ERROR_CHOICES:
+        raise SettingError(f"on_error must be one of {', '.join(ON_ERROR_CHOICES)}, got {on_error!r}")
+
+
+def _closed_error() -> ValueError:
+    return ValueError("I/O operation on closed file")
+
+
 class Encoder(io.BufferedIOBase):
-    """Writable binary file object: bytes written are framed, coded and sent to fileobj."""
+    """Writable binary file object: bytes written are framed, coded and sent to fileobj.
+
+    mode is 'wb'; name is the wrapped file's path ('' for an in-memory file); tell() counts
+    the plain bytes written so far. Not seekable: a container is written front to back.
+    Every method but close() raises ValueError once the encoder is closed."""
+
+    _writer: FrameWriter | None = None  # None only while __init__ has not finished
+    _fileobj: BinaryIO | None = None
+    _close_fileobj = False
 
     def __init__(self, fileobj: BinaryIO, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
                  frame_bytes: int = DEFAULT_FRAME_BYTES, close_fileobj: bool = False,
@@ -67,28 +106,62 @@ class Encoder(io.BufferedIOBase):
         key: a shared secret of at least 16 bytes; every frame then carries a tag under it,
         and a decoder with the same key delivers only frames whose tag matches."""
         super().__init__()
-        self._fileobj = fileobj
+        _check_write_settings(code, depth, frame_bytes, repair)
         self._writer = FrameWriter(fileobj, code, depth, frame_bytes, stream_id, repair, _checked_key(key))
+        self._fileobj = fileobj
         self._close_fileobj = close_fileobj
+        self._name = _name_of(fileobj)
+
+    @property
+    def mode(self) -> str:
+        return "wb"
+
+    @property
+    def name(self) -> str | bytes:
+        """The wrapped file's path as given (str or bytes), '' if it has none."""
+        return self._name
+
+    def _check_not_closed(self) -> None:
+        if self.closed:
+            raise _closed_error()
+
+    def readable(self) -> bool:
+        self._check_not_closed()
+        return False
 
     def writable(self) -> bool:
+        self._check_not_closed()
         return True
 
+    def seekable(self) -> bool:
+        self._check_not_closed()
+        return False
+
+    def fileno(self) -> int:
+        """The wrapped file's descriptor (io.UnsupportedOperation if it has none)."""
+        self._check_not_closed()
+        return _fileno_of(self._fileobj)
+
+    def tell(self) -> int:
+        """Plain-data bytes written so far (not container bytes: see bytes_out)."""
+        self._check_not_closed()
+        return self._writer.bytes_in
+
     def write(self, data: bytes) -> int:  # type: ignore[override]
-        if self.closed:
-            raise ValueError("write to closed file")
+        self._check_not_closed()
         return self._writer.write(bytes(data))
 
     def flush(self) -> None:
         """Send buffered bytes as a frame now (use at packet boundaries)."""
-        if not self.closed and not self._writer.closed:
+        self._check_not_closed()
+        # io's close() calls flush() too: after abandon(), or after an __init__ that failed
+        if self._writer is not None and not self._writer.closed:
             self._writer.flush()
 
     def send_record(self, record: bytes) -> None:
         """Send record as a frame of its own, now (its boundaries survive the link; see
         bitmend.records). ValueError for a record longer than a frame."""
-        if self.closed:
-            raise ValueError("write to closed file")
+        self._check_not_closed()
         self._writer.send_record(bytes(record))
 
     @property
@@ -98,9 +171,9 @@ class Encoder(io.BufferedIOBase):
 
     def end_group(self) -> None:
         """Send the repair frames of the open group now (at a deadline; repair only)."""
-        if not self.closed:
-            self._writer.end_group()
-            self._writer.flush_sink()
+        self._check_not_closed()
+        self._writer.end_group()
+        self._writer.flush_sink()
 
     @property
     def frame_bytes(self) -> int:
@@ -114,8 +187,8 @@ class Encoder(io.BufferedIOBase):
 
     def flush_output(self) -> None:
         """Push frames already made to the underlying file now, without cutting a frame."""
-        if not self.closed:
-            self._writer.flush_sink()
+        self._check_not_closed()
+        self._writer.flush_sink()
 
     @property
     def stream_id(self) -> int:
@@ -124,10 +197,12 @@ class Encoder(io.BufferedIOBase):
 
     @property
     def bytes_in(self) -> int:
+        """Plain-data bytes written so far."""
         return self._writer.bytes_in
 
     @property
     def bytes_out(self) -> int:
+        """Container bytes sent to the wrapped file so far."""
         return self._writer.bytes_out
 
     def abandon(self) -> None:
@@ -135,7 +210,8 @@ class Encoder(io.BufferedIOBase):
         ended early, never one that looks whole."""
         if self.closed:
             return
-        self._writer.closed = True
+        if self._writer is not None:
+            self._writer.closed = True
         self.close()
 
     def __exit__(self, exc_type, exc, tb) -> None:
@@ -148,46 +224,100 @@ class Encoder(io.BufferedIOBase):
         if self.closed:
             return
         try:
-            self._writer.close()
+            if self._writer is not None:
+                self._writer.close()
         finally:
             try:
-                super().close()  # io calls flush(), a no-op once the writer is closed
+                super().close()  # io calls flush() first, a no-op once the writer is closed
             finally:
                 if self._close_fileobj:
                     self._fileobj.close()
 
 
-class _DecodedRaw(io.RawIOBase):
-    """Raw reader: serves the assembler's output chunks through readinto."""
+def _fileno_of(fileobj: BinaryIO) -> int:
+    fileno = getattr(fileobj, "fileno", None)
+    if fileno is None:
+        raise io.UnsupportedOperation("fileno: the wrapped file object has no file descriptor")
+    return fileno()
+
+
+def _raised_again(first: Exception) -> Exception:
+    """A new exception like first (same class, same message) whose cause is first: every
+    read after a failure raises, so a failed stream never reads as a clean end."""
+    try:
+        again = type(first)(*first.args)
+    except Exception:  # a class whose constructor takes other arguments than its args
+        return first
+    again.__cause__ = first
+    return again
+
+
+class _PlainData(io.RawIOBase):
+    """The decoded plain data as a raw stream: serves the assembler's chunks through
+    readinto, counts the bytes served (tell) and remembers the failure that ended them."""
 
     def __init__(self, chunks: Iterator[bytes]) -> None:
         super().__init__()
         self._chunks = chunks
         self._current = memoryview(b"")
+        self._served = 0
+        self.failure: Exception | None = None  # what stopped the stream, raised again on every later read
 
     def readable(self) -> bool:
         return True
 
+    def tell(self) -> int:
+        return self._served
+
+    def _next_chunk(self) -> bytes | None:
+        if self.failure is not None:
+            raise _raised_again(self.failure)
+        try:
+            return next(self._chunks, None)
+        except Exception as exc:  # the chunk generator is finished now: keep its failure
+            self.failure = exc
+            raise
+
     def readinto(self, buffer) -> int:  # type: ignore[override]
         while not self._current:
-            chunk = next(self._chunks, None)
+            chunk = self._next_chunk()
             if chunk is None:
                 return 0
             self._current = memoryview(chunk)
         size = min(len(buffer), len(self._current))
         buffer[:size] = self._current[:size]
         self._current = self._current[size:]
+        self._served += size
         return size
 
+    def readall(self) -> bytes:
+        """The rest at once: chunks joined, not copied through a small buffer."""
+        parts = [bytes(self._current)]
+        self._current = memoryview(b"")
+        while (chunk := self._next_chunk()) is not None:
+            parts.append(chunk)
+        data = b"".join(parts)
+        self._served += len(data)
+        return data
 
-class Decoder(io.BufferedReader):
+
+class Decoder(io.BufferedIOBase):
     """Readable binary file object over a container; .report holds what was found.
 
     on_error: 'keep' delivers damaged frames' bytes as corrected as far as possible,
     'zero' replaces them (and lost frames of known size) with zeros, 'drop' leaves them
-    out, 'fail' raises DamagedDataError at the first damaged or lost frame.
-    on_frame, if given, is called with each FrameReport as it is produced.
+    out, 'fail' raises DamagedDataError at the first damaged or lost frame, and again at
+    every later read. on_frame, if given, is called with each FrameReport as it is produced.
+
+    mode is 'rb'; name is the wrapped file's path ('' for an in-memory file); tell() counts
+    the plain bytes delivered so far. read, read1, readinto, readline, peek and iteration
+    over lines work as for any buffered binary file; seeking does not (a container is read
+    front to back). Every method but close() raises ValueError once the decoder is closed.
     """
+
+    _buffer: io.BufferedReader | None = None  # None only while __init__ has not finished
+    _fileobj: BinaryIO | None = None
+    _close_fileobj = False
 
     def __init__(self, fileobj: BinaryIO, on_error: str = "keep", keep_frame_reports: bool = True,
                  on_frame: Callable[[FrameReport], None] | None = None, close_fileobj: bool = False,
@@ -196,14 +326,18 @@ class Decoder(io.BufferedReader):
         accept_unauthenticated: also deliver frames whose origin cannot be checked (no tag
         while a key is given, or tags but no key). A tag that does not match is never
         accepted."""
+        super().__init__()
+        _check_on_error(on_error)
         self._assembler = Assembler(fileobj, on_error, key=_checked_key(key),
                                     accept_unauthenticated=accept_unauthenticated)
         self._frame_reports: list[FrameReport] = []
         self._keep = keep_frame_reports
         self._on_frame = on_frame
+        self._plain = _PlainData(self._data_chunks())
+        self._buffer = io.BufferedReader(self._plain, buffer_size=1 << 16)
         self._fileobj = fileobj
         self._close_fileobj = close_fileobj
-        super().__init__(_DecodedRaw(self._data_chunks()), buffer_size=1 << 16)
+        self._name = _name_of(fileobj)
 
     def _data_chunks(self) -> Iterator[bytes]:
         for data, report in self._assembler:
@@ -214,6 +348,75 @@ class Decoder(io.BufferedReader):
                     self._on_frame(report)
             if data:
                 yield data
+
+    @property
+    def mode(self) -> str:
+        return "rb"
+
+    @property
+    def name(self) -> str | bytes:
+        """The wrapped file's path as given (str or bytes), '' if it has none."""
+        return self._name
+
+    def _check_can_read(self) -> None:
+        if self.closed:
+            raise _closed_error()
+        if self._plain.failure is not None:
+            raise _raised_again(self._plain.failure)
+
+    def readable(self) -> bool:
+        if self.closed:
+            raise _closed_error()
+        return True
+
+    def writable(self) -> bool:
+        if self.closed:
+            raise _closed_error()
+        return False
+
+    def seekable(self) -> bool:
+        if self.closed:
+            raise _closed_error()
+        return False
+
+    def fileno(self) -> int:
+        """The wrapped file's descriptor (io.UnsupportedOperation if it has none)."""
+        if self.closed:
+            raise _closed_error()
+        return _fileno_of(self._fileobj)
+
+    def tell(self) -> int:
+        """Plain-data bytes delivered so far (not container bytes: see bytes_read)."""
+        if self.closed:
+            raise _closed_error()
+        return self._buffer.tell()
+
+    def read(self, size: int | None = -1) -> bytes:
+        self._check_can_read()
+        return self._buffer.read(size)
+
+    def read1(self, size: int = -1) -> bytes:
+        """At most size bytes with at most one pass through the decoder (what one frame
+        gives), so bytes leave as soon as their frame is decoded."""
+        self._check_can_read()
+        return self._buffer.read1(size)
+
+    def readinto(self, buffer) -> int:  # type: ignore[override]
+        self._check_can_read()
+        return self._buffer.readinto(buffer)
+
+    def readinto1(self, buffer) -> int:  # type: ignore[override]
+        self._check_can_read()
+        return self._buffer.readinto1(buffer)
+
+    def peek(self, size: int = 0) -> bytes:
+        """Bytes ahead without consuming them (at least one unless at the end)."""
+        self._check_can_read()
+        return self._buffer.peek(size)
+
+    def readline(self, size: int | None = -1) -> bytes:
+        self._check_can_read()
+        return self._buffer.readline(size)
 
     @property
     def report(self) -> DecodeReport:
@@ -244,35 +447,86 @@ class Decoder(io.BufferedReader):
         if self.closed:
             return
         try:
-            super().close()
+            if self._buffer is not None:
+                self._buffer.close()
         finally:
-            if self._close_fileobj:
-                self._fileobj.close()
+            try:
+                super().close()
+            finally:
+                if self._close_fileobj:
+                    self._fileobj.close()
 
 
-def open(file: PathOrFile, mode: str = "rb", *, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
-         frame_bytes: int = DEFAULT_FRAME_BYTES, on_error: str = "keep",
-         stream_id: int | None = None, repair: str | tuple[int, int] | None = None,
-         key: bytes | None = None) -> Encoder | Decoder:
-    """Open a bitmend container for reading ('rb') or writing ('wb'), from a path or a
-    binary file object; code, depth and frame_bytes apply to writing, on_error to reading.
-    code is a catalog name or a code object (e.g. from load_code_file): a code outside the
-    catalog is written into every frame, so reading needs nothing but the container.
-    stream_id (writing) is the stream's 64-bit identity, drawn at random unless given."""
-    if mode not in ("rb", "r", "wb", "w"):
-        raise ValueError(f"mode must be 'rb' or 'wb', got {mode!r}")
-    writing = mode.startswith("w")
+_WRITE_ONLY = ("code", "depth", "frame_bytes", "stream_id", "repair")
+_READ_ONLY = ("on_error", "accept_unauthenticated")
+_TEXT_ONLY = ("encoding", "errors", "newline")
+_MODES = {"rb": (False, False), "r": (False, False), "rt": (False, True),
+          "wb": (True, False), "w": (True, False), "wt": (True, True)}
+
+
+def open(file: PathOrFile, mode: str = "rb", *, code: CodeChoice | None = None, depth: int | None = None,
+         frame_bytes: int | None = None, stream_id: int | None = None,
+         repair: str | tuple[int, int] | None = None, key: bytes | None = None, on_error: str | None = None,
+         accept_unauthenticated: bool | None = None, encoding: str | None = None, errors: str | None = None,
+         newline: str | None = None) -> Encoder | Decoder | io.TextIOWrapper:
+    """Open a bitmend container for reading ('rb', or 'rt' for text) or writing ('wb', or
+    'wt'), from a path or a binary file object.
+
+    Writing takes code (a catalog name, default DEFAULT_CODE, or a code object such as
+    load_code_file gives: a code outside the catalog is written into every frame, so reading
+    needs nothing but the container), depth, frame_bytes, stream_id (the stream's 64-bit
+    identity, random unless given) and repair ('R/K'). Reading takes on_error (default
+    'keep') and accept_unauthenticated. key applies to both; encoding, errors and newline
+    to text modes only, as for io.TextIOWrapper. An argument of the other direction is
+    refused (ValueError) rather than ignored, and every value is checked before a file is
+    opened: UnknownCodeError, SettingError, RepairSpecError."""
+    if mode not in _MODES:
+        raise ValueError(f"mode must be 'rb', 'wb', 'rt' or 'wt', got {mode!r}")
+    writing, text = _MODES[mode]
+    given = {name for name, value in (("code", code), ("depth", depth), ("frame_bytes", frame_bytes),
+                                      ("stream_id", stream_id), ("repair", repair), ("on_error", on_error),
+                                      ("accept_unauthenticated", accept_unauthenticated),
+                                      ("encoding", encoding), ("errors", errors), ("newline", newline))
+             if value is not None}
+    for name in (_READ_ONLY if writing else _WRITE_ONLY):
+        if name in given:
+            raise ValueError(f"{name}= applies to {'reading' if writing else 'writing'} only, "
+                             f"not to mode {mode!r}")
+    if not text:
+        for name in _TEXT_ONLY:
+            if name in given:
+                raise ValueError(f"{name}= applies to text modes ('rt', 'wt') only, not to mode {mode!r}")
+    code = DEFAULT_CODE if code is None else code
+    depth = DEFAULT_DEPTH if depth is None else depth
+    frame_bytes = DEFAULT_FRAME_BYTES if frame_bytes is None else frame_bytes
+    on_error = "keep" if on_error is None else on_error
+    if writing:
+        _check_write_settings(code, depth, frame_bytes, repair)
+    else:
+        _check_on_error(on_error)
+    _checked_key(key)
     if isinstance(file, (str, bytes, os.PathLike)):
         fileobj = io.open(file, "wb" if writing else "rb")
         owned = True
     elif hasattr(file, "write" if writing else "read"):
         fileobj, owned = file, False
     else:
-        raise TypeError("file must be a path or a binary file object")
-    if writing:
-        return Encoder(fileobj, code, depth, frame_bytes, close_fileobj=owned, stream_id=stream_id, repair=repair,
-                       key=key)
-    return Decoder(fileobj, on_error, close_fileobj=owned, key=key)
+        raise TypeError(f"file must be a path or a binary file object open for "
+                        f"{'writing' if writing else 'reading'}, got {type(file).__name__}")
+    try:
+        if writing:
+            binary: Encoder | Decoder = Encoder(fileobj, code, depth, frame_bytes, close_fileobj=owned,
+                                                stream_id=stream_id, repair=repair, key=key)
+        else:
+            binary = Decoder(fileobj, on_error, close_fileobj=owned, key=key,
+                             accept_unauthenticated=bool(accept_unauthenticated))
+    except BaseException:
+        if owned:
+            fileobj.close()
+        raise
+    if text:
+        return io.TextIOWrapper(binary, io.text_encoding(encoding), errors, newline)
+    return binary
 
 
 @dataclass(frozen=True)
