@@ -19,11 +19,11 @@ from functools import lru_cache
 
 import numpy as np
 
+from bitmend.codes.base import BlockCode
 from bitmend.codes.linear import BinaryLinearCode
 from bitmend.kernels import cyclic_small, small
 from bitmend.kernels.loader import compiled, compiled_cyclic
-
-FAILED = 255  # block status of an uncorrectable (or, in a truncated segment, missing) block
+from bitmend.kernels.status import FAILED
 
 
 @dataclass(frozen=True)
@@ -62,14 +62,19 @@ class SegmentLayout:
         return (self.coded_bits + 7) // 8
 
 
+def layout(code: BlockCode, depth: int, message_bytes: int) -> SegmentLayout:
+    """The layout of a segment of `code` at `depth` carrying message_bytes bytes."""
+    return sized_layout(code.n, code.k, code.symbol_bits, depth, message_bytes)
+
+
 @lru_cache(maxsize=256)
-def layout(code: BinaryLinearCode, depth: int, message_bytes: int) -> SegmentLayout:
+def sized_layout(n: int, k: int, symbol_bits: int, depth: int, message_bytes: int) -> SegmentLayout:
     """G = ceil(8 * message_bytes / (D k s)) groups (s bits per symbol); at least one, so
-    every segment carries a check."""
-    bits = getattr(code, "symbol_bits", 1)
-    per_group = depth * code.k * bits
+    every segment carries a check. Needs only the code's sizes (a reader sizes a frame of a
+    code defined in the stream before it has read the definition)."""
+    per_group = depth * k * symbol_bits
     groups = max(1, -(-8 * message_bytes // per_group))
-    return SegmentLayout(groups, depth, code.n, code.k, bits)
+    return SegmentLayout(groups, depth, n, k, symbol_bits)
 
 
 CHUNK_BLOCKS = 1 << 16  # codewords per compiled call: bounds the temporary arrays to about 2 MiB

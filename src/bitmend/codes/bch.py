@@ -20,7 +20,6 @@ codeword is reported as FAILED (255), never guessed.
 from __future__ import annotations
 
 from functools import cached_property
-from math import comb
 
 import numpy as np
 
@@ -31,7 +30,6 @@ from bitmend.kernels import cyclic_small
 from bitmend.kernels.gf2m import GF2m, bch_designed_range, bch_generator, binary_register_table, field
 from bitmend.kernels.loader import compiled_cyclic
 
-FAILED = 255
 LISTING_LIMIT_BITS = 20  # weight distributions list at most 2^20 words (of the code or of its dual)
 
 
@@ -94,24 +92,9 @@ class BCHCode(SystematicBinaryCode):
 
     # ---- parameters ----------------------------------------------------------------------------
     @property
-    def t(self) -> int:
-        """Bit errors corrected per codeword (the designed t)."""
-        return self._t
-
-    @property
     def d(self) -> int:
         """Designed distance 2t + 1: the minimum distance is at least this."""
         return 2 * self._t + 1
-
-    @property
-    def detects(self) -> int:
-        """Errors always detected while correcting up to t: d - 1 - t (from the designed d)."""
-        return self.d - 1 - self._t
-
-    @property
-    def is_perfect(self) -> bool:
-        """Hamming bound met with equality (only the t = 1 codes, which are Hamming codes)."""
-        return sum(comb(self._n, i) for i in range(self._t + 1)) == 1 << self.r
 
     @property
     def mother_n(self) -> int:
@@ -184,12 +167,6 @@ class BCHCode(SystematicBinaryCode):
             weights += np.bitwise_count(u & np.uint64(row)).astype(np.int64) & 1
         dual = [int(c) for c in np.bincount(weights, minlength=n + 1)]
         return WeightDistribution(tuple(macwilliams(dual, n)), "macwilliams")
-
-    @property
-    def minimum_distance(self) -> int | None:
-        """The true minimum distance when the weight distribution is available, else None."""
-        wd = self.weight_distribution
-        return None if wd is None else wd.minimum_distance
 
     # ---- kernel tables ----------------------------------------------------------------------------
     @cached_property

@@ -14,7 +14,6 @@ from __future__ import annotations
 
 from functools import cached_property
 from itertools import combinations
-from math import comb
 
 import numpy as np
 
@@ -22,11 +21,11 @@ from bitmend.analysis.weights import WeightDistribution, weight_distribution
 from bitmend.codes.base import SystematicBinaryCode, as_rows
 from bitmend.errors import CodeError
 from bitmend.kernels.gf2 import as_bit_matrix, row_reduce
+from bitmend.kernels.status import FAILED
 
 MAX_MESSAGE_BITS = 64  # k: a message is one uint64 in the kernels
 MAX_PARITY_BITS = 20  # r: the coset-leader table has 2^r entries
 WORD_TABLE_MAX_N = 16  # codes this short decode by one lookup per received word
-FAILED = 255  # block status of an uncorrectable block (as in kernels.blockcode)
 
 
 class CodeDefinitionError(CodeError):
@@ -57,7 +56,7 @@ class BinaryLinearCode(SystematicBinaryCode):
         self.description = description
         self._P = parity_part.astype(np.uint8)
         self._n, self._k = n, k
-        self.column_order = column_order or tuple(range(n))
+        self._column_order = column_order or tuple(range(n))
 
     # ---- construction -------------------------------------------------------------
     @classmethod
@@ -108,19 +107,8 @@ class BinaryLinearCode(SystematicBinaryCode):
         return self.weight_distribution.minimum_distance
 
     @property
-    def t(self) -> int:
-        """Errors corrected per codeword: floor((d - 1) / 2)."""
-        return (self.d - 1) // 2
-
-    @property
-    def detects(self) -> int:
-        """Errors always detected while correcting up to t: d - 1 - t."""
-        return self.d - 1 - self.t
-
-    @property
-    def is_perfect(self) -> bool:
-        """Hamming bound met with equality: sum_{i<=t} C(n, i) == 2^(n-k)."""
-        return sum(comb(self._n, i) for i in range(self.t + 1)) == 1 << self.r
+    def column_order(self) -> tuple[int, ...]:
+        return self._column_order
 
     # ---- kernel tables ----------------------------------------------------------------
     @cached_property

@@ -32,7 +32,6 @@ from bitmend.kernels import cyclic_small
 from bitmend.kernels.gf2m import GF2m, field, rs_generator, symbol_register_table
 from bitmend.kernels.loader import compiled_cyclic
 
-FAILED = 255
 RS_FIELD_POLYNOMIAL = 0x11D
 RS_FIRST_ROOT = 1
 
@@ -77,33 +76,15 @@ class ReedSolomonCode(BlockCode):
 
     # ---- parameters --------------------------------------------------------------------------------
     @property
-    def t(self) -> int:
-        """Symbol errors corrected per codeword."""
-        return self.r // 2
-
-    @property
     def d(self) -> int:
         """Minimum distance in symbols, n - k + 1 (MDS)."""
         return self.r + 1
-
-    @property
-    def detects(self) -> int:
-        """Symbol errors always detected while correcting up to t: d - 1 - t."""
-        return self.d - 1 - self.t
-
-    @property
-    def is_perfect(self) -> bool:
-        """q-ary Hamming bound met with equality: sum_{i<=t} C(n,i) 255^i == 256^(n-k)."""
-        return sum(comb(self._n, i) * 255 ** i for i in range(self.t + 1)) == 256 ** self.r
 
     @property
     def shortened_by(self) -> int:
         return 255 - self._n
 
     # ---- weight distribution ------------------------------------------------------------------------
-    weight_distribution_available = True
-    weight_distribution_note = "symbol weights, closed form for MDS codes"
-
     @cached_property
     def weight_distribution(self) -> WeightDistribution:
         """Distribution of codeword symbol weights (closed form for MDS codes)."""

@@ -48,7 +48,7 @@ class _Counts:
 def _symbol_bits(header: fmt.FrameHeader) -> int:
     """1 for binary codes, 8 for Reed-Solomon; 1 when the frame's code is unknown."""
     try:
-        return getattr(header.code, "symbol_bits", 1)
+        return header.code.symbol_bits
     except ValueError:  # a defined code whose definition block was lost
         return 1
 

@@ -36,7 +36,7 @@ import numpy as np
 from bitmend.codes.catalog import MAX_DEPTH, code_by_id, get_code
 from bitmend.codes.linear import MAX_MESSAGE_BITS, MAX_PARITY_BITS, BinaryLinearCode, CodeDefinitionError
 from bitmend.errors import ContainerError, SettingError
-from bitmend.interleave import decode_segment, encode_segment, layout
+from bitmend.interleave import decode_segment, encode_segment, layout, sized_layout
 
 FORMAT_VERSION = 2  # the version this bitmend writes; it reads every version in HEADER_LAYOUTS
 # 64-bit sync marker: 32 ones, no run longer than 4, and for every shift s the marker
@@ -128,14 +128,6 @@ class UnsupportedVersionError(HeaderError):
     pass
 
 
-class _Geometry(NamedTuple):
-    """n and k of a code defined in the stream, before its definition block is read: all
-    that `layout` needs to size the coded payload."""
-
-    n: int
-    k: int
-
-
 @dataclass(frozen=True)
 class FrameHeader:  # noqa: PLW1641 (cached_property needs __dict__; frozen still blocks assignment)
     """The fields of one frame header.
@@ -206,7 +198,7 @@ class FrameHeader:  # noqa: PLW1641 (cached_property needs __dict__; frozen stil
     def coded_bytes(self) -> int:
         if self.code_id == CUSTOM_CODE_ID:
             k, r = self._shape()
-            return layout(_Geometry(k + r, k), self.depth, self.message_bytes).coded_bytes
+            return sized_layout(k + r, k, 1, self.depth, self.message_bytes).coded_bytes
         return layout(self.code, self.depth, self.message_bytes).coded_bytes
 
     @property

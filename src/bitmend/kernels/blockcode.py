@@ -21,9 +21,9 @@ import numpy as np
 from numba import njit
 
 from bitmend.kernels.bitfields import finish_writer, get_byte, get_field, or_byte, put_field
+from bitmend.kernels.status import FAILED
 
 U64 = np.uint64
-FAILED = 255  # block status: syndrome has no coset leader of weight <= t
 
 
 @njit(cache=True, inline="always")

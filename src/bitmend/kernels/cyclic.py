@@ -34,9 +34,9 @@ from numba import njit
 
 from bitmend.kernels.bitfields import finish_writer, get_byte, get_field, or_byte, put_field
 from bitmend.kernels.blockcode import transpose8
+from bitmend.kernels.status import FAILED
 
 U64 = np.uint64
-FAILED = 255
 
 
 # ---- shift register ----------------------------------------------------------------------------

@@ -11,7 +11,8 @@ from __future__ import annotations
 
 import numpy as np
 
-FAILED = 255
+from bitmend.kernels.status import FAILED
+
 _U64 = np.uint64
 
 

@@ -31,9 +31,9 @@ import numpy as np
 from numba import njit
 
 from bitmend.kernels.blockcode import codeword_words, transpose8  # shared with the word-buffer kernels
+from bitmend.kernels.status import FAILED
 
 U64 = np.uint64
-FAILED = 255  # block status: syndrome without a coset leader of weight <= t
 SPARE_WORDS = 2  # zero words after the data, so a two-word load never runs off the end
 LITTLE_ENDIAN = sys.byteorder == "little"
 

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import numpy as np
 
-FAILED = 255
+from bitmend.kernels.status import FAILED
 
 
 def _bits(data: bytes | np.ndarray, nbits: int) -> np.ndarray:
