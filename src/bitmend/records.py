@@ -36,12 +36,13 @@ MAX_HELD_LINE = MAX_PAYLOAD_BYTES  # a line longer than the largest frame is ref
 
 
 class RecordError(SettingError):
-    """Input that cannot be cut into records of the framing asked for."""
+    """Records that cannot be made or read as asked: an unknown framing or on_error choice,
+    or input that cannot be cut into records of the framing asked for."""
 
 
 def check_framing(framing: str) -> str:
     if framing not in FRAMINGS:
-        raise ValueError(f"record framing must be one of {', '.join(FRAMINGS)}, got {framing!r}")
+        raise RecordError(f"record framing must be one of {', '.join(FRAMINGS)}, got {framing!r}")
     return framing
 
 
@@ -234,7 +235,7 @@ class RecordReader:
 
 def record_assembler(source, on_error: str, key: bytes | None = None, accept_unauthenticated: bool = False) -> Assembler:
     if on_error not in RECORD_ON_ERROR:
-        raise ValueError(f"on_error for records must be one of {', '.join(RECORD_ON_ERROR)} "
+        raise RecordError(f"on_error for records must be one of {', '.join(RECORD_ON_ERROR)} "
                          f"(a zero-filled record would be an invented one), got {on_error!r}")
     # the assembler drops damaged frames' bytes under 'drop'; 'keep' hands them on as they are
     keys = {"key": key, "accept_unauthenticated": accept_unauthenticated}
