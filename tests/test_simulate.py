@@ -215,6 +215,7 @@ def test_simulate_decodes_with_the_same_segment_functions_as_the_container(monke
     # the trials must run the real path: count the calls into bitmend.interleave
     import bitmend.interleave as interleave
     import bitmend.simulate as sim
+    import bitmend.simulate.trials as trials  # where the trials call the segment functions
 
     calls = {"encode": 0, "decode": 0}
     real_encode, real_decode = interleave.encode_segment, interleave.decode_segment
@@ -227,9 +228,9 @@ def test_simulate_decodes_with_the_same_segment_functions_as_the_container(monke
         calls["decode"] += 1
         return real_decode(*args)
 
-    monkeypatch.setattr(sim, "encode_segment", encode)
-    monkeypatch.setattr(sim, "decode_segment", decode)
-    assert sim.encode_segment is encode and real_encode is interleave.encode_segment
+    monkeypatch.setattr(trials, "encode_segment", encode)
+    monkeypatch.setattr(trials, "decode_segment", decode)
+    assert trials.encode_segment is encode and real_encode is interleave.encode_segment
     result = sim.simulate("hamming-7-4", 1, "bsc:p=1e-3", 3 * 8 * 1000, seed=1, frame_bytes=1000)
     assert calls == {"encode": 3, "decode": 3} and result.frames == 3
 

@@ -1,20 +1,23 @@
 """Everything `bitmend codes show` says about one code: matrices, distance, bounds, weight
 distribution and error probabilities on a binary symmetric channel.
 
-The numbers come from `analysis` (pure formulas on n, k, d and the weight distribution);
-this module only gathers them for a code object, a catalog name or a custom code. It
-reads codes by their common attributes (n, k, t, d, G, H, weight_distribution), so code
-families beside BinaryLinearCode are shown too; what a family cannot supply (a weight
-distribution too large to list, matrices over a bigger field) is left out and said so.
+The numbers come from `bitmend.code_theory` and `analysis` (formulas on n, k, d and the
+weight distribution); this module gathers them for one code, a catalog code or a custom
+one, through the interface every code has (`codes.base.BlockCode`). What a code cannot
+supply (a weight distribution too large to list, matrices over a bigger field) is left out
+and said so.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
 
-from bitmend.analysis import limits, theory
+from bitmend.analysis import limits
 from bitmend.analysis.bounds import CodeBounds, code_bounds
+from bitmend.code_theory import BscPoint, as_code, block_error_on_bsc, bsc_point, code_weights, distance_to_limit
+from bitmend.codes.base import BlockCode
 from bitmend.codes.catalog import code_names, entry, get_code
+from bitmend.wording import counted
 
 #: bit flip probabilities of the table in `codes show`: a log grid, plus 1/2 (pure noise)
 BSC_GRID = (1e-6, 1e-5, 1e-4, 1e-3, 1e-2, 1e-1, 0.5)
@@ -23,38 +26,13 @@ UNDETECTED_FORMULA = "P_ud(p) = sum_{w>0} A_w p^w (1-p)^(n-w)"
 BLOCK_ERROR_FORMULA = "P_B(p) = sum_{i>t} C(n,i) p^i (1-p)^(n-i)"
 
 
-@dataclass(frozen=True)
-class BscPoint:
-    """Per-codeword probabilities at one bit flip probability p (None: needs the weight
-    distribution, which is not available)."""
-
-    p: float
-    undetected: float | None  # the code used for detection only: the error is a non-zero codeword
-    block_error: float  # correcting up to t: more than t errors
-    miscorrected: float | None  # of which decoded to a wrong codeword
-    detected: float | None  # of which flagged uncorrectable
-
-    def to_dict(self) -> dict:
-        return {"p": self.p, "undetected": self.undetected, "block_error": self.block_error,
-                "miscorrected": self.miscorrected, "detected": self.detected}
-
-
-def _weights(code) -> tuple[int, ...] | None:
-    try:
-        wd = code.weight_distribution
-    except (AttributeError, ValueError):
-        return None
-    return None if wd is None else tuple(wd.counts)
-
-
-def _is_catalog(code) -> bool:
-    name = getattr(code, "name", None)
-    return name in code_names() and get_code(name) is code
+def _is_catalog(code: BlockCode) -> bool:
+    return code.name in code_names() and get_code(code.name) is code
 
 
 @dataclass(frozen=True)
 class CodeProfile:
-    code: object  # BinaryLinearCode or another code family with the same attributes
+    code: BlockCode
     catalog: bool
     use: str
     d: int  # the minimum distance (or, where it cannot be listed, the designed distance)
@@ -71,7 +49,7 @@ class CodeProfile:
 
     @property
     def symbol_bits(self) -> int:
-        return getattr(self.code, "symbol_bits", 1)
+        return self.code.symbol_bits
 
     @property
     def weight_method(self) -> str | None:
@@ -81,10 +59,12 @@ class CodeProfile:
     def weight_method_text(self) -> str:
         code = self.code
         if self.weights is None:
-            return getattr(code, "weight_distribution_note", "") or "not available"
+            return code.weight_distribution_note or "not available"
         q = 2 ** self.symbol_bits
         if self.weight_method == "enumeration":
             return f"by enumeration of the {q}^{code.k} codewords"
+        if self.weight_method == "closed form (MDS)":
+            return "the closed form of an MDS code, in symbol weights"
         if self.weight_method == "macwilliams":
             return (f"from the {q}^{code.n - code.k} words of the dual code through the MacWilliams identity, "
                     f"fewer to list than the {q}^{code.k} codewords")
@@ -92,16 +72,13 @@ class CodeProfile:
 
     @property
     def column_order(self) -> tuple[int, ...] | None:
-        order = getattr(self.code, "column_order", None)
-        return None if order is None or tuple(order) == tuple(range(self.code.n)) else tuple(order)
+        order = tuple(self.code.column_order)
+        return None if order == tuple(range(self.code.n)) else order
 
     def _matrix_rows(self, which: str) -> list[str] | None:
-        if self.symbol_bits != 1:
+        if self.symbol_bits != 1:  # a symbol code's matrices are over GF(2^s), not bits
             return None
-        try:
-            matrix = getattr(self.code, which)
-        except (AttributeError, ValueError):
-            return None
+        matrix = self.code.G if which == "G" else self.code.H
         return ["".join(map(str, row)) for row in matrix]
 
     def render(self) -> list[str]:
@@ -141,56 +118,31 @@ LIMIT_FORMULAS = {
 }
 
 
-def own_block_error(code, p: float) -> float:
-    """The code's block error at bit flip probability p under bounded-distance decoding, as
-    bitmend decodes it: more than t of n bits wrong, or, for a code over s-bit symbols, more
-    than t of n symbols (a symbol wrong with 1 - (1-p)^s)."""
-    symbol_bits = getattr(code, "symbol_bits", 1)
-    if symbol_bits == 1:
-        return theory.bsc_block_error(code.n, code.t, p)
-    return theory.bsc_symbol_block_error(code.n, code.t, p, symbol_bits)
+def _distance(code: BlockCode, weights: tuple[int, ...] | None) -> tuple[int, bool]:
+    """(d, exact): the least non-zero weight when the weights are listed, else the code's
+    exact minimum distance, else its designed distance (a lower bound)."""
+    if weights is not None:
+        return next(w for w, a in enumerate(weights) if w and a), True
+    if code.minimum_distance is not None:
+        return code.minimum_distance, True
+    return code.d, code.distance_kind != "designed"
 
 
-def code_limit(code, p: float) -> limits.DistanceToLimit | None:
-    """The code against the best code of its length (in bits) on a BSC at its own block error
-    at p; None where that block error is 0 or (nearly) 1."""
-    symbol_bits = getattr(code, "symbol_bits", 1)
-    return limits.distance_to_limit(code.n * symbol_bits, code.k * symbol_bits, p, own_block_error(code, p))
-
-
-def code_profile(code, grid: tuple[float, ...] = BSC_GRID, at: float | None = None) -> CodeProfile:
+def code_profile(code: str | BlockCode, grid: tuple[float, ...] = BSC_GRID, at: float | None = None) -> CodeProfile:
     """The profile of a catalog code (by name or object) or a custom code; with `at`, its
     distance to the limit on a BSC with that bit flip probability."""
     if at is not None and not 0.0 < at < 0.5:
         raise ValueError(f"--at must be a bit flip probability between 0 and 1/2, got {at:g}")
-    if isinstance(code, str):
-        code = get_code(code)
+    code = as_code(code)
     catalog = _is_catalog(code)
-    use = entry(code.name).use if catalog else (getattr(code, "description", "") or "custom code")
-    weights = _weights(code)
-    exact = getattr(code, "minimum_distance", None)
-    if weights is not None:
-        d, d_exact = next(w for w, a in enumerate(weights) if w and a), True
-    elif isinstance(exact, int):
-        d, d_exact = exact, True
-    else:
-        d, d_exact = code.d, getattr(code, "distance_kind", "exact") != "designed"
-    symbol_bits = getattr(code, "symbol_bits", 1)
-    bounds = code_bounds(code.n, code.k, d, 2 ** symbol_bits)
-    points = []
-    if symbol_bits == 1:  # a BSC acts on bits; a symbol code's errors are counted in symbols
-        for p in grid:
-            block = theory.bsc_block_error(code.n, code.t, p)
-            undetected = miscorrected = detected = None
-            if weights is not None:
-                outcome = theory.block_outcomes(code.n, code.t, weights, p)
-                undetected, miscorrected = theory.undetected_error(weights, p), outcome.undetected
-                # detected = block error - miscorrected: a difference of two nearly equal sums
-                # for a perfect code (which detects nothing), so rounding residue shows as 0
-                detected = outcome.detected if outcome.detected > 1e-9 * outcome.block_error else 0.0
-            points.append(BscPoint(p, undetected, block, miscorrected, detected))
-    limit = code_limit(code, at) if at is not None else None
-    return CodeProfile(code, catalog, use, d, d_exact, bounds, tuple(points), weights, limit, at)
+    use = entry(code.name).use if catalog else (code.description or "custom code")
+    weights = code_weights(code)
+    d, d_exact = _distance(code, weights)
+    bounds = code_bounds(code.n, code.k, d, 2 ** code.symbol_bits)
+    # a BSC acts on bits; a symbol code's errors are counted in symbols
+    points = tuple(bsc_point(code, p, weights) for p in grid) if code.symbol_bits == 1 else ()
+    limit = distance_to_limit(code, at) if at is not None else None
+    return CodeProfile(code, catalog, use, d, d_exact, bounds, points, weights, limit, at)
 
 
 MATRIX_PRINT_LIMIT = 80 * 72  # entries; larger matrices go to --json only
@@ -209,27 +161,52 @@ def _num(value: float | None) -> str:
 
 
 def _render(profile: CodeProfile) -> list[str]:
-    code, b, d = profile.code, profile.bounds, profile.d
+    lines = _render_summary(profile) + _render_bounds(profile) + _render_weights(profile) + _render_matrices(profile)
+    if profile.bsc:
+        lines += _render_bsc(profile)
+    if profile.at is not None:
+        lines += _render_limit(profile)
+    return lines
+
+
+def _render_summary(profile: CodeProfile) -> list[str]:
+    """What the code is: sizes, rate, distance, what it corrects and detects, where it comes from."""
+    code, d = profile.code, profile.d
     unit = "" if profile.symbol_bits == 1 else f" symbols of {profile.symbol_bits} bits"
     lines = [f"{code.name}: ({code.n},{code.k}){unit} rate {code.k / code.n:.4f}, "
              f"d {'=' if profile.d_exact else '>='} {d}, corrects t = {code.t}, "
-             f"detects every pattern of up to {d - 1 - code.t} errors while correcting"
-             f"{', perfect' if b.perfect else ''}",
+             f"detects every pattern of up to {counted(d - 1 - code.t, 'error')} while correcting"
+             f"{', perfect' if profile.bounds.perfect else ''}",
              f"  {'catalog' if profile.catalog else 'custom'}: {profile.use}"]
     if profile.column_order:
         lines.append("  columns reordered for the systematic form (an equivalent code): "
                      + " ".join(map(str, profile.column_order)))
+    return lines
+
+
+def _render_bounds(profile: CodeProfile) -> list[str]:
+    """The Singleton and Hamming bounds, and how the code stands against them."""
+    b, d = profile.bounds, profile.d
     q = "2" if b.q == 2 else str(b.q)
     volume = (f"sum_(i<={b.t}) C({b.n},i)" if b.q == 2 else f"sum_(i<={b.t}) C({b.n},i) {b.q - 1}^i")
-    lines.append("bounds:")
-    lines.append(f"  Singleton: d <= n - k + 1 = {b.singleton_d}"
-                 f"{' (met: MDS)' if b.meets_singleton else f'; this code has d = {d}'}")
-    lines.append(f"  Hamming:   V(n,t) = {volume} = {_big(b.sphere_volume)} <= {q}^(n-k) = {_big(b.cosets)} -> "
-                 f"{'met with equality: perfect' if b.perfect else f'{b.sphere_fill:.1%} of the syndromes used'}; "
-                 f"no ({b.n},{b.k}) code corrects more than t = {b.hamming_t}")
-    lines.append(f"weight distribution ({profile.weight_method_text}):")
+    return ["bounds:",
+            f"  Singleton: d <= n - k + 1 = {b.singleton_d}"
+            f"{' (met: MDS)' if b.meets_singleton else f'; this code has d = {d}'}",
+            f"  Hamming:   V(n,t) = {volume} = {_big(b.sphere_volume)} <= {q}^(n-k) = {_big(b.cosets)} -> "
+            f"{'met with equality: perfect' if b.perfect else f'{b.sphere_fill:.1%} of the syndromes used'}; "
+            f"no ({b.n},{b.k}) code corrects more than t = {b.hamming_t}"]
+
+
+def _render_weights(profile: CodeProfile) -> list[str]:
+    lines = [f"weight distribution ({profile.weight_method_text}):"]
     if profile.weights is not None:
         lines.append("  " + ", ".join(f"A{w}={_big(a)}" for w, a in enumerate(profile.weights) if a))
+    return lines
+
+
+def _render_matrices(profile: CodeProfile) -> list[str]:
+    """G and H row by row, or their size where they are too large to print."""
+    lines = []
     for label, which in (("G = [I | P]", "G"), ("H = [P^T | I]", "H")):
         rows = profile._matrix_rows(which)
         if rows is not None and len(rows) * len(rows[0]) > MATRIX_PRINT_LIMIT:
@@ -237,17 +214,19 @@ def _render(profile: CodeProfile) -> list[str]:
         elif rows is not None:
             lines.append(f"{label}:")
             lines += [f"  {row}" for row in rows]
-    if profile.bsc:
-        lines.append("on a binary symmetric channel with bit flip probability p, per codeword:")
-        lines.append(f"  {'p':>8}  {'undetected*':>12}  {'block error':>12}  {'miscorrected':>12}  {'detected':>12}")
-        for point in profile.bsc:
-            lines.append(f"  {point.p:>8.0e}  {_num(point.undetected)}  {_num(point.block_error)}  "
-                         f"{_num(point.miscorrected)}  {_num(point.detected)}")
-        lines.append(f"  * the code used to detect only: {UNDETECTED_FORMULA}")
-        lines.append(f"  correcting up to t = {code.t}: {BLOCK_ERROR_FORMULA}, split into miscorrected "
-                     "(a wrong codeword, left for the frame CRC) and detected (flagged)")
-    if profile.at is not None:
-        lines += _render_limit(profile)
+    return lines
+
+
+def _render_bsc(profile: CodeProfile) -> list[str]:
+    """The table of per-codeword probabilities on a BSC, with its formulas."""
+    lines = ["on a binary symmetric channel with bit flip probability p, per codeword:",
+             f"  {'p':>8}  {'undetected*':>12}  {'block error':>12}  {'miscorrected':>12}  {'detected':>12}"]
+    for point in profile.bsc:
+        lines.append(f"  {point.p:>8.0e}  {_num(point.undetected)}  {_num(point.block_error)}  "
+                     f"{_num(point.miscorrected)}  {_num(point.detected)}")
+    lines.append(f"  * the code used to detect only: {UNDETECTED_FORMULA}")
+    lines.append(f"  correcting up to t = {profile.code.t}: {BLOCK_ERROR_FORMULA}, split into miscorrected "
+                 "(a wrong codeword, left for the frame CRC) and detected (flagged)")
     return lines
 
 
@@ -262,7 +241,7 @@ def _render_limit(profile: CodeProfile) -> list[str]:
     head = [f"distance to the limit on a BSC with p = {p:g} (Polyanskiy, Poor and Verdu, IEEE Trans. IT 56(5), "
             f"2010), counted in bits: n = {code.n * profile.symbol_bits}{unit}, k = {code.k * profile.symbol_bits}, "
             f"rate {code.k / code.n:.4f}"]
-    own = own_block_error(code, p)
+    own = block_error_on_bsc(code, p)
     if g is None:
         return head + [f"  this code's block error at p is {own:.3g}: nothing to compare (it never or always fails)"]
     lines = head + [
