@@ -7,9 +7,10 @@ BCH) and a byte for Reed-Solomon codes. Any run of D*t consecutive channel symbo
 one group therefore hits every codeword of that group at most t times, which the code
 corrects.
 
-Binary linear codes with k <= 64 run through kernels.blockcode (fused, word at a time).
-BCH and Reed-Solomon codes bring their own row kernels (`encode_rows`, `decode_rows`);
-this module moves their symbols between the stream and codeword rows.
+Codes of the generic binary engine (`code.generic_engine`, k <= 64) run through the fused
+word kernels (kernels.fused, kernels.blockcode). Every other code goes through its row
+kernels (`BlockCode.encode_rows`, `decode_rows`): this module moves its symbols between
+the stream and codeword rows, bits or bytes by `code.symbol_bits`.
 """
 
 from __future__ import annotations
@@ -88,11 +89,18 @@ def _chunks(lay: SegmentLayout) -> list[tuple[int, int]]:
     return [(first, min(step, lay.groups - first)) for first in range(0, lay.groups, step)]
 
 
-def encode_segment(code: BinaryLinearCode, depth: int, message: bytes) -> bytes:
+def encode_segment(code: BlockCode, depth: int, message: bytes) -> bytes:
     """Encode and interleave message; returns layout(...).coded_bytes bytes."""
     lay = layout(code, depth, len(message))
-    if _has_row_kernels(code):
+    engine = code.generic_engine
+    if engine is None:
         return _encode_rows_segment(code, lay, bytes(message))
+    return _encode_engine(engine, lay, message)
+
+
+def _encode_engine(code: BinaryLinearCode, lay: SegmentLayout, message: bytes) -> bytes:
+    """encode_segment for the generic engine: numpy twins for small work, else fused kernels."""
+    depth = lay.depth
     kernels = compiled(lay.coded_bits)
     if kernels is None:
         return small.encode(message, code.P, depth, lay.groups)
@@ -116,17 +124,25 @@ def _encode_words(code: BinaryLinearCode, lay: SegmentLayout, message: bytes) ->
     return bitfields.to_bytes(out, lay.coded_bytes)
 
 
-def decode_segment(code: BinaryLinearCode, depth: int, coded: bytes | np.ndarray,
+def decode_segment(code: BlockCode, depth: int, coded: bytes | np.ndarray,
                    message_bytes: int) -> tuple[bytes, np.ndarray]:
     """De-interleave and correct a segment carrying message_bytes bytes.
 
     coded may be shorter than the layout (a truncated stream); missing bits read as zero.
-    Returns (message bytes, per-block status: 0 clean, w corrected, 255 uncorrectable).
+    Returns (message bytes, per-block status: 0 clean, w corrected, FAILED uncorrectable).
     """
     lay = layout(code, depth, message_bytes)
     raw = np.frombuffer(coded, dtype=np.uint8) if not isinstance(coded, np.ndarray) else coded
-    if _has_row_kernels(code):
+    engine = code.generic_engine
+    if engine is None:
         return _decode_rows_segment(code, lay, raw, message_bytes)
+    return _decode_engine(engine, lay, raw, message_bytes)
+
+
+def _decode_engine(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
+                   message_bytes: int) -> tuple[bytes, np.ndarray]:
+    """decode_segment for the generic engine: numpy twins for small work, else fused kernels."""
+    depth = lay.depth
     kernels = compiled(lay.coded_bits)
     if kernels is None:
         lead_m, _, weight = code.leader_tables
@@ -345,11 +361,6 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
 
 # ---- codes with their own row kernels (BCH, Reed-Solomon) ------------------------------------------
 
-def _has_row_kernels(code: object) -> bool:
-    """BCH and Reed-Solomon codes correct whole codeword rows themselves."""
-    return hasattr(code, "decode_rows")
-
-
 def _symbol_rows(raw: np.ndarray, groups: int, depth: int, n: int) -> np.ndarray:
     """(groups*depth, n) byte-symbol rows from interleaved groups: row g*D + i, symbol j
     is group g's byte j*D + i. Missing bytes read as zero."""
@@ -369,7 +380,7 @@ def _interleave_symbol_rows(rows: np.ndarray, depth: int) -> bytes:
     return rows.reshape(blocks // depth, depth, n).transpose(0, 2, 1).tobytes()
 
 
-def _bit_rows(code, data: bytes | np.ndarray, blocks: int, width: int, depth: int, kernels) -> np.ndarray:
+def _bit_rows(code: BlockCode, data: bytes | np.ndarray, blocks: int, width: int, depth: int, kernels) -> np.ndarray:
     """Packed rows of `width` bits for `blocks` codewords read from the stream at depth."""
     if kernels is None:
         return cyclic_small.gather_bits(data, blocks, width, depth, code.row_bytes)
@@ -389,17 +400,18 @@ def _bit_stream(rows: np.ndarray, width: int, depth: int, nbytes: int, kernels) 
     return bitfields.to_bytes(out, nbytes)
 
 
-def _encode_rows_segment(code, lay: SegmentLayout, message: bytes) -> bytes:
+def _encode_rows_segment(code: BlockCode, lay: SegmentLayout, message: bytes) -> bytes:
     if lay.symbol_bits == 8:
-        messages = np.frombuffer(message.ljust(lay.blocks * lay.k, b"\0"), dtype=np.uint8).reshape(lay.blocks, lay.k)
-        return _interleave_symbol_rows(code.encode_rows(messages), lay.depth)
+        rows = np.zeros((lay.blocks, lay.n), dtype=np.uint8)
+        rows[:, : lay.k] = np.frombuffer(message.ljust(lay.blocks * lay.k, b"\0"), np.uint8).reshape(lay.blocks, lay.k)
+        return _interleave_symbol_rows(code.encode_rows(rows), lay.depth)
     kernels = compiled_cyclic(lay.coded_bits)
     rows = _bit_rows(code, message, lay.blocks, lay.k, 1, kernels)
     code.encode_rows(rows)
     return _bit_stream(rows, lay.n, lay.depth, lay.coded_bytes, kernels)
 
 
-def _decode_rows_segment(code, lay: SegmentLayout, raw: np.ndarray, message_bytes: int) -> tuple[bytes, np.ndarray]:
+def _decode_rows_segment(code: BlockCode, lay: SegmentLayout, raw: np.ndarray, message_bytes: int) -> tuple[bytes, np.ndarray]:
     if lay.symbol_bits == 8:
         rows = _symbol_rows(raw, lay.groups, lay.depth, lay.n)
         status = code.decode_rows(rows)
@@ -410,7 +422,7 @@ def _decode_rows_segment(code, lay: SegmentLayout, raw: np.ndarray, message_byte
     return _bit_stream(rows, lay.k, 1, message_bytes, kernels), status
 
 
-def decode_truncated(code: BinaryLinearCode, depth: int, coded: bytes | np.ndarray, message_bytes: int,
+def decode_truncated(code: BlockCode, depth: int, coded: bytes | np.ndarray, message_bytes: int,
                      received_bits: int, wanted_bytes: int | None = None) -> tuple[bytes, np.ndarray]:
     """Decode what arrived of a segment cut short after received_bits coded bits.
 
@@ -424,7 +436,8 @@ def decode_truncated(code: BinaryLinearCode, depth: int, coded: bytes | np.ndarr
     wanted = message_bytes if wanted_bytes is None else min(wanted_bytes, message_bytes)
     whole = min(lay.groups, received_bits // lay.group_bits)
     raw = np.frombuffer(coded, dtype=np.uint8) if not isinstance(coded, np.ndarray) else coded
-    if lay.symbol_bits == 8 and whole < lay.groups and received_bits // 8 > whole * lay.group_bits // 8:
+    if (code.supports_erasures and lay.symbol_bits == 8 and whole < lay.groups
+            and received_bits // 8 > whole * lay.group_bits // 8):
         n, D = lay.n, lay.depth
         rows = _symbol_rows(raw, whole + 1, D, n)
         status = np.empty(rows.shape[0], dtype=np.uint8)

@@ -14,21 +14,21 @@ not sent; it keeps n - k, t and the designed distance.
 
 Decoding is algebraic (kernels.cyclic): syndromes, Berlekamp-Massey, Chien search; up to t
 bit errors per codeword are corrected and a word that cannot be brought within t of a
-codeword is reported as FAILED (255), never guessed.
+codeword is reported as FAILED, never guessed.
 """
 
 from __future__ import annotations
 
 from functools import cached_property
+from types import ModuleType
 
 import numpy as np
 
 from bitmend.analysis.weights import WeightDistribution, macwilliams
-from bitmend.codes.base import SystematicBinaryCode, as_rows
+from bitmend.codes.base import SystematicBinaryCode
+from bitmend.codes.cyclic import CyclicCode
 from bitmend.errors import CodeError
-from bitmend.kernels import cyclic_small
 from bitmend.kernels.gf2m import GF2m, bch_designed_range, bch_generator, binary_register_table, field
-from bitmend.kernels.loader import compiled_cyclic
 
 LISTING_LIMIT_BITS = 20  # weight distributions list at most 2^20 words (of the code or of its dual)
 
@@ -37,12 +37,13 @@ class BCHParameterError(CodeError):
     """(n, k) that no primitive narrow-sense binary BCH code (or shortening of one) has."""
 
 
-class BCHCode(SystematicBinaryCode):
+class BCHCode(CyclicCode, SystematicBinaryCode):
     """A binary BCH code: m, designed t, and the (possibly shortened) length n.
 
-    The array API mirrors BinaryLinearCode: `encode` takes 0/1 message bits of shape (k,)
-    or (N, k); `decode` takes received bits (n,) or (N, n) and returns (messages, status)
-    with status 0 clean, w bits corrected, FAILED (255) uncorrectable.
+    The array API is BlockCode's: `encode` takes 0/1 message bits of shape (k,) or (N, k);
+    `decode` takes received bits (n,) or (N, n) and returns (messages, status) with status
+    0 clean, w bits corrected, FAILED uncorrectable; `syndromes` are the power sums
+    S_j = r(alpha^j), j = 1 .. 2t.
     """
 
     family = "bch"
@@ -95,14 +96,6 @@ class BCHCode(SystematicBinaryCode):
     def d(self) -> int:
         """Designed distance 2t + 1: the minimum distance is at least this."""
         return 2 * self._t + 1
-
-    @property
-    def mother_n(self) -> int:
-        return self.field.order
-
-    @property
-    def shortened_by(self) -> int:
-        return self.field.order - self._n
 
     @property
     def generator_octal(self) -> str:
@@ -168,66 +161,25 @@ class BCHCode(SystematicBinaryCode):
         dual = [int(c) for c in np.bincount(weights, minlength=n + 1)]
         return WeightDistribution(tuple(macwilliams(dual, n)), "macwilliams")
 
-    # ---- kernel tables ----------------------------------------------------------------------------
-    @cached_property
-    def register_table(self) -> np.ndarray:
+    # ---- row kernels (CyclicCode picks kernels.cyclic or kernels.cyclic_small) ----------------------
+    def _defining_parameters(self) -> tuple:
+        return (self.m, self._t, self._n)
+
+    def _build_register_table(self) -> np.ndarray:
         return binary_register_table(self.generator)
 
     @property
-    def row_bytes(self) -> int:
-        """Bytes of one packed codeword row."""
-        return (self._n + 7) // 8
+    def root_exponents(self) -> range:
+        return range(1, 2 * self._t + 1)
 
-    def encode_rows(self, rows: np.ndarray) -> None:
-        """Fill in the parity bits of packed rows (N x row_bytes) holding messages in
-        their first k bits and zeros after."""
-        kernels = compiled_cyclic(8 * rows.size)
-        (kernels or cyclic_small).bch_encode_rows(rows, self._k, self.r, self.register_table)
+    def _encode_with(self, kernels: ModuleType, rows: np.ndarray) -> None:
+        kernels.bch_encode_rows(rows, self._k, self.r, self.register_table)
 
-    def decode_rows(self, rows: np.ndarray) -> np.ndarray:
-        """Correct packed rows in place; per-row status (0, bits corrected, or FAILED)."""
-        status = np.zeros(rows.shape[0], dtype=np.uint8)
-        if rows.shape[0] == 0:
-            return status
+    def _decode_with(self, kernels: ModuleType, rows: np.ndarray, erasures: np.ndarray | None,
+                     status: np.ndarray) -> None:
         gf = self.field
-        kernels = compiled_cyclic(8 * rows.size)
-        (kernels or cyclic_small).bch_decode_rows(rows, self._n, self.r, self._t, self.register_table,
-                                                  gf.mul_table, gf.inv_table, gf.exp, gf.order, status)
-        return status
-
-    # ---- bit-array API ------------------------------------------------------------------------------
-    def encode(self, messages: object) -> np.ndarray:
-        """Codewords (message bits, then parity bits) for messages (k,) or (N, k)."""
-        m = as_rows(messages, self._k, "messages")
-        rows = np.zeros((m.shape[0], 8 * self.row_bytes), dtype=np.uint8)
-        rows[:, : self._k] = m
-        packed = np.packbits(rows, axis=1)
-        self.encode_rows(packed)
-        out = np.unpackbits(packed, axis=1)[:, : self._n]
-        return out[0] if np.ndim(messages) == 1 else out
-
-    def decode(self, received: object) -> tuple[np.ndarray, np.ndarray]:
-        """(message bits, status) for received words (n,) or (N, n)."""
-        c = as_rows(received, self._n, "received words")
-        padded = np.zeros((c.shape[0], 8 * self.row_bytes), dtype=np.uint8)
-        padded[:, : self._n] = c
-        packed = np.packbits(padded, axis=1)
-        status = self.decode_rows(packed)
-        out = np.unpackbits(packed, axis=1)[:, : self._k]
-        if np.ndim(received) == 1:
-            return out[0], status[:1]
-        return out, status
-
-    def syndromes(self, received: object) -> np.ndarray:
-        """Power-sum syndromes S_j = r(alpha^j), j = 1 .. 2t, as field elements (N, 2t)."""
-        c = as_rows(received, self._n, "received words").astype(np.int64)
-        gf = self.field
-        degrees = np.arange(self._n - 1, -1, -1)
-        out = np.zeros((c.shape[0], 2 * self._t), dtype=np.int64)
-        for j in range(1, 2 * self._t + 1):
-            powers = gf.exp[(degrees * j) % gf.order]
-            out[:, j - 1] = np.bitwise_xor.reduce(c * powers, axis=1)
-        return out
+        kernels.bch_decode_rows(rows, self._n, self.r, self._t, self.register_table, gf.mul_table, gf.inv_table,
+                                gf.exp, gf.order, status)
 
     def __repr__(self) -> str:
         return f"<BCHCode {self.name} m={self.m} t={self._t}>"

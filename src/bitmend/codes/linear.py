@@ -18,9 +18,10 @@ from itertools import combinations
 import numpy as np
 
 from bitmend.analysis.weights import WeightDistribution, weight_distribution
-from bitmend.codes.base import SystematicBinaryCode, as_rows
+from bitmend.codes.base import SystematicBinaryCode
 from bitmend.errors import CodeError
 from bitmend.kernels.gf2 import as_bit_matrix, row_reduce
+from bitmend.kernels.loader import compiled
 from bitmend.kernels.status import FAILED
 
 MAX_MESSAGE_BITS = 64  # k: a message is one uint64 in the kernels
@@ -37,12 +38,14 @@ def _bits_to_int(bits: np.ndarray) -> int:
 
 
 class BinaryLinearCode(SystematicBinaryCode):
-    """An (n, k) binary linear block code in systematic form.
+    """An (n, k) binary linear block code in systematic form: the generic engine.
 
     Build with from_generator(G) or from_parity_check(H). If the information set is not
     the first k positions, the columns are permuted so that it is (an equivalent code
     with the same n, k, d and weight distribution); `column_order` records the order.
     """
+
+    family = "linear"
 
     def __init__(self, name: str, parity_part: np.ndarray, column_order: tuple[int, ...] | None = None,
                  description: str = "") -> None:
@@ -60,7 +63,7 @@ class BinaryLinearCode(SystematicBinaryCode):
 
     # ---- construction -------------------------------------------------------------
     @classmethod
-    def from_generator(cls, generator: object, name: str = "custom", description: str = "") -> "BinaryLinearCode":
+    def from_generator(cls, generator: object, name: str = "custom", description: str = "") -> BinaryLinearCode:
         """Code spanned by the rows of G (k x n, full row rank)."""
         G = as_bit_matrix(generator)
         k, n = G.shape
@@ -74,7 +77,7 @@ class BinaryLinearCode(SystematicBinaryCode):
         return cls(name, systematic[:, k:], None if order == tuple(range(n)) else order, description)
 
     @classmethod
-    def from_parity_check(cls, parity_check: object, name: str = "custom", description: str = "") -> "BinaryLinearCode":
+    def from_parity_check(cls, parity_check: object, name: str = "custom", description: str = "") -> BinaryLinearCode:
         """Null space of H (r x n, full row rank), with the parity positions made last."""
         H = as_bit_matrix(parity_check)
         r, n = H.shape
@@ -173,49 +176,66 @@ class BinaryLinearCode(SystematicBinaryCode):
         status = self.correct(messages, parity)
         return messages | (status.astype(np.uint64) << np.uint64(56))
 
+    # ---- identity and engine --------------------------------------------------------------------
+    def _defining_parameters(self) -> tuple:
+        return (self._k, self.r, self._P.tobytes(), self._column_order)
+
+    @property
+    def generic_engine(self) -> BinaryLinearCode:
+        """This code: the stream path runs it through the fused table kernels."""
+        return self
+
     # ---- integer-form coding (used by the stream path) -----------------------------------
     def parity_of(self, messages: np.ndarray) -> np.ndarray:
-        """p = m P for a uint64 array of k-bit messages."""
-        from bitmend.kernels import blockcode  # compiled kernels load on first use
-
-        return blockcode.parities(np.ascontiguousarray(messages, dtype=np.uint64), self.parity_table)
+        """p = m P for a uint64 array of k-bit messages (message bit 0 most significant)."""
+        messages = np.ascontiguousarray(messages, dtype=np.uint64)
+        kernels = compiled(len(messages) * self._n)
+        if kernels is not None:
+            return kernels[1].parities(messages, self.parity_table)
+        table = self.parity_table  # small work: the same table lookups in numpy
+        parity = np.zeros(len(messages), dtype=np.uint64)
+        for chunk in range(table.shape[0]):
+            parity ^= table[chunk, ((messages >> np.uint64(8 * chunk)) & np.uint64(0xFF)).astype(np.intp)]
+        return parity
 
     def correct(self, messages: np.ndarray, parity: np.ndarray) -> np.ndarray:
-        """Correct received (messages, parity) in place; return per-block status
-        (0 clean, w bits corrected, FAILED uncorrectable)."""
+        """Correct received (messages, parity) uint64 arrays in place; per-block uint8 status
+        (0 clean, w bits corrected, FAILED uncorrectable and left as received)."""
         lead_m, lead_p, weight = self.leader_tables
-        from bitmend.kernels import blockcode
+        kernels = compiled(len(messages) * self._n)
+        if kernels is not None:
+            return kernels[1].syndrome_correct(messages, parity, self.parity_table, lead_m, lead_p, weight)
+        syndrome = (parity ^ self.parity_of(messages)).astype(np.intp)
+        messages ^= lead_m[syndrome]  # leaders are zero where no leader of weight <= t exists
+        parity ^= lead_p[syndrome]
+        return weight[syndrome]
 
-        return blockcode.syndrome_correct(messages, parity, self.parity_table, lead_m, lead_p, weight)
+    # ---- row kernels: packed bit rows, message then parity ---------------------------------------
+    def _split(self, rows: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(bits, messages, parity) of packed rows: bits (N, 8 row_bytes) and the two
+        fields as uint64 integers."""
+        bits = np.unpackbits(rows, axis=1)
+        return bits, _rows_to_ints(bits[:, : self._k]), _rows_to_ints(bits[:, self._k: self._n])
 
-    # ---- bit-array API: a single vector or an (N, n) matrix --------------------------------
-    def encode(self, messages: object) -> np.ndarray:
-        """c = m G for m of shape (k,) or (N, k); returns 0/1 uint8 of shape (n,) or (N, n)."""
-        m = as_rows(messages, self._k, "messages")
-        ints = _rows_to_ints(m)
-        parity = self.parity_of(ints)
-        out = np.hstack([m, _ints_to_rows(parity, self.r)])
-        return out[0] if np.ndim(messages) == 1 else out
+    def _join(self, rows: np.ndarray, bits: np.ndarray, messages: np.ndarray, parity: np.ndarray) -> None:
+        bits[:, : self._k] = _ints_to_rows(messages, self._k)
+        bits[:, self._k: self._n] = _ints_to_rows(parity, self.r)
+        rows[:] = np.packbits(bits, axis=1)
 
-    def decode(self, received: object) -> tuple[np.ndarray, np.ndarray]:
-        """Bounded-distance decode of (n,) or (N, n) words: (messages, status) with status
-        0 clean, w corrected bits, FAILED (255) for a detected uncorrectable block."""
-        c = as_rows(received, self._n, "received words")
-        msgs = _rows_to_ints(c[:, : self._k])
-        pars = _rows_to_ints(c[:, self._k:])
-        status = self.correct(msgs, pars)
-        out = _ints_to_rows(msgs, self._k)
-        if np.ndim(received) == 1:
-            return out[0], status[:1]
-        return out, status
+    def _encode_rows(self, rows: np.ndarray) -> None:
+        bits, messages, _ = self._split(rows)
+        self._join(rows, bits, messages, self.parity_of(messages))
 
-    def syndromes(self, received: object) -> np.ndarray:
-        """s = c H^T as r-bit integers, for (n,) or (N, n) words."""
-        c = as_rows(received, self._n, "received words")
-        return _rows_to_ints(c[:, self._k:]) ^ self.parity_of(_rows_to_ints(c[:, : self._k]))
+    def _decode_rows(self, rows: np.ndarray, erasures: np.ndarray | None) -> np.ndarray:
+        bits, messages, parity = self._split(rows)
+        status = self.correct(messages, parity)
+        self._join(rows, bits, messages, parity)
+        return status
 
-    def __repr__(self) -> str:
-        return f"<{type(self).__name__} {self.name} n={self.n} k={self.k}>"
+    def _syndrome_rows(self, rows: np.ndarray) -> np.ndarray:
+        """s = c H^T = p XOR m P, as (N, r) bits."""
+        _, messages, parity = self._split(rows)
+        return _ints_to_rows(parity ^ self.parity_of(messages), self.r)
 
 
 def _rows_to_ints(rows: np.ndarray) -> np.ndarray:

@@ -22,15 +22,14 @@ from __future__ import annotations
 
 from functools import cached_property
 from math import comb
+from types import ModuleType
 
 import numpy as np
 
 from bitmend.analysis.weights import WeightDistribution
-from bitmend.codes.base import BlockCode, as_rows
+from bitmend.codes.cyclic import CyclicCode
 from bitmend.errors import CodeError
-from bitmend.kernels import cyclic_small
 from bitmend.kernels.gf2m import GF2m, field, rs_generator, symbol_register_table
-from bitmend.kernels.loader import compiled_cyclic
 
 RS_FIELD_POLYNOMIAL = 0x11D
 RS_FIRST_ROOT = 1
@@ -51,15 +50,16 @@ def mds_weight_distribution(n: int, k: int, q: int) -> tuple[int, ...]:
     return tuple(counts)
 
 
-class ReedSolomonCode(BlockCode):
+class ReedSolomonCode(CyclicCode):
     """rs-n-k over GF(2^8). `encode` takes message symbols (k,) or (N, k) (integers
     0..255); `decode` takes received symbols (n,) or (N, n) and optional erasure marks of
     the same shape, and returns (messages, status) with status 0 clean, s symbols
-    corrected, FAILED (255) uncorrectable."""
+    corrected, FAILED uncorrectable."""
 
     family = "rs"
     symbol_bits = 8  # errors are counted in 8-bit symbols
     distance_kind = "exact"  # MDS: d = n - k + 1
+    supports_erasures = True
 
     def __init__(self, n: int, k: int, description: str = "") -> None:
         if not 2 <= n <= 255:
@@ -80,10 +80,6 @@ class ReedSolomonCode(BlockCode):
         """Minimum distance in symbols, n - k + 1 (MDS)."""
         return self.r + 1
 
-    @property
-    def shortened_by(self) -> int:
-        return 255 - self._n
-
     # ---- weight distribution ------------------------------------------------------------------------
     @cached_property
     def weight_distribution(self) -> WeightDistribution:
@@ -94,82 +90,26 @@ class ReedSolomonCode(BlockCode):
     def minimum_distance(self) -> int:
         return self.d
 
-    # ---- matrices over GF(2^8) ------------------------------------------------------------------
-    @property
-    def G(self) -> np.ndarray:
-        """Systematic generator (k x n, symbols): row i is the codeword of the i-th unit message."""
-        return self.encode(np.eye(self._k, dtype=np.uint8))
+    # ---- row kernels (CyclicCode picks kernels.cyclic or kernels.cyclic_small) ----------------------
+    def _defining_parameters(self) -> tuple:
+        return (self._n, self._k, self.field.polynomial, self.first_root)
 
-    @property
-    def H(self) -> np.ndarray:
-        """Systematic parity-check matrix [P^T | I_r] (r x n, symbols); G H^T = 0 over GF(2^8)
-        (in characteristic 2, -P^T = P^T)."""
-        P = self.G[:, self._k:]
-        return np.hstack([P.T, np.eye(self.r, dtype=np.uint8)])
-
-    # ---- kernel tables ----------------------------------------------------------------------------
-    @cached_property
-    def register_table(self) -> np.ndarray:
+    def _build_register_table(self) -> np.ndarray:
         return symbol_register_table(self.field, self.generator_poly)
 
     @property
-    def row_bytes(self) -> int:
-        return self._n
+    def root_exponents(self) -> range:
+        return range(self.first_root, self.first_root + self.r)
 
-    def encode_rows(self, messages: np.ndarray) -> np.ndarray:
-        """Codeword rows (N x n) for message rows (N x k), uint8."""
-        messages = np.ascontiguousarray(messages, dtype=np.uint8)
-        rows = np.empty((messages.shape[0], self._n), dtype=np.uint8)
-        kernels = compiled_cyclic(8 * rows.size)
-        (kernels or cyclic_small).rs_encode_rows(messages, self.r, self.register_table, rows)
-        return rows
+    def _encode_with(self, kernels: ModuleType, rows: np.ndarray) -> None:
+        kernels.rs_encode_rows(rows, self._k, self.r, self.register_table)
 
-    def decode_rows(self, rows: np.ndarray, erasures: np.ndarray | None = None) -> np.ndarray:
-        """Correct rows (N x n, uint8) in place; per-row status (0, symbols corrected, FAILED).
-        erasures: optional (N x n) marks of symbols known to be unreliable."""
-        status = np.zeros(rows.shape[0], dtype=np.uint8)
-        if rows.shape[0] == 0:
-            return status
-        marks = np.zeros((0, self._n), dtype=np.uint8) if erasures is None else \
-            np.ascontiguousarray(erasures, dtype=np.uint8)
+    def _decode_with(self, kernels: ModuleType, rows: np.ndarray, erasures: np.ndarray | None,
+                     status: np.ndarray) -> None:
+        marks = np.zeros((0, self._n), dtype=np.uint8) if erasures is None else erasures
         gf = self.field
-        kernels = compiled_cyclic(8 * rows.size)
-        (kernels or cyclic_small).rs_decode_rows(rows, self.r, self.first_root, self.register_table, gf.mul_table,
-                                                 gf.inv_table, gf.exp, gf.order, marks, status)
-        return status
-
-    # ---- symbol-array API -------------------------------------------------------------------------
-    def encode(self, messages: object) -> np.ndarray:
-        m = as_rows(messages, self._k, "messages", symbol_bits=8)
-        out = self.encode_rows(m)
-        return out[0] if np.ndim(messages) == 1 else out
-
-    def decode(self, received: object, erasures: object = None) -> tuple[np.ndarray, np.ndarray]:
-        """(message symbols, status). erasures: 0/1 or bool of the received shape, or None."""
-        c = as_rows(received, self._n, "received words", symbol_bits=8).copy()
-        marks = None
-        if erasures is not None:
-            marks = np.atleast_2d(np.asarray(erasures)).astype(np.uint8)
-            if marks.shape != c.shape:
-                raise ValueError(f"erasures must have the shape of the received words {c.shape}, got {marks.shape}")
-        status = self.decode_rows(c, marks)
-        out = c[:, : self._k]
-        if np.ndim(received) == 1:
-            return out[0], status[:1]
-        return out, status
-
-    def syndromes(self, received: object) -> np.ndarray:
-        """S_j = r(alpha^j), j = c .. c + n - k - 1, as field elements (N, n - k)."""
-        c = as_rows(received, self._n, "received words", symbol_bits=8)
-        gf = self.field
-        out = np.zeros((c.shape[0], self.r), dtype=np.int64)
-        for idx in range(self.r):
-            x = gf.alpha(self.first_root + idx)
-            acc = np.zeros(c.shape[0], dtype=np.int64)
-            for j in range(self._n):
-                acc = gf.mul_table[acc, x].astype(np.int64) ^ c[:, j]
-            out[:, idx] = acc
-        return out
+        kernels.rs_decode_rows(rows, self.r, self.first_root, self.register_table, gf.mul_table, gf.inv_table, gf.exp,
+                               gf.order, marks, status)
 
     def __repr__(self) -> str:
         return f"<ReedSolomonCode {self.name} t={self.t}>"

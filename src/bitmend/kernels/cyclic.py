@@ -111,17 +111,15 @@ def bch_encode_rows(rows, k, r, table):
 
 
 @njit(cache=True)
-def rs_encode_rows(messages, r, table, rows):
-    """rows[b] = messages[b] followed by their r parity symbols."""
-    count, k = messages.shape
+def rs_encode_rows(rows, k, r, table):
+    """Fill in the r parity symbols (symbols k .. k+r-1) of rows whose first k symbols
+    hold the messages."""
     reg = np.zeros(table.shape[1], dtype=np.uint64)
-    for b in range(count):
-        message = messages[b]
-        _register(message, 8 * k, table, reg)
-        for j in range(k):
-            rows[b, j] = message[j]
+    for b in range(rows.shape[0]):
+        row = rows[b]
+        _register(row, 8 * k, table, reg)
         for p in range(r):
-            rows[b, k + p] = np.uint8((reg[p >> 3] >> U64(56 - 8 * (p & 7))) & U64(0xFF))
+            row[k + p] = np.uint8((reg[p >> 3] >> U64(56 - 8 * (p & 7))) & U64(0xFF))
 
 
 # ---- algebra shared by both decoders -------------------------------------------------------------

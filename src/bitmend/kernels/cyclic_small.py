@@ -51,11 +51,9 @@ def bch_encode_rows(rows: np.ndarray, k: int, r: int, table: np.ndarray) -> None
     rows[:] = np.packbits(bits, axis=1)
 
 
-def rs_encode_rows(messages: np.ndarray, r: int, table: np.ndarray, rows: np.ndarray) -> None:
-    k = messages.shape[1]
-    reg = registers(messages, 8 * k, table)
-    rows[:, :k] = messages
-    rows[:, k:] = _register_bytes(reg)[:, :r]
+def rs_encode_rows(rows: np.ndarray, k: int, r: int, table: np.ndarray) -> None:
+    reg = registers(rows, 8 * k, table)
+    rows[:, k:k + r] = _register_bytes(reg)[:, :r]
 
 
 # ---- algebra (one row at a time, plain Python integers) -------------------------------------------
