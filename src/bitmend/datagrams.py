@@ -150,3 +150,43 @@ class DatagramSender:
 
     def __exit__(self, *exc) -> None:
         self.close()
+
+
+def check_fits_datagram(code, depth: int, frame_bytes: int) -> None:
+    """EndpointError unless a full frame of this code, depth and payload size fits one
+    datagram (each frame sent to udp: is one datagram, never cut)."""
+    from bitmend.container import format as fmt
+    from bitmend.container.writer import resolve_code
+
+    code_id, defined = resolve_code(code)
+    header = (fmt.FrameHeader.for_defined_code(defined, depth, 0, frame_bytes) if defined is not None
+              else fmt.FrameHeader(code_id, depth, 0, frame_bytes))
+    if header.frame_bytes > MAX_DATAGRAM:
+        raise EndpointError(f"a full frame ({header.frame_bytes} bytes with --frame-bytes {frame_bytes}) does not "
+                            f"fit one datagram ({MAX_DATAGRAM} bytes): lower --frame-bytes")
+
+
+def pump_datagrams(receiver: DatagramReceiver, encoder, frame_bytes: int, max_delay: float | None) -> int:
+    """Send each datagram received as one record (one frame) through encoder, at once; a
+    repair group still open max_delay seconds after its first frame is closed (None: only
+    when full). Datagrams longer than frame_bytes are not sent: one oversized datagram must
+    not end a live link. Returns how many were refused. The receiver must tick (yield None
+    at every poll) so that the deadline is seen on a quiet link."""
+    import time
+
+    refused = 0
+    group_since: float | None = None
+    for datagram in receiver:
+        if datagram is not None:
+            if len(datagram) > frame_bytes:
+                refused += 1
+                continue
+            encoder.send_record(datagram)
+        if not encoder.group_open:
+            group_since = None
+        elif group_since is None:
+            group_since = time.monotonic()
+        elif max_delay is not None and time.monotonic() - group_since >= max_delay:
+            encoder.end_group()
+            group_since = None
+    return refused
