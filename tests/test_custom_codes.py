@@ -21,6 +21,9 @@ from bitmend.report import CLEAN
 from conftest import flip_run, random_bytes, run_cli
 
 CATALOG_H74 = get_code("hamming-7-4").H
+# the same Hamming (7, 4) code with its first two message columns swapped: an equivalent code
+# that is not the catalog's (a different P), so it travels in the frames as a defined code
+GAUGE_H74 = CATALOG_H74[:, [1, 0, 2, 3, 4, 5, 6]]
 
 
 def _rows(matrix) -> str:
@@ -38,6 +41,13 @@ def h74_file(tmp_path):
     """The catalog hamming-7-4 parity-check matrix, as a user would write it down."""
     return _write(tmp_path, "gauge-h74.txt", "# uplink of the Cinder Bend gauge\nparity-check\n"
                   + _rows(CATALOG_H74) + "   # last row\n")
+
+
+@pytest.fixture
+def gauge_file(tmp_path):
+    """A Hamming (7, 4) code outside the catalog (GAUGE_H74), as a user would write it down."""
+    return _write(tmp_path, "gauge-h74-swapped.txt", "# uplink of the Cinder Bend gauge\nparity-check\n"
+                  + _rows(GAUGE_H74) + "   # last row\n")
 
 
 def _spans(container: bytes) -> list[tuple[int, fmt.FrameHeader]]:
@@ -162,8 +172,8 @@ def test_catalog_name_and_code_file_together_are_refused(h74_file):
 
 # ---- the definition inside the container ------------------------------------------------------------
 
-def test_container_with_a_custom_code_decodes_with_no_extra_file(h74_file, gauge_log):
-    code = bitmend.load_code_file(h74_file)
+def test_container_with_a_custom_code_decodes_with_no_extra_file(gauge_file, gauge_log):
+    code = bitmend.load_code_file(gauge_file)
     blob = bitmend.encode_bytes(gauge_log, code=code, depth=6, frame_bytes=700)
     spans = _spans(blob)
     assert len(spans) > 3 and all(h.code_id == fmt.CUSTOM_CODE_ID and h.shape == (4, 3) for _, h in spans)
@@ -171,8 +181,8 @@ def test_container_with_a_custom_code_decodes_with_no_extra_file(h74_file, gauge
     assert result.data == gauge_log and result.report.complete
 
 
-def test_custom_container_survives_a_burst_on_one_frames_header_and_definition(h74_file, gauge_log):
-    code = bitmend.load_code_file(h74_file)
+def test_custom_container_survives_a_burst_on_one_frames_header_and_definition(gauge_file, gauge_log):
+    code = bitmend.load_code_file(gauge_file)
     blob = bytearray(bitmend.encode_bytes(gauge_log, code=code, depth=6, frame_bytes=700))
     offset, header = _spans(bytes(blob))[2]
     # marker, header and the leading definition block all wiped: the copies carry the frame
@@ -183,8 +193,8 @@ def test_custom_container_survives_a_burst_on_one_frames_header_and_definition(h
     assert all(f.status == CLEAN for f in result.report.frames)
 
 
-def test_custom_container_survives_a_burst_on_the_leading_header_alone_through_the_cli(h74_file, gauge_log):
-    encoded = run_cli("encode", "--code-file", str(h74_file), "--depth", "4", "--frame-bytes", "512",
+def test_custom_container_survives_a_burst_on_the_leading_header_alone_through_the_cli(gauge_file, gauge_log):
+    encoded = run_cli("encode", "--code-file", str(gauge_file), "--depth", "4", "--frame-bytes", "512",
                       stdin=gauge_log)
     assert encoded.code == 0, encoded.err
     blob = bytearray(encoded.out)
@@ -195,8 +205,8 @@ def test_custom_container_survives_a_burst_on_the_leading_header_alone_through_t
     assert decoded.out == gauge_log
 
 
-def test_frame_whose_two_definition_blocks_are_hit_is_read_unchecked_and_noted(h74_file):
-    code = bitmend.load_code_file(h74_file)
+def test_frame_whose_two_definition_blocks_are_hit_is_read_unchecked_and_noted(gauge_file):
+    code = bitmend.load_code_file(gauge_file)
     data = random_bytes(900, 8)
     blob = bytearray(bitmend.encode_bytes(data, code=code, depth=3, frame_bytes=300))
     offset, header = _spans(bytes(blob))[1]
@@ -214,7 +224,7 @@ def test_frame_whose_two_definition_blocks_are_hit_is_read_unchecked_and_noted(h
 
 
 def test_custom_frames_record_k_and_n_minus_k_in_the_length_field():
-    code = parse_code_definition("parity-check\n" + _rows(CATALOG_H74))
+    code = parse_code_definition("parity-check\n" + _rows(GAUGE_H74))
     header = fmt.FrameHeader.for_defined_code(code, 9, 5, 1000, last=True)
     record = header.record()
     assert record[:4] == bytes([2, 1, 0, 9])
@@ -228,9 +238,9 @@ def test_custom_frames_record_k_and_n_minus_k_in_the_length_field():
 
 
 @pytest.mark.parametrize("version, size", [(2, 60), (1, 33)])
-def test_definition_block_survives_any_burst_the_header_survives(h74_file, version, size):
+def test_definition_block_survives_any_burst_the_header_survives(gauge_file, version, size):
     # version 2: 20 golay-24-12 codewords, as the header (60-bit bursts); version 1: 11 (33 bits)
-    code = bitmend.load_code_file(h74_file)
+    code = bitmend.load_code_file(gauge_file)
     block = fmt.encode_definition(code, version)
     assert len(block) == fmt.definition_coded_bytes(4, 3, version) == size
     for start in range(0, 8 * len(block) - size, 17):
@@ -284,8 +294,8 @@ def test_version_1_worked_examples_still_decode_to_their_payloads():
         assert result.report.frames[0].stream is None  # version 1 frames name no stream
 
 
-def test_open_writes_and_reads_a_custom_code_stream(h74_file, tmp_path, gauge_log):
-    code = bitmend.load_code_file(h74_file)
+def test_open_writes_and_reads_a_custom_code_stream(gauge_file, tmp_path, gauge_log):
+    code = bitmend.load_code_file(gauge_file)
     target = tmp_path / "gauges.bmd"
     with bitmend.open(target, "wb", code=code, depth=8, frame_bytes=1000) as f:
         f.write(gauge_log[:2500])
@@ -296,8 +306,8 @@ def test_open_writes_and_reads_a_custom_code_stream(h74_file, tmp_path, gauge_lo
         assert f.report.complete
 
 
-def test_truncated_custom_stream_delivers_the_whole_frames(h74_file):
-    code = bitmend.load_code_file(h74_file)
+def test_truncated_custom_stream_delivers_the_whole_frames(gauge_file):
+    code = bitmend.load_code_file(gauge_file)
     data = random_bytes(1000, 12)
     blob = bitmend.encode_bytes(data, code=code, depth=2, frame_bytes=250)
     spans = _spans(blob)
@@ -314,24 +324,24 @@ def test_custom_code_whose_frames_would_exceed_the_reader_limit_is_refused():
     assert bitmend.decode_bytes(bitmend.encode_bytes(b"x" * 100, code=rep9, depth=3)).data == b"x" * 100
 
 
-def test_inspect_names_a_custom_code_by_its_shape(h74_file):
-    blob = bitmend.encode_bytes(b"stage 1.9 m\n" * 40, code=bitmend.load_code_file(h74_file), depth=2)
+def test_inspect_names_a_custom_code_by_its_shape(gauge_file):
+    blob = bitmend.encode_bytes(b"stage 1.9 m\n" * 40, code=bitmend.load_code_file(gauge_file), depth=2)
     run = run_cli("inspect", "--json", stdin=blob)
     assert run.code == 0, run.err
     frames = [json.loads(line) for line in run.out.decode().splitlines()][:-1]
     assert [f["code"] for f in frames] == ["custom-7-4"]
 
 
-def test_simulate_accepts_a_code_file(h74_file):
-    run = run_cli("simulate", "--code-file", str(h74_file), "--channel", "bsc:p=1e-2", "--bits", "20000",
+def test_simulate_accepts_a_code_file(gauge_file):
+    run = run_cli("simulate", "--code-file", str(gauge_file), "--channel", "bsc:p=1e-2", "--bits", "20000",
                   "--depth", "1", "--seed", "3", "--json")
     assert run.code == 0, run.err
     result = json.loads(run.out)
     assert (result["n"], result["k"], result["t"]) == (7, 4, 1)
 
 
-def test_encoder_accepts_a_code_object_through_the_stream_api(h74_file):
+def test_encoder_accepts_a_code_object_through_the_stream_api(gauge_file):
     sink = io.BytesIO()
-    with bitmend.Encoder(sink, bitmend.load_code_file(h74_file), 3, 64) as enc:
+    with bitmend.Encoder(sink, bitmend.load_code_file(gauge_file), 3, 64) as enc:
         enc.write(b"Brackwater Weir 0.82 m\n" * 10)
     assert bitmend.decode_bytes(sink.getvalue()).data == b"Brackwater Weir 0.82 m\n" * 10

@@ -6,6 +6,10 @@ with new ids. Id 0 is reserved for codes defined inside the stream.
 Ids 1-11 are binary linear codes of the generic engine (codes.linear); 12-21 binary BCH
 codes (codes.bch), 22-26 Reed-Solomon codes over GF(2^8) (codes.reed_solomon), whose
 symbols are bytes.
+
+Any code object stands for its catalog entry when it equals a catalog code (same family
+and defining parameters: `catalog_id`); a binary code outside the catalog travels in the
+frames in its generic-engine form (`definable_form`), and any other gets one CodeError.
 """
 
 from __future__ import annotations
@@ -15,8 +19,9 @@ from functools import lru_cache
 from typing import Callable
 
 from bitmend.codes import families
+from bitmend.codes.base import BlockCode
 from bitmend.codes.bch import BCHCode
-from bitmend.codes.linear import BinaryLinearCode
+from bitmend.codes.linear import MAX_MESSAGE_BITS, MAX_PARITY_BITS, BinaryLinearCode
 from bitmend.codes.reed_solomon import ReedSolomonCode
 from bitmend.errors import CodeError
 
@@ -29,7 +34,7 @@ MAX_DEPTH = 255
 class CatalogEntry:
     name: str
     code_id: int
-    build: Callable[[], BinaryLinearCode]
+    build: Callable[[], BlockCode]
     use: str  # one line: what the code is good for
 
 
@@ -80,7 +85,7 @@ def code_names() -> list[str]:
 
 
 @lru_cache(maxsize=None)
-def get_code(name: str) -> BinaryLinearCode:
+def get_code(name: str) -> BlockCode:
     """The catalog code called name (built once, then cached)."""
     entry = _BY_NAME.get(name)
     if entry is None:
@@ -94,7 +99,7 @@ def code_id(name: str) -> int:
     return _BY_NAME[name].code_id
 
 
-def code_by_id(identifier: int) -> BinaryLinearCode:
+def code_by_id(identifier: int) -> BlockCode:
     entry = _BY_ID.get(identifier)
     if entry is None:
         raise UnknownCodeError(f"unknown code id {identifier}")
@@ -105,3 +110,29 @@ def entry(name: str) -> CatalogEntry:
     if name not in _BY_NAME:
         raise UnknownCodeError(f"unknown code {name!r}; known codes: {', '.join(code_names())}")
     return _BY_NAME[name]
+
+
+def catalog_id(code: BlockCode) -> int | None:
+    """The id of the catalog code equal to code (same family and defining parameters, the
+    name aside), or None when the catalog has no such code."""
+    for e in CATALOG:
+        candidate = get_code(e.name)
+        if candidate.n == code.n and candidate.k == code.k and candidate == code:
+            return e.code_id
+    return None
+
+
+def definable_form(code: BlockCode) -> BinaryLinearCode:
+    """The generic-engine code that carries `code` inside a stream's frames (code id 0):
+    the code itself for the generic engine, else its systematic form [I_k | P] when it is
+    binary with k <= MAX_MESSAGE_BITS and n - k <= MAX_PARITY_BITS (the same codewords).
+    CodeError, naming the catalog codes of its family, for a code that cannot travel."""
+    engine = code.generic_engine
+    if engine is not None:
+        return engine
+    if code.symbol_bits == 1 and code.k <= MAX_MESSAGE_BITS and code.r <= MAX_PARITY_BITS:
+        return BinaryLinearCode.from_generator(code.G, name=code.name, description=code.description)
+    kin = [e.name for e in CATALOG if get_code(e.name).family == code.family] or code_names()
+    raise CodeError(f"{code.name} is not in the catalog and cannot travel in the frames (only binary codes with "
+                    f"k <= {MAX_MESSAGE_BITS} and n - k <= {MAX_PARITY_BITS} can); use a catalog code: "
+                    + ", ".join(kin))

@@ -33,6 +33,7 @@ from typing import NamedTuple
 import crcmod.predefined
 import numpy as np
 
+from bitmend.codes.base import FAILED, BlockCode
 from bitmend.codes.catalog import MAX_DEPTH, code_by_id, get_code
 from bitmend.codes.linear import MAX_MESSAGE_BITS, MAX_PARITY_BITS, BinaryLinearCode, CodeDefinitionError
 from bitmend.errors import ContainerError, SettingError
@@ -172,7 +173,7 @@ class FrameHeader:  # noqa: PLW1641 (cached_property needs __dict__; frozen stil
         return self.version >= 2
 
     @property
-    def code(self) -> BinaryLinearCode:
+    def code(self) -> BlockCode:
         if self.code_id == CUSTOM_CODE_ID:
             if self.defined_code is None:
                 raise HeaderError("the frame's code is defined in its definition block, which has not been read")
@@ -243,7 +244,7 @@ class FrameHeader:  # noqa: PLW1641 (cached_property needs __dict__; frozen stil
 
 
 @lru_cache(maxsize=1)
-def header_code() -> BinaryLinearCode:
+def header_code() -> BlockCode:
     return get_code(HEADER_CODE)
 
 
@@ -258,7 +259,7 @@ def _checked_record(coded: bytes, layout_: HeaderLayout) -> bytes | None:
     """The record in a coded header of this layout, or None if a Golay codeword is
     uncorrectable or the record's CRC-32C fails."""
     record, status = decode_segment(header_code(), layout_.depth, coded[: layout_.coded_bytes], layout_.record_bytes)
-    if (status == 255).any():
+    if (status == FAILED).any():
         return None
     body, check = record[:-CRC_BYTES], struct.unpack(">I", record[-CRC_BYTES:])[0]
     return bytes(body) if crc32c(body) == check else None
@@ -359,7 +360,7 @@ def decode_definition(coded: bytes, shape: tuple[int, int], version: int = FORMA
     k, r = shape
     size = definition_message_bytes(k, r)
     message, status = decode_segment(header_code(), definition_depth(k, r, version), coded, size)
-    if (status == 255).any():
+    if (status == FAILED).any():
         return None
     body, check = message[:-CRC_BYTES], struct.unpack(">I", message[-CRC_BYTES:])[0]
     if crc32c(body) != check:

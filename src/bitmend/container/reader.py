@@ -22,6 +22,7 @@ from bitmend.container import format as fmt
 from bitmend.interleave import decode_segment, decode_truncated
 from bitmend.kernels import small
 from bitmend.kernels.loader import compiled
+from bitmend.kernels.status import FAILED
 
 READ_CHUNK = 1 << 20
 MAX_LISTED_FAILED = 4096  # failed block indexes listed per frame report
@@ -41,7 +42,7 @@ class DecodedFrame:
     offset: int  # byte offset of the frame's marker in the input (rounded down for bit slips)
     bit_offset: int  # exact bit offset
     payload: bytes
-    block_status: np.ndarray  # per block: 0 clean, w corrected, 255 uncorrectable
+    block_status: np.ndarray  # per block: 0 clean, w corrected, FAILED uncorrectable
     crc_ok: bool
     truncated: bool = False  # the input ended inside the frame
     header_from_copy: bool = False  # the leading header was hit; the copy was used
@@ -50,20 +51,20 @@ class DecodedFrame:
 
     @cached_property
     def corrected_blocks(self) -> int:
-        return int(np.count_nonzero((self.block_status > 0) & (self.block_status < 255)))
+        return int(np.count_nonzero((self.block_status > 0) & (self.block_status != FAILED)))
 
     @cached_property
     def corrected_symbols(self) -> int:
         s = self.block_status
         if not s.any():
             return 0
-        return int(s[s < 255].sum(dtype=np.int64))
+        return int(s[s != FAILED].sum(dtype=np.int64))
 
     @cached_property
     def failed_count(self) -> int:
         if not self.block_status.any():
             return 0
-        return int(np.count_nonzero(self.block_status == 255))
+        return int(np.count_nonzero(self.block_status == FAILED))
 
     @cached_property
     def failed_blocks(self) -> list[int]:
@@ -71,7 +72,7 @@ class DecodedFrame:
         line stays small however badly a frame is hit; failed_count has the total)."""
         if not self.failed_count:
             return []
-        return [int(i) for i in np.nonzero(self.block_status == 255)[0][:MAX_LISTED_FAILED]]
+        return [int(i) for i in np.nonzero(self.block_status == FAILED)[0][:MAX_LISTED_FAILED]]
 
 
 @dataclass
@@ -277,7 +278,7 @@ class FrameScanner:
                                                available_bits, header.length)
             crc_ok = False
         if not checked:  # no block could be checked; only the CRC speaks for the data
-            status = np.full(len(status), 255, dtype=np.uint8)
+            status = np.full(len(status), FAILED, dtype=np.uint8)
         return DecodedFrame(header, bit >> 3, bit, payload, status, crc_ok, not complete, from_copy,
                             marker_distance, authentic)
 

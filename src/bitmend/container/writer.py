@@ -6,22 +6,27 @@ import secrets
 from dataclasses import replace
 from typing import BinaryIO
 
-from bitmend.codes.catalog import MAX_DEPTH, code_id, code_names, get_code
+from bitmend.codes.base import BlockCode
+from bitmend.codes.catalog import catalog_id, code_id, definable_form
 from bitmend.codes.linear import BinaryLinearCode
 from bitmend.container import format as fmt
 from bitmend.container.repair import SYMBOL_OVERHEAD, GroupBuilder, parse_repair
+from bitmend.errors import SettingError
 
 
-def resolve_code(code: str | BinaryLinearCode) -> tuple[int, BinaryLinearCode | None]:
-    """(catalog id, None) for a catalog name or the catalog's own code object; else
-    (CUSTOM_CODE_ID, code): a code that travels in the frames' definition blocks."""
+def resolve_code(code: str | BlockCode) -> tuple[int, BinaryLinearCode | None]:
+    """(catalog id, None) for a catalog name or a code equal to a catalog code; else
+    (CUSTOM_CODE_ID, the code's generic-engine form), which travels in the frames'
+    definition blocks. UnknownCodeError for an unknown name, CodeError for a code that
+    cannot travel (catalog.definable_form)."""
     if isinstance(code, str):
         return code_id(code), None
-    if getattr(code, "name", None) in code_names() and get_code(code.name) is code:
-        return code_id(code.name), None
-    if not isinstance(code, BinaryLinearCode):
-        raise TypeError(f"a code is a catalog name or a BinaryLinearCode, got {type(code).__name__}")
-    return fmt.CUSTOM_CODE_ID, code
+    if not isinstance(code, BlockCode):
+        raise TypeError(f"a code is a catalog name or a code object (BlockCode), got {type(code).__name__}")
+    identifier = catalog_id(code)
+    if identifier is not None:
+        return identifier, None
+    return fmt.CUSTOM_CODE_ID, definable_form(code)
 
 
 class FrameWriter:
@@ -37,23 +42,21 @@ class FrameWriter:
     frame carried.
     """
 
-    def __init__(self, sink: BinaryIO, code: str | BinaryLinearCode, depth: int,
+    def __init__(self, sink: BinaryIO, code: str | BlockCode, depth: int,
                  frame_bytes: int = fmt.DEFAULT_FRAME_BYTES, stream_id: int | None = None,
                  repair: tuple[int, int] | str | None = None, key: bytes | None = None) -> None:
-        if not 1 <= depth <= MAX_DEPTH:
-            raise ValueError(f"depth must be 1..{MAX_DEPTH}, got {depth}")
-        if not 1 <= frame_bytes <= fmt.MAX_PAYLOAD_BYTES:
-            raise ValueError(f"frame size must be 1..{fmt.MAX_PAYLOAD_BYTES} bytes, got {frame_bytes}")
+        fmt.check_depth(depth)
+        fmt.check_frame_bytes(frame_bytes)
         self._sink = sink
         self._code_id, self._defined_code = resolve_code(code)
         if self._defined_code is not None:
             largest = fmt.FrameHeader.for_defined_code(self._defined_code, depth, 0, frame_bytes).frame_bytes
             if largest > fmt.MAX_FRAME_WIRE_BYTES:
-                raise ValueError(f"frames of {frame_bytes} bytes coded with {self._defined_code.name} would take "
-                                 f"{largest} bytes, above the {fmt.MAX_FRAME_WIRE_BYTES} a reader accepts; "
-                                 "use a smaller frame size")
+                raise SettingError(f"frames of {frame_bytes} bytes coded with {self._defined_code.name} would take "
+                                   f"{largest} bytes, above the {fmt.MAX_FRAME_WIRE_BYTES} a reader accepts; "
+                                   "use a smaller frame size")
         if stream_id is not None and not 0 <= stream_id < 1 << 64:
-            raise ValueError(f"stream id must be 0..2^64 - 1, got {stream_id}")
+            raise SettingError(f"stream id must be 0..2^64 - 1, got {stream_id}")
         self.stream_id = secrets.randbits(64) if stream_id is None else stream_id
         self._depth = depth
         self._frame_bytes = frame_bytes
@@ -65,8 +68,8 @@ class FrameWriter:
         spec = parse_repair(repair)
         if spec and frame_bytes + SYMBOL_OVERHEAD > fmt.MAX_PAYLOAD_BYTES:
             # a repair frame carries a data frame's payload and 15 bytes of its place and CRC
-            raise ValueError(f"with repair frames a frame holds at most {fmt.MAX_PAYLOAD_BYTES - SYMBOL_OVERHEAD} "
-                             f"bytes, got --frame-bytes {frame_bytes}")
+            raise SettingError(f"with repair frames a frame holds at most {fmt.MAX_PAYLOAD_BYTES - SYMBOL_OVERHEAD} "
+                               f"bytes, got --frame-bytes {frame_bytes}")
         self._group = GroupBuilder(*spec) if spec else None
         self.repair_frames = 0
         self.bytes_in = 0
