@@ -44,7 +44,7 @@ from bitmend.analysis.intervals import BatchTally
 from bitmend.channel.chain import fresh_seed
 from bitmend.channel.models import ChannelModel
 from bitmend.channel.spec import parse_channels, parse_sweep, sweep_channels
-from bitmend.codes.linear import BinaryLinearCode
+from bitmend.codes.base import BlockCode
 from bitmend.container.format import DEFAULT_FRAME_BYTES
 from bitmend.errors import BitmendError
 from bitmend.simulate import Measured, SimulationResult, SweepResult, check_arguments, simulate
@@ -138,7 +138,7 @@ class Cut:
 class UnitJob:
     """What every unit of one campaign point shares; sent to workers once (plain data)."""
 
-    code: str | BinaryLinearCode
+    code: str | BlockCode
     depth: int
     channels: tuple[str, ...]
     seed: int
@@ -467,7 +467,7 @@ def _run_point(runner: InProcess | OnDask, job: UnitJob, cut: Cut, offset_bits: 
     return tally.result()
 
 
-def campaign(code: str | BinaryLinearCode, depth: int = 1,
+def campaign(code: str | BlockCode, depth: int = 1,
              channels: str | ChannelModel | Sequence[str | ChannelModel] = "bsc:p=1e-3",
              bits: int = 10 ** 7, seed: int | None = None, *, frame_bytes: int = DEFAULT_FRAME_BYTES,
              workers: int = 1, scheduler: str | None = None, unit_frames: int | None = None,
@@ -485,7 +485,7 @@ def campaign(code: str | BinaryLinearCode, depth: int = 1,
         return _run_point(runner, job, cut, 0, cut.frames * 8 * frame_bytes, progress)
 
 
-def campaign_sweep(code: str | BinaryLinearCode, depth: int,
+def campaign_sweep(code: str | BlockCode, depth: int,
                    channels: str | ChannelModel | Sequence[str | ChannelModel],
                    grid: str | tuple[str, Sequence[float]], bits: int = 10 ** 7, seed: int | None = None, *,
                    frame_bytes: int = DEFAULT_FRAME_BYTES, workers: int = 1, scheduler: str | None = None,

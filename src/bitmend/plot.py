@@ -16,9 +16,11 @@ import numpy as np
 from bitmend.analysis import limits
 from bitmend.channel.models import BSC
 from bitmend.channel.spec import parse_channels, sweep_channels
-from bitmend.codes.linear import BinaryLinearCode
+from bitmend.code_theory import bits_of, bsc_crossover, theory_for
+from bitmend.codes.base import BlockCode
+from bitmend.codes.catalog import code_names, get_code
 from bitmend.errors import BitmendError
-from bitmend.simulate import SimulationResult, SweepResult, theory_for
+from bitmend.simulate.results import SimulationResult, SweepResult
 
 FORMATS = (".png", ".svg")
 PANELS = (("bit_error", "residual bit error rate"), ("block_error", "block (codeword) error rate"))
@@ -42,7 +44,7 @@ def check_plot_path(path: str) -> None:
         raise PlotUnavailableError("plotting needs matplotlib: pip install 'bitmend[plot]'")
 
 
-def _curves(result: SimulationResult, code: BinaryLinearCode | None, parameter: str,
+def _curves(result: SimulationResult, code: BlockCode, parameter: str,
             xs: np.ndarray) -> dict[str, list[float | None]]:
     """Theory and uncoded values at xs for each panel (None where no closed form)."""
     out: dict[str, list[float | None]] = {f"{kind}_{name}": [] for kind in ("theory", "uncoded") for name, _ in PANELS}
@@ -56,7 +58,8 @@ def _curves(result: SimulationResult, code: BinaryLinearCode | None, parameter: 
     return out
 
 
-def limit_curves(code, channels: tuple[str, ...], parameter: str, xs: np.ndarray) -> dict[str, np.ndarray] | None:
+def limit_curves(code: BlockCode | None, channels: tuple[str, ...], parameter: str,
+                 xs: np.ndarray) -> dict[str, np.ndarray] | None:
     """Block error of the best code of the code's length and size (in bits) at each swept p of
     a BSC: 'normal' (normal approximation), 'converse' (no code does better) and 'rcu' (some
     code does at least as well), plus 'capacity_p', the p where 1 - h2(p) = k/n (a single BSC
@@ -64,14 +67,12 @@ def limit_curves(code, channels: tuple[str, ...], parameter: str, xs: np.ndarray
     models = parse_channels(channels)
     if code is None or parameter != "p" or not models or not all(isinstance(m, BSC) for m in models):
         return None
-    bits = getattr(code, "symbol_bits", 1)
-    n, k = code.n * bits, code.k * bits
+    n, k = bits_of(code)
     exact = n <= limits.EXACT_MAX_N
     out = {name: np.full(len(xs), np.nan) for name in ("normal", "converse", "rcu")}
     for i, x in enumerate(xs):
-        chain = sweep_channels(models, parameter, float(x))
-        p = (1.0 - float(np.prod([1.0 - 2.0 * m.p for m in chain]))) / 2.0
-        if not 0.0 < p < 0.5:
+        p = bsc_crossover(sweep_channels(models, parameter, float(x)))
+        if p is None:
             continue
         out["normal"][i] = limits.normal_approximation_block_error(n, k, p)
         if exact:
@@ -81,68 +82,85 @@ def limit_curves(code, channels: tuple[str, ...], parameter: str, xs: np.ndarray
     return out
 
 
-def plot_results(results: SimulationResult | SweepResult, path: str, code: BinaryLinearCode | None = None) -> None:
+def _swept(results: SimulationResult | SweepResult) -> tuple[str, np.ndarray, tuple[SimulationResult, ...]]:
+    """(parameter, its values, the points): a sweep's own, or for a single run the first of
+    p, bad, enter that its chain takes, at its one value."""
+    if isinstance(results, SweepResult):
+        return results.parameter, np.array(results.values), results.points
+    models = parse_channels(results.channels)
+    parameter = next((name for m in models for name in ("p", "bad", "enter") if name in m.parameter_names()), "p")
+    xs = np.array([next(m.params[parameter] for m in models if parameter in m.parameter_names())])
+    return parameter, xs, (results,)
+
+
+def _draw_measured(ax, points: tuple[SimulationResult, ...], xs: np.ndarray, name: str) -> None:
+    """Measured rates with their intervals as bars; a point with no event as its upper bound."""
+    measured = [p.measured(name) for p in points]
+    rate = np.array([m.rate for m in measured])
+    low = np.array([m.low for m in measured])
+    high = np.array([m.high for m in measured])
+    seen = rate > 0
+    if seen.any():
+        ax.errorbar(xs[seen], rate[seen], yerr=[rate[seen] - low[seen], high[seen] - rate[seen]], fmt="o",
+                    color="C0", capsize=3, label=f"measured ({points[0].confidence:.0%} interval)")
+    if (~seen).any():
+        ax.plot(xs[~seen], high[~seen], "v", color="C0", mfc="none", label="no event: upper bound")
+
+
+def _draw_curves(ax, dense: np.ndarray, curves: dict[str, list[float | None]], name: str) -> None:
+    """Theory and the uncoded channel, where they have values."""
+    for kind, style, color, text in (("theory", "-", "C1", "theory"), ("uncoded", "--", "C7", "uncoded")):
+        ys = np.array([np.nan if v is None else v for v in curves[f"{kind}_{name}"]], dtype=float)
+        if np.isfinite(ys).any():
+            ax.plot(dense, ys, style, color=color, label=text)
+
+
+def _draw_limits(ax, dense: np.ndarray, bounds: dict[str, np.ndarray], code: BlockCode, name: str) -> None:
+    """The best code of the same size (block error panel) and the p where capacity = rate."""
+    n, k = bits_of(code)
+    size = f"({n}, {k})"
+    if name == "block_error":
+        tiny = 1e-300  # log axes: keep underflowed values off the chart
+        for key, style, color, text in (
+                ("normal", "-.", "C2", f"best {size} code, normal approximation"),
+                ("converse", ":", "C3", f"converse: no {size} code below"),
+                ("rcu", ":", "C4", f"RCU: some {size} code at or below")):
+            ys = np.where(bounds[key] > tiny, bounds[key], np.nan)
+            if np.isfinite(ys).any():
+                ax.plot(dense, ys, style, color=color, label=text)
+    capacity_p = float(bounds["capacity_p"][0])
+    if np.isfinite(capacity_p) and dense.min() <= capacity_p <= dense.max():
+        ax.axvline(capacity_p, color="C5", linestyle="--", linewidth=1,
+                   label=f"capacity = rate {code.k / code.n:.3g} (p = {capacity_p:.3g})")
+
+
+def plot_results(results: SimulationResult | SweepResult, path: str, code: BlockCode | None = None) -> None:
     """Draw residual bit error and block error against the swept parameter (or the single
     point) into path (.png or .svg): measured rates with their exact intervals as bars
     (a run with no error event shows its upper bound as a downward triangle), the theory
-    curve where a closed form exists, and the uncoded channel for comparison."""
+    curve where a closed form exists, and the uncoded channel for comparison. Without
+    `code`, a catalog code is found by the result's name; a custom one gets no curves."""
     check_plot_path(path)
     import matplotlib
 
     matplotlib.use("Agg")  # files only, never a window
     import matplotlib.pyplot as plt
 
-    from bitmend.codes.catalog import get_code
-
-    if isinstance(results, SweepResult):
-        parameter, xs, points = results.parameter, np.array(results.values), results.points
-    else:
-        points = (results,)
-        models = parse_channels(results.channels)
-        parameter = next((name for m in models for name in ("p", "bad", "enter") if name in m.parameter_names()), "p")
-        xs = np.array([next(m.params[parameter] for m in models if parameter in m.parameter_names())])
+    parameter, xs, points = _swept(results)
     first = points[0]
-    if code is None:
-        try:
-            code = get_code(first.code)
-        except KeyError:
-            code = None
+    if code is None and first.code in code_names():
+        code = get_code(first.code)
     dense = np.logspace(np.log10(xs.min()), np.log10(xs.max()), 120) if xs.min() > 0 and len(xs) > 1 else xs
     curves = _curves(first, code, parameter, dense) if code is not None else None
     bounds = limit_curves(code, first.channels, parameter, dense) if len(xs) > 1 else None
 
     fig, axes = plt.subplots(1, 2, figsize=(11, 4.4), constrained_layout=True)
     for ax, (name, label) in zip(axes, PANELS):
-        measured = [p.measured(name) for p in points]
-        rate = np.array([m.rate for m in measured])
-        low = np.array([m.low for m in measured])
-        high = np.array([m.high for m in measured])
-        seen = rate > 0
-        if seen.any():
-            ax.errorbar(xs[seen], rate[seen], yerr=[rate[seen] - low[seen], high[seen] - rate[seen]], fmt="o",
-                        color="C0", capsize=3, label=f"measured ({first.confidence:.0%} interval)")
-        if (~seen).any():
-            ax.plot(xs[~seen], high[~seen], "v", color="C0", mfc="none", label="no event: upper bound")
+        _draw_measured(ax, points, xs, name)
         if curves is not None:
-            for kind, style, color, text in (("theory", "-", "C1", "theory"), ("uncoded", "--", "C7", "uncoded")):
-                ys = np.array([np.nan if v is None else v for v in curves[f"{kind}_{name}"]], dtype=float)
-                if np.isfinite(ys).any():
-                    ax.plot(dense, ys, style, color=color, label=text)
+            _draw_curves(ax, dense, curves, name)
         if bounds is not None:
-            size = f"({code.n * getattr(code, 'symbol_bits', 1)}, {code.k * getattr(code, 'symbol_bits', 1)})"
-            if name == "block_error":
-                tiny = 1e-300  # log axes: keep underflowed values off the chart
-                for key, style, color, text in (
-                        ("normal", "-.", "C2", f"best {size} code, normal approximation"),
-                        ("converse", ":", "C3", f"converse: no {size} code below"),
-                        ("rcu", ":", "C4", f"RCU: some {size} code at or below")):
-                    ys = np.where(bounds[key] > tiny, bounds[key], np.nan)
-                    if np.isfinite(ys).any():
-                        ax.plot(dense, ys, style, color=color, label=text)
-            capacity_p = float(bounds["capacity_p"][0])
-            if np.isfinite(capacity_p) and dense.min() <= capacity_p <= dense.max():
-                ax.axvline(capacity_p, color="C5", linestyle="--", linewidth=1,
-                           label=f"capacity = rate {code.k / code.n:.3g} (p = {capacity_p:.3g})")
+            _draw_limits(ax, dense, bounds, code, name)
         ax.set_xscale("log")
         ax.set_yscale("log")
         ax.set_xlabel(f"channel {parameter}")
