@@ -209,7 +209,7 @@ def test_open_in_binary_mode_refuses_text_arguments(mode, argument):
     ({"depth": 256}, SettingError),
     ({"frame_bytes": 0}, SettingError),
     ({"repair": "4/0"}, RepairSpecError),
-    ({"key": b"short"}, ValueError),
+    ({"key": b"short"}, SettingError),
 ])
 def test_open_for_writing_checks_values_before_making_the_file(tmp_path, settings, error):
     path = tmp_path / "never.bmd"

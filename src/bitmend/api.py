@@ -5,6 +5,11 @@
     with bitmend.open("log.bmd", "rb") as f:
         data = f.read()
         print(f.report.summary.one_line())
+
+Encoder and Decoder are file objects as the standard library's compressed files are:
+`mode` ('wb' / 'rb'), `name`, `tell()` counted in plain-data bytes, lines and `peek` when
+reading, ValueError for any use after close. They are not seekable: a container is written
+and read front to back. Text modes 'wt' / 'rt' wrap them in io.TextIOWrapper.
 """
 
 from __future__ import annotations
@@ -47,14 +52,14 @@ def load_code_file(path: str | os.PathLike) -> BinaryLinearCode:
 
 
 def _checked_key(key: bytes | None) -> bytes | None:
-    """A key as bytes, refused when shorter than 16 bytes (keyfile.MIN_KEY_BYTES)."""
+    """A key as bytes; SettingError when shorter than 16 bytes (keyfile.MIN_KEY_BYTES)."""
     if key is None:
         return None
     if not isinstance(key, (bytes, bytearray, memoryview)):
         raise TypeError(f"a key is bytes, got {type(key).__name__} (bitmend.load_key_file reads a key file)")
     key = bytes(key)
     if len(key) < MIN_KEY_BYTES:
-        raise ValueError(f"a key must be at least {MIN_KEY_BYTES} bytes, got {len(key)}")
+        raise SettingError(f"a key must be at least {MIN_KEY_BYTES} bytes, got {len(key)}")
     return key
 
 
