@@ -157,13 +157,17 @@ class BlockCode(abc.ABC):
     def _identity(self) -> tuple:
         return (self.family, *self._defining_parameters())
 
+    @cached_property
+    def _identity_hash(self) -> int:  # codes key lru_caches on the stream path: hash once
+        return hash(self._identity)
+
     def __eq__(self, other: object) -> bool:
         if not isinstance(other, BlockCode):
             return NotImplemented
         return self is other or self._identity == other._identity
 
     def __hash__(self) -> int:
-        return hash(self._identity)
+        return self._identity_hash
 
     # ---- row kernels (each family) -------------------------------------------------------------------
     @abc.abstractmethod
