@@ -87,6 +87,22 @@ def verify_bits_for(candidate: Candidate, per: str, frame_bytes: int, target: fl
     return int(min(VERIFY_MAX_BITS, max(VERIFY_MIN_BITS, 8 * frame_bytes, wanted)))
 
 
+def _verdict(low: float, high: float, target: float) -> str:
+    """confirmed (the interval lies at or below the target), refuted (above it) or consistent."""
+    if high <= target:
+        return "confirmed"
+    return "refuted" if low > target else "consistent"
+
+
+def _bits_to_decide(predicted: float, plan: Plan) -> int:
+    """Payload bits for the 95% interval around the predicted rate r to clear the target:
+    1.96^2 r / (target - r)^2 trials (normal approximation), and at least 3/target (the
+    "rule of three": zero events in N trials put the upper bound near 3/N)."""
+    r = predicted
+    trials = max(3.0 / plan.target, 1.96 ** 2 * r / (plan.target - r) ** 2)
+    return int(math.ceil(trials * (8 * plan.frame_bytes if plan.per == "frame" else 1)))
+
+
 def verify_candidate(plan: Plan, candidate: Candidate, extra_codes: Sequence[BlockCode] = (),
                      bits: int | None = None, seed: int = 1) -> Verification:
     """Run the candidate through the simulator (payload segments through the real coding
@@ -109,20 +125,8 @@ def verify_candidate(plan: Plan, candidate: Candidate, extra_codes: Sequence[Blo
     measured = result.frame_error if plan.per == "frame" else result.bit_error
     predicted = (candidate.prediction.payload_frame_error if plan.per == "frame"
                  else candidate.prediction.codeword_bit_error)
-    if measured.high <= plan.target:
-        verdict = "confirmed"
-    elif measured.low > plan.target:
-        verdict = "refuted"
-    else:
-        verdict = "consistent"
-    needed = None
-    if verdict == "consistent" and predicted < plan.target:
-        # trials for the 95% interval around the predicted rate r to clear the target:
-        # 1.96^2 r / (target - r)^2 (normal approximation), and at least 3/target (the
-        # "rule of three": zero events in N trials put the upper bound near 3/N)
-        r = predicted
-        trials = max(3.0 / plan.target, 1.96 ** 2 * r / (plan.target - r) ** 2)
-        needed = int(math.ceil(trials * (8 * plan.frame_bytes if plan.per == "frame" else 1)))
+    verdict = _verdict(measured.low, measured.high, plan.target)
+    needed = _bits_to_decide(predicted, plan) if verdict == "consistent" and predicted < plan.target else None
     if plan.per == "bit":
         notes.append("the bit error interval is by batch means (a decoder leaves wrong bits in clusters); the "
                      "block error comparison is the sharper check")

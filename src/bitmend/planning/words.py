@@ -14,6 +14,26 @@ from bitmend.container.repair import MAX_GROUP, MAX_REPAIR
 from bitmend.planning.model import WEIGHT_WORK_LIMIT, PlanChannel
 
 
+def _repair_formulas(per: str) -> list[str]:
+    """How a repair ratio R/K is predicted (with a drop channel)."""
+    lines = ["repair R/K: a data frame is missing with q = 1 - (1 - p_drop)(1 - P_fail) = P_frame, P_fail its "
+             "failure after decoding (CRC, both headers, slip); in a group of K data + R repair frames the "
+             "missing count M is Binomial(K+R, q), and a data frame is delivered unless M > R (any K of the "
+             "K+R rebuild the group)",
+             "residual frame loss = E[missing data frames in groups with M > R] / K "
+             "= (1/(K+R)) sum_{m=R+1}^{K+R} m C(K+R,m) q^m (1-q)^(K+R-m) = q P[Binomial(K+R-1, q) >= R] "
+             "(a data frame is lost when it is missing and at least R of the other K+R-1 are too)",
+             "a repair frame carries B + 15 payload bytes (symbol head and CRC-32C), so its own q_r is "
+             "computed at that size and the residual taken exactly as q P[Bin(K-1, q) + Bin(R, q_r) >= R]",
+             "overhead with repair = (K W + R W_r) / (K B) - 1,  W and W_r the wire bytes of a data and a "
+             "repair frame, B the payload bytes of a data frame"]
+    if per == "bit":
+        lines.append("bit rate with repair = e P[Bin(K-1, q) + Bin(R, q_r) >= R],  e = P_lost + (1 - P_lost) "
+                     "P_bit, P_lost = 1 - (1 - p_drop)(1 - P_H^2): a frame that is not rebuilt loses all its "
+                     "bits when it never arrived, and keeps its wrong bits when it arrived damaged")
+    return lines
+
+
 def formulas(channel: PlanChannel, per: str, symbols: bool = False) -> tuple[str, ...]:
     lines = []
     if any(isinstance(m, BSC) for m in channel.flips):
@@ -41,21 +61,7 @@ def formulas(channel: PlanChannel, per: str, symbols: bool = False) -> tuple[str
     if channel.drop or channel.slip:
         lines.append("P_loss = 1 - (1 - p_drop) (1 - p_slip)^W,  W the frame's wire bits")
     if channel.drop:
-        lines += ["repair R/K: a data frame is missing with q = 1 - (1 - p_drop)(1 - P_fail) = P_frame, P_fail its "
-                  "failure after decoding (CRC, both headers, slip); in a group of K data + R repair frames the "
-                  "missing count M is Binomial(K+R, q), and a data frame is delivered unless M > R (any K of the "
-                  "K+R rebuild the group)",
-                  "residual frame loss = E[missing data frames in groups with M > R] / K "
-                  "= (1/(K+R)) sum_{m=R+1}^{K+R} m C(K+R,m) q^m (1-q)^(K+R-m) = q P[Binomial(K+R-1, q) >= R] "
-                  "(a data frame is lost when it is missing and at least R of the other K+R-1 are too)",
-                  "a repair frame carries B + 15 payload bytes (symbol head and CRC-32C), so its own q_r is "
-                  "computed at that size and the residual taken exactly as q P[Bin(K-1, q) + Bin(R, q_r) >= R]",
-                  "overhead with repair = (K W + R W_r) / (K B) - 1,  W and W_r the wire bytes of a data and a "
-                  "repair frame, B the payload bytes of a data frame"]
-        if per == "bit":
-            lines.append("bit rate with repair = e P[Bin(K-1, q) + Bin(R, q_r) >= R],  e = P_lost + (1 - P_lost) "
-                         "P_bit, P_lost = 1 - (1 - p_drop)(1 - P_H^2): a frame that is not rebuilt loses all its "
-                         "bits when it never arrived, and keeps its wrong bits when it arrived damaged")
+        lines += _repair_formulas(per)
     if channel.slip:
         lines.append("P_bit += P_slip / 4: a frame with a slip is delivered with the bits after it at random")
     return tuple(lines)
@@ -76,33 +82,22 @@ def _unweighted_text(unweighted: Sequence[BlockCode]) -> str:
             "bit error is an upper bound; t is the designed t where only that is known")
 
 
-def assumptions(channel: PlanChannel, per: str, custom: bool, unweighted: Sequence[BlockCode] = (),
-                 symbols: bool = False) -> tuple[str, ...]:
-    lines = ["bounded-distance decoding: up to t errors per codeword are corrected; more are flagged or "
-             "miscorrected, and the frame's CRC-32C catches a miscorrection (it lets one through with "
-             "probability about 2^-32, not counted)",
-             "given i errors in a codeword, every placement is equally likely (exact on a BSC); this sets the "
-             "miscorrection share m_i"]
-    if symbols:
-        lines.append("Reed-Solomon: errors only, no erasures (the decoder's use of known-bad symbols is not "
-                     "counted, so the prediction errs on the safe side); every failure counts as a "
-                     "miscorrection and a wrong byte as 128/255 wrong bits, so the bit error is an upper bound")
-    if unweighted:
-        lines.append(_unweighted_text(unweighted))
-    if per == "bit" and channel.drop:
-        lines.append("the bit rate counts payload bits as `decode --on-error keep` writes them, wrong or not, and, "
-                     "with a drop channel, every payload bit of a frame never delivered (neither arrived nor rebuilt) "
-                     "as a bad bit: otherwise frames lost would not count at all")
-    elif per == "bit":
-        lines.append("the bit rate counts payload bits as `decode --on-error keep` writes them, wrong or not, "
-                     "before the CRC flags the frame; frames lost outright deliver nothing and are not counted")
-    else:
-        lines.append("the frame rate counts frames not delivered verified: CRC failed, or lost")
-    lines.append("codeword failures within a frame are taken as independent: 1 - (1 - P_B)^B; where errors come "
-                 "in bursts they cluster, so this overstates the frame rate (it never exceeds B P_B)")
-    lines.append("a frame is lost only when both copies of its header fail (they lie a payload apart: taken as "
-                 "independent); a locked reader needs no marker" +
-                 ("; a code defined in the stream likewise needs one of its two definition blocks" if custom else ""))
+def _counted_rate(channel: PlanChannel, per: str) -> str:
+    """What the targeted rate counts."""
+    if per == "frame":
+        return "the frame rate counts frames not delivered verified: CRC failed, or lost"
+    if channel.drop:
+        return ("the bit rate counts payload bits as `decode --on-error keep` writes them, wrong or not, and, "
+                "with a drop channel, every payload bit of a frame never delivered (neither arrived nor rebuilt) "
+                "as a bad bit: otherwise frames lost would not count at all")
+    return ("the bit rate counts payload bits as `decode --on-error keep` writes them, wrong or not, "
+            "before the CRC flags the frame; frames lost outright deliver nothing and are not counted")
+
+
+def _channel_assumptions(channel: PlanChannel) -> list[str]:
+    """What the models of this channel take for granted: the chain's state, byte runs,
+    several flip channels, and with a drop channel the repair's premises."""
+    lines = []
     if channel.bursts:
         lines.append("the Gilbert-Elliott chain is in its stationary state at each codeword's first bit; "
                      "codeword bits lie D apart on the wire inside a group (docs/FORMAT.md), so the recursion "
@@ -126,6 +121,30 @@ def assumptions(channel: PlanChannel, per: str, custom: bool, unweighted: Sequen
                   "is verified by its CRC-32C",
                   "without repair frames no code inside a frame restores a frame that vanished: the frame loss "
                   "stays at p_drop or above"]
+    return lines
+
+
+def assumptions(channel: PlanChannel, per: str, custom: bool, unweighted: Sequence[BlockCode] = (),
+                 symbols: bool = False) -> tuple[str, ...]:
+    """What every prediction of the plan takes for granted, in words."""
+    lines = ["bounded-distance decoding: up to t errors per codeword are corrected; more are flagged or "
+             "miscorrected, and the frame's CRC-32C catches a miscorrection (it lets one through with "
+             "probability about 2^-32, not counted)",
+             "given i errors in a codeword, every placement is equally likely (exact on a BSC); this sets the "
+             "miscorrection share m_i"]
+    if symbols:
+        lines.append("Reed-Solomon: errors only, no erasures (the decoder's use of known-bad symbols is not "
+                     "counted, so the prediction errs on the safe side); every failure counts as a "
+                     "miscorrection and a wrong byte as 128/255 wrong bits, so the bit error is an upper bound")
+    if unweighted:
+        lines.append(_unweighted_text(unweighted))
+    lines.append(_counted_rate(channel, per))
+    lines.append("codeword failures within a frame are taken as independent: 1 - (1 - P_B)^B; where errors come "
+                 "in bursts they cluster, so this overstates the frame rate (it never exceeds B P_B)")
+    lines.append("a frame is lost only when both copies of its header fail (they lie a payload apart: taken as "
+                 "independent); a locked reader needs no marker" +
+                 ("; a code defined in the stream likewise needs one of its two definition blocks" if custom else ""))
+    lines += _channel_assumptions(channel)
     if channel.slip:
         lines.append("slip: a slip anywhere in a frame costs that frame; the reader resynchronises at the next")
     lines.append(f"overhead = wire bytes / payload bytes - 1 for a full frame: marker, header and copy "
