@@ -34,6 +34,7 @@ from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH, MAX_DEPTH
 from bitmend.container.format import DEFAULT_FRAME_BYTES, MAX_PAYLOAD_BYTES
 from bitmend.errors import BitmendError, CodeError, ContainerError, SettingError
 from bitmend.live import DEFAULT_MAX_DELAY
+from bitmend.report import counted
 
 COPY_CHUNK = 1 << 20
 
@@ -48,8 +49,9 @@ app = typer.Typer(add_completion=False, no_args_is_help=True, pretty_exceptions_
                   help="Forward error correction for byte streams: wrap data in a block code, "
                        "recover it after damage, and report exactly what was corrected and what was not.",
                   epilog=EXIT_CODES_HELP)
-codes_app = typer.Typer(invoke_without_command=True, add_completion=False,
-                        help="List the code catalog, or show one code in detail.")
+CODES_SUMMARY = "List the code catalog, or show one code in detail."
+codes_app = typer.Typer(invoke_without_command=True, add_completion=False, help=CODES_SUMMARY,
+                        short_help=CODES_SUMMARY)
 app.add_typer(codes_app, name="codes")
 
 _FILE_OUT = typer.Option(None, "-o", "--output", metavar="OUT", help="Output file (default stdout).")
@@ -108,7 +110,7 @@ def _errors() -> Iterator[None]:
         outputs.silence_stdout()
         raise typer.Exit(EXIT_BROKEN_PIPE)
     except OSError as exc:
-        name = f" {exc.filename}" if getattr(exc, "filename", None) else ""
+        name = f" {exc.filename}" if exc.filename else ""
         _fail(f"I/O error{name}: {exc.strerror or exc}", EXIT_UNREADABLE)
     except KeyboardInterrupt:
         _fail("interrupted", 130)
@@ -322,15 +324,11 @@ def _encode_datagrams(endpoint, output: Optional[str], output_udp, settings: dic
     with open_data_output(output, output_udp) as out, Encoder(out, **settings) as enc:
         refused = pump_datagrams(receiver, enc, settings["frame_bytes"], delay)
     ended = f", ended by {receiver.stopped_by}" if receiver.stopped_by else ""
-    typer.echo(f"bitmend encode: {_count(receiver.received, 'datagram')} received, "
+    typer.echo(f"bitmend encode: {counted(receiver.received, 'datagram')} received, "
                f"{receiver.received - refused} sent as frames{ended}", err=True)
     if refused:
-        raise CliError(f"{_count(refused, 'datagram')} longer than --frame-bytes {settings['frame_bytes']} "
+        raise CliError(f"{counted(refused, 'datagram')} longer than --frame-bytes {settings['frame_bytes']} "
                        f"{'was' if refused == 1 else 'were'} not sent", EXIT_DAMAGED)
-
-
-def _count(value: int, noun: str) -> str:
-    return f"{value} {noun}{'' if value == 1 else 's'}"
 
 
 # ---- decode -----------------------------------------------------------------------------------
@@ -459,11 +457,11 @@ def _say_key_mismatch(reader) -> None:
     """One clear line when frames were held back because the key and the frames disagree."""
     if reader.keyed_without_key:
         typer.echo(f"bitmend decode: the frames are keyed: give --key-file to check them "
-                   f"({_count(reader.keyed_without_key, 'frame')} not delivered; nothing unverified was written)",
+                   f"({counted(reader.keyed_without_key, 'frame')} not delivered; nothing unverified was written)",
                    err=True)
     elif reader.untagged_with_key:
         typer.echo(f"bitmend decode: the frames carry no tag, but --key-file was given "
-                   f"({_count(reader.untagged_with_key, 'frame')} not delivered; --accept-unauthenticated "
+                   f"({counted(reader.untagged_with_key, 'frame')} not delivered; --accept-unauthenticated "
                    f"takes them)", err=True)
 
 
@@ -492,8 +490,7 @@ def _decode_records(source: str, source_udp, output: Optional[str], output_udp, 
                         out.flush()
             except DamagedDataError as exc:
                 stopped = exc
-            if hasattr(out, "prepare"):
-                out.prepare()
+            out.prepare()
     _end_decode(reader, stopped, quiet, _missing_records(reader.missing), _received(receiver))
 
 
@@ -508,7 +505,7 @@ def _received(receiver) -> list[str]:
     if receiver is None:
         return []
     ended = f"; ended by {receiver.stopped_by}" if receiver.stopped_by else ""
-    return [f"{_count(receiver.received, 'datagram')} received{ended}"]
+    return [f"{counted(receiver.received, 'datagram')} received{ended}"]
 
 
 # ---- inspect ----------------------------------------------------------------------------------

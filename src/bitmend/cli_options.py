@@ -114,9 +114,11 @@ def flowed(doc: str) -> str:
 
 def command(group: typer.Typer, name: Optional[str] = None) -> Callable:
     """@group.command(name) with the function's docstring as its help, flowed. The first
-    paragraph, one sentence, is the command's line in its group's list of commands."""
+    paragraph, one sentence, is the command's line in its group's list of commands (given
+    as short_help, so that no help formatter cuts it short)."""
     def register(function: Callable) -> Callable:
-        return group.command(name, help=flowed(function.__doc__ or ""))(function)
+        text = flowed(function.__doc__ or "")
+        return group.command(name, help=text, short_help=text.split("\n\n")[0])(function)
 
     return register
 

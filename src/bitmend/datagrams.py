@@ -142,6 +142,10 @@ class DatagramSender:
     def flush(self) -> None:
         pass
 
+    def prepare(self) -> None:
+        """Nothing to make ready at the end of a run: each datagram has left already (an
+        -o file is renamed into place here)."""
+
     def close(self) -> None:
         self._sock.close()
 

@@ -85,25 +85,27 @@ class Summary:
     def one_line(self) -> str:
         """The human summary printed to stderr."""
         verdict = "all data verified" if self.complete else "INCOMPLETE"
-        parts = [_count(self.frames, "frame"), f"{self.clean} clean", f"{self.corrected} corrected",
+        unit = self.symbol_unit.removesuffix("s")  # what corrected_symbols counts: bit or byte
+        parts = [counted(self.frames, "frame"), f"{self.clean} clean", f"{self.corrected} corrected",
                  f"{self.damaged} damaged", f"{self.lost} lost",
-                 f"{self.corrected_symbols} {self.symbol_unit} corrected", _count(self.bytes_out, "byte") + " out"]
+                 counted(self.corrected_symbols, unit) + " corrected", counted(self.bytes_out, "byte") + " out"]
         for value, what in ((self.rebuilt, "rebuilt"), (self.unauthenticated, "unauthenticated"),
-                            (self.duplicates, "duplicate"), (self.reordered, "reordered"),
+                            (self.duplicates, None), (self.reordered, "reordered"),
                             (self.foreign, "foreign"), (self.late, "late")):
             if value:
-                parts.append(f"{value} {what}")
+                parts.append(f"{value} {what}" if what else counted(value, "duplicate"))
         if self.streams > 1:
-            parts.append(f"{self.streams} streams")
+            parts.append(counted(self.streams, "stream"))
         if self.skipped_bytes:
-            parts.append(_count(self.skipped_bytes, "byte") + " skipped")
+            parts.append(counted(self.skipped_bytes, "byte") + " skipped")
         if not self.end_seen:
             parts.append("end of stream missing")
         return f"bitmend decode: {verdict}: " + ", ".join(parts)
 
 
-def _count(value: int, noun: str) -> str:
-    return f"{value} {noun}{'' if value == 1 else 's'}"
+def counted(value: int, noun: str, plural: str | None = None) -> str:
+    """'1 frame', '2 frames': a count and its noun, which agree (plural: an irregular plural)."""
+    return f"{value} {noun if value == 1 else plural or noun + 's'}"
 
 
 @dataclass

@@ -113,14 +113,20 @@ class Ledger:
 
     def one_line(self) -> str:
         """A short human summary: only what happened."""
-        parts = [f"{self.bits_seen:,} bits seen"]
-        for label, value in (("bits flipped", self.bits_flipped), ("bytes substituted", self.bytes_substituted),
-                             ("frames dropped", self.frames_dropped), ("bits inserted", self.total("bits_inserted")),
-                             ("bits deleted", self.total("bits_deleted"))):
+        parts = [_counted(self.bits_seen, "bit") + " seen"]
+        for noun, verb, value in (("bit", "flipped", self.bits_flipped), ("byte", "substituted", self.bytes_substituted),
+                                  ("frame", "dropped", self.frames_dropped),
+                                  ("bit", "inserted", self.total("bits_inserted")),
+                                  ("bit", "deleted", self.total("bits_deleted"))):
             if value:
-                parts.append(f"{value:,} {label}")
+                parts.append(f"{_counted(value, noun)} {verb}")
         if self.total("frames_seen") and not self.frames_dropped:
             parts.append("no frame dropped")
         if len(parts) == 1:
             parts.append("nothing changed")
         return ", ".join(parts)
+
+
+def _counted(value: int, noun: str) -> str:
+    """'1 bit', '1,024 bits': a count with thousands separators and a noun that agrees."""
+    return f"{value:,} {noun}{'' if value == 1 else 's'}"

@@ -19,6 +19,7 @@ from typing import BinaryIO, Iterator
 from bitmend.codes.catalog import CATALOG
 from bitmend.container.assembler import NotAContainerError
 from bitmend.container.reader import FrameScanner
+from bitmend.report import counted
 
 _CATALOG_NAMES = {entry.code_id: entry.name for entry in CATALOG}
 
@@ -92,9 +93,9 @@ class SurveySummary:
 
     def one_line(self) -> str:
         """The human summary under the table."""
-        return (f"{_count(self.frames, 'frame')} in {_count(self.streams, 'stream')}, "
-                f"{_count(self.payload_bytes, 'payload byte')} in {_count(self.container_bytes, 'container byte')} "
-                f"(overhead {self.overhead:.1%}), {_count(self.skipped_bytes, 'byte')} outside frames")
+        return (f"{counted(self.frames, 'frame')} in {counted(self.streams, 'stream')}, "
+                f"{counted(self.payload_bytes, 'payload byte')} in {counted(self.container_bytes, 'container byte')} "
+                f"(overhead {self.overhead:.1%}), {counted(self.skipped_bytes, 'byte')} outside frames")
 
     def to_json(self) -> str:
         """The closing JSON Lines object, type "summary"."""
@@ -148,10 +149,6 @@ def survey_bytes(data: bytes) -> tuple[list[SurveyedFrame], SurveySummary]:
     """Every frame of a container held in memory, and the totals."""
     survey = ContainerSurvey(io.BytesIO(data))
     return list(survey.frames()), survey.summary()
-
-
-def _count(value: int, noun: str) -> str:
-    return f"{value} {noun}{'' if value == 1 else 's'}"
 
 
 __all__ = ["TABLE_HEADER", "SurveyedFrame", "SurveySummary", "ContainerSurvey", "survey_bytes"]
