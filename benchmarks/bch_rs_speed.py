@@ -57,10 +57,13 @@ def _bit_errors(bits: np.ndarray, count: int, rng) -> np.ndarray:
 def codec_rs(code, galois, blocks: int, galois_blocks: int, repeat: int, rng) -> list[tuple]:
     k = code.k
     messages = rng.integers(0, 256, (blocks, k), dtype=np.uint8)
-    rows = code.encode_rows(messages)
+    message_rows = np.zeros((blocks, code.n), dtype=np.uint8)  # rows hold the message, parity filled in place
+    message_rows[:, :k] = messages
+    rows = code.encode_rows(message_rows.copy())
     noisy = _symbol_errors(rows, 8, rng)
     mb = blocks * k / 1e6
-    enc = _best(lambda: code.encode_rows(messages), repeat)
+    copies = [message_rows.copy() for _ in range(repeat)]
+    enc = _best(lambda: code.encode_rows(copies.pop()), repeat)
     copies = [rows.copy() for _ in range(repeat)]
     clean = _best(lambda: code.decode_rows(copies.pop()), repeat)
     copies = [noisy.copy() for _ in range(repeat)]
@@ -154,9 +157,9 @@ def _damage_rs_frames(blob: bytes, per_codeword: int, rng) -> bytes:
     out = bytearray(blob)
     pos = 0
     while pos < len(blob):
-        header = fmt.decode_header(blob[pos + 8: pos + 41])
+        header = fmt.decode_header(blob[pos + 8: pos + 8 + fmt.MAX_HEADER_BYTES])
         n = header.code.n
-        start = pos + 41
+        start = pos + 8 + header.header_bytes
         for first in range(start, start + header.coded_bytes - n + 1, n):
             for p in rng.choice(n, per_codeword, replace=False):
                 out[first + int(p)] ^= int(rng.integers(1, 256))

@@ -13,13 +13,14 @@ from contextlib import contextmanager
 from typing import BinaryIO, Callable, Iterator, Optional
 
 from bitmend import outputs
+from bitmend.errors import BitmendError
 
 EXIT_OK, EXIT_DAMAGED, EXIT_USAGE, EXIT_UNREADABLE = 0, 1, 2, 3
 EXIT_BROKEN_PIPE = outputs.EXIT_BROKEN_PIPE  # 141
 PROGRESS_MIN_BYTES = 8 << 20  # a known input smaller than this finishes before a bar would help
 
 
-class CliError(Exception):
+class CliError(BitmendError):
     """A failure reported as one line on stderr with an exit code."""
 
     def __init__(self, message: str, code: int) -> None:

@@ -40,6 +40,8 @@ import tempfile
 from contextlib import contextmanager
 from typing import BinaryIO, Iterator, Mapping, Optional
 
+from bitmend.errors import BitmendError
+
 #: exit status when the reader of the output went away: 128 + SIGPIPE, what a shell shows
 #: for a program killed by SIGPIPE
 EXIT_BROKEN_PIPE = 128 + signal.SIGPIPE
@@ -49,7 +51,7 @@ _FD_PATH = re.compile(r"^/(?:dev/fd|proc/self/fd|proc/thread-self/fd|proc/(\d+)/
 _STD_PATHS = {"/dev/stdin": 0, "/dev/stdout": 1, "/dev/stderr": 2}
 
 
-class OutputError(Exception):
+class OutputError(BitmendError):
     """An output could not be made or written; the message names the user's path."""
 
 
@@ -61,7 +63,7 @@ class BrokenOutput(OutputError):
         self.to_stdout = to_stdout
 
 
-class OutputConflict(Exception):
+class OutputConflict(BitmendError):
     """Two outputs of one command name the same file (a usage error)."""
 
 

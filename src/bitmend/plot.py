@@ -19,7 +19,7 @@ from bitmend.channel.spec import parse_channels, sweep_channels
 from bitmend.code_theory import bits_of, bsc_crossover, theory_for
 from bitmend.codes.base import BlockCode
 from bitmend.codes.catalog import code_names, get_code
-from bitmend.errors import BitmendError
+from bitmend.errors import BitmendError, SettingError
 from bitmend.simulate.results import SimulationResult, SweepResult
 
 FORMATS = (".png", ".svg")
@@ -39,7 +39,7 @@ def plotting_available() -> bool:
 def check_plot_path(path: str) -> None:
     """Refuse a file type we do not draw, before any work is done."""
     if Path(path).suffix.lower() not in FORMATS:
-        raise ValueError(f"plot file must end in {' or '.join(FORMATS)}, got {path!r}")
+        raise SettingError(f"plot file must end in {' or '.join(FORMATS)}, got {path!r}")
     if not plotting_available():
         raise PlotUnavailableError("plotting needs matplotlib: pip install 'bitmend[plot]'")
 

@@ -14,8 +14,8 @@ from typing import BinaryIO, Iterator
 from bitmend.container import format as fmt
 from bitmend.container.delivery import Delivered, Event, LostRun, Sequencer, StreamEnded
 from bitmend.container.reader import DecodedFrame, FrameScanner
-from bitmend.errors import ContainerError
-from bitmend.report import CLEAN, CORRECTED, DAMAGED, LOST, REBUILT, UNAUTHENTICATED, FrameReport, Summary
+from bitmend.errors import ContainerError, SettingError
+from bitmend.report import CLEAN, CORRECTED, DAMAGED, LOST, REBUILT, UNAUTHENTICATED, FrameReport, Summary, counted
 
 ON_ERROR_CHOICES = ("keep", "zero", "drop", "fail")
 MAX_LOST_LISTED = 100_000  # a gap wider than this is listed only up to this many frames
@@ -73,7 +73,7 @@ class Assembler:
         delivered only with accept_unauthenticated. Frames held back are reported with
         status 'unauthenticated' and count as missing for their stream."""
         if on_error not in ON_ERROR_CHOICES:
-            raise ValueError(f"on_error must be one of {', '.join(ON_ERROR_CHOICES)}, got {on_error!r}")
+            raise SettingError(f"on_error must be one of {', '.join(ON_ERROR_CHOICES)}, got {on_error!r}")
         self.on_error = on_error
         self.key = key
         self.accept_unauthenticated = accept_unauthenticated
@@ -220,10 +220,11 @@ class Assembler:
                     and d.foreign == 0 and d.late == 0 and c.unauthenticated == 0)
         notes = list(self._notes) + list(self.sequencer.notes)
         if self.keyed_without_key:
-            notes.insert(0, f"{self.keyed_without_key} keyed frames not delivered: no key to check their tags "
+            notes.insert(0, f"{counted(self.keyed_without_key, 'keyed frame')} not delivered: "
+                            "no key to check their tags "
                             "(give the key file, or accept unauthenticated frames explicitly)")
         if self.untagged_with_key:
-            notes.insert(0, f"{self.untagged_with_key} frames without a tag not delivered: a key was given "
+            notes.insert(0, f"{counted(self.untagged_with_key, 'frame')} without a tag not delivered: a key was given "
                             "(accept unauthenticated frames explicitly to take them)")
         notes += list(dict.fromkeys(self.scanner.stats.header_errors))[:10]
         units = {"bytes" if bits == 8 else "bits" for bits in self._symbol_bits} or {"bits"}

@@ -153,7 +153,7 @@ class FrameWriter:
         if self._pending:
             raise ValueError("records and a byte stream cannot be mixed in one frame writer")
         if len(record) > self._frame_bytes:
-            raise ValueError(f"a record of {len(record)} bytes does not fit a frame of {self._frame_bytes} bytes")
+            raise SettingError(f"a record of {len(record)} bytes does not fit a frame of {self._frame_bytes} bytes")
         self.bytes_in += len(record)
         self._emit(bytes(record), last=False)
         self._sink.flush()
