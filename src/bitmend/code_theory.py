@@ -30,7 +30,6 @@ import numpy as np
 from bitmend.analysis import limits, residual, theory
 from bitmend.channel.models import BSC, ByteSubstitution, ChannelModel, GilbertElliott
 from bitmend.codes.base import BlockCode
-from bitmend.codes.catalog import get_code
 from bitmend.container.format import CRC_BYTES, DEFAULT_FRAME_BYTES
 from bitmend.interleave import layout
 
@@ -40,11 +39,6 @@ SYMBOL_WRONG_BIT_SHARE = {1: 1.0, 8: 128 / 255}
 
 
 # ---- the code ------------------------------------------------------------------------------------
-
-def as_code(code: str | BlockCode) -> BlockCode:
-    """The code itself, or the catalog code of that name (`codes.catalog.get_code`)."""
-    return get_code(code) if isinstance(code, str) else code
-
 
 def code_weights(code: BlockCode, max_work: int | None = None) -> tuple[int, ...] | None:
     """A_0 .. A_n, the number of codewords of each weight (in symbols), or None when the

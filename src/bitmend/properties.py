@@ -14,9 +14,9 @@ from dataclasses import dataclass
 
 from bitmend.analysis import limits
 from bitmend.analysis.bounds import CodeBounds, code_bounds
-from bitmend.code_theory import BscPoint, as_code, block_error_on_bsc, bsc_point, code_weights, distance_to_limit
+from bitmend.code_theory import BscPoint, block_error_on_bsc, bsc_point, code_weights, distance_to_limit
 from bitmend.codes.base import BlockCode
-from bitmend.codes.catalog import code_names, entry, get_code
+from bitmend.codes.catalog import as_code, code_names, entry, get_code
 from bitmend.wording import counted
 
 #: bit flip probabilities of the table in `codes show`: a log grid, plus 1/2 (pure noise)

@@ -84,6 +84,12 @@ def code_names() -> list[str]:
     return [e.name for e in CATALOG]
 
 
+def as_code(code: str | BlockCode) -> BlockCode:
+    """The code itself, or the catalog code of that name: the one place a name-or-code
+    argument becomes a code."""
+    return get_code(code) if isinstance(code, str) else code
+
+
 @lru_cache(maxsize=None)
 def get_code(name: str) -> BlockCode:
     """The catalog code called name (built once, then cached)."""

@@ -13,8 +13,8 @@ import numpy as np
 from bitmend.analysis import repair_groups
 from bitmend.channel.models import BSC
 from bitmend.channel.spec import parse_channels
-from bitmend.code_theory import as_code
 from bitmend.codes.base import BlockCode
+from bitmend.codes.catalog import as_code
 from bitmend.planning.plan import Candidate, Plan, RepairVerification, Verification
 
 VERIFY_MIN_BITS = 1 << 17

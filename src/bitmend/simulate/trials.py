@@ -12,8 +12,9 @@ import numpy as np
 from bitmend.channel.chain import ChannelChain, fresh_seed
 from bitmend.channel.models import BSC, ChannelModel
 from bitmend.channel.spec import ChannelSpecError, parse_channels, parse_sweep, sweep_channels
-from bitmend.code_theory import as_code, theory_for
+from bitmend.code_theory import theory_for
 from bitmend.codes.base import BlockCode
+from bitmend.codes.catalog import as_code
 from bitmend.container.format import CRC_BYTES, DEFAULT_FRAME_BYTES, check_depth, check_frame_bytes, crc32c
 from bitmend.errors import SettingError
 from bitmend.interleave import SegmentLayout, decode_segment, encode_segment, layout
