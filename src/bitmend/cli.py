@@ -34,7 +34,7 @@ from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH, MAX_DEPTH
 from bitmend.container.format import DEFAULT_FRAME_BYTES, MAX_PAYLOAD_BYTES
 from bitmend.errors import BitmendError, CodeError, ContainerError, SettingError
 from bitmend.live import DEFAULT_MAX_DELAY
-from bitmend.report import counted
+from bitmend.wording import counted
 
 COPY_CHUNK = 1 << 20
 

@@ -25,6 +25,7 @@ from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH, get_code
 from bitmend.container import format as fmt
 from bitmend.container.reader import FrameScanner
 from bitmend.inject import inject_bytes
+from bitmend.wording import counted_with_commas
 
 SAMPLE_NAME = "gauge-telemetry.log"
 
@@ -70,10 +71,6 @@ def flips_in_payload(ledger: Ledger, spans: np.ndarray) -> tuple[int, int] | Non
 DEMO_REPAIR = "4/16"  # used when the demo's channel drops frames
 DEMO_REPAIR_FRAME_BYTES = 1024
 
-
-def _counted(value: int, noun: str) -> str:
-    """'1 bit', '1,024 bits': a count with thousands separators and a noun that agrees."""
-    return f"{value:,} {noun}{'' if value == 1 else 's'}"
 
 
 def _seqs(values: list[int]) -> str:
@@ -123,9 +120,9 @@ def run_demo(sample: str | None, flip_rate: float, seed: int, say: Callable[[str
     elapsed = time.perf_counter() - started
     say(f"decode     {summary.one_line().split(': ', 1)[1]}")
     failed = sum(f.failed_count or len(f.failed_blocks) for f in frames)
-    say(f"  report   {_counted(summary.corrected_symbols, 'bit')} corrected in "
-        f"{_counted(sum(f.corrected_blocks for f in frames), 'codeword')}, {_counted(failed, 'codeword')} "
-        f"uncorrectable, {_counted(summary.lost, 'frame')} lost")
+    say(f"  report   {counted_with_commas(summary.corrected_symbols, 'bit')} corrected in "
+        f"{counted_with_commas(sum(f.corrected_blocks for f in frames), 'codeword')}, {counted_with_commas(failed, 'codeword')} "
+        f"uncorrectable, {counted_with_commas(summary.lost, 'frame')} lost")
     if split is not None:
         agree = "equal" if split[0] == summary.corrected_symbols and not failed else "differ"
         say(f"compare    payload flips in the ledger ({split[0]:,}) and bits corrected in the report "
@@ -137,7 +134,7 @@ def run_demo(sample: str | None, flip_rate: float, seed: int, say: Callable[[str
         lost = [f.seq for f in frames if f.status == "lost"]
         rebuilt = [f.seq for f in frames if f.status == "rebuilt"]
         if repair:
-            say(f"  repair   {_counted(len(drops_made) - len(dropped), 'repair frame')} dropped; data frames "
+            say(f"  repair   {counted_with_commas(len(drops_made) - len(dropped), 'repair frame')} dropped; data frames "
                 f"rebuilt from repair frames: {_seqs(rebuilt)}")
         received = [f.seq for f in frames if f.status != "lost"]
         tail = "" if summary.end_seen else "; the end of the stream is missing" + (
@@ -147,8 +144,8 @@ def run_demo(sample: str | None, flip_rate: float, seed: int, say: Callable[[str
     fixed = [f for f in frames if f.status == "corrected"]
     if fixed:
         worst = max(fixed, key=lambda f: f.corrected_symbols)
-        say(f"           e.g. frame {worst.seq} at byte {worst.offset}: {_counted(worst.corrected_symbols, 'bit')} "
-            f"corrected in {worst.corrected_blocks} of {_counted(worst.blocks, 'codeword')}")
+        say(f"           e.g. frame {worst.seq} at byte {worst.offset}: {counted_with_commas(worst.corrected_symbols, 'bit')} "
+            f"corrected in {worst.corrected_blocks} of {counted_with_commas(worst.blocks, 'codeword')}")
     same = recovered == data
     digest = hashlib.sha256(recovered).hexdigest()[:16]
     say(f"verify     sha256 {digest}… {'identical to the input' if same else 'DIFFERS from the input'} "

@@ -5,6 +5,8 @@ from __future__ import annotations
 import json
 from dataclasses import asdict, dataclass, field
 
+from bitmend.wording import counted
+
 CLEAN, CORRECTED, DAMAGED, LOST, REBUILT = "clean", "corrected", "damaged", "lost", "rebuilt"
 UNAUTHENTICATED = "unauthenticated"  # a frame held back by the key rules: never delivered
 
@@ -101,11 +103,6 @@ class Summary:
         if not self.end_seen:
             parts.append("end of stream missing")
         return f"bitmend decode: {verdict}: " + ", ".join(parts)
-
-
-def counted(value: int, noun: str, plural: str | None = None) -> str:
-    """'1 frame', '2 frames': a count and its noun, which agree (plural: an irregular plural)."""
-    return f"{value} {noun if value == 1 else plural or noun + 's'}"
 
 
 @dataclass

@@ -8,3 +8,8 @@ def counted(count: int, noun: str, plural: str | None = None, spec: str = "") ->
     spec formats the number (e.g. "," for thousands separators)."""
     word = noun if count == 1 else (plural or noun + "s")
     return f"{count:{spec}} {word}"
+
+
+def counted_with_commas(count: int, noun: str) -> str:
+    """'1 bit', '1,024 bits': counted() with thousands separators (for ledgers and reports)."""
+    return counted(count, noun, spec=",")

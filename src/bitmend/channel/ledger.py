@@ -18,6 +18,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from bitmend.wording import counted_with_commas
+
 POSITION_LIMIT = 10_000  # events per list whose positions are kept; the counts are always exact
 
 #: (ledger total, stage counter) pairs summed over the stages
@@ -113,20 +115,15 @@ class Ledger:
 
     def one_line(self) -> str:
         """A short human summary: only what happened."""
-        parts = [_counted(self.bits_seen, "bit") + " seen"]
+        parts = [counted_with_commas(self.bits_seen, "bit") + " seen"]
         for noun, verb, value in (("bit", "flipped", self.bits_flipped), ("byte", "substituted", self.bytes_substituted),
                                   ("frame", "dropped", self.frames_dropped),
                                   ("bit", "inserted", self.total("bits_inserted")),
                                   ("bit", "deleted", self.total("bits_deleted"))):
             if value:
-                parts.append(f"{_counted(value, noun)} {verb}")
+                parts.append(f"{counted_with_commas(value, noun)} {verb}")
         if self.total("frames_seen") and not self.frames_dropped:
             parts.append("no frame dropped")
         if len(parts) == 1:
             parts.append("nothing changed")
         return ", ".join(parts)
-
-
-def _counted(value: int, noun: str) -> str:
-    """'1 bit', '1,024 bits': a count with thousands separators and a noun that agrees."""
-    return f"{value:,} {noun}{'' if value == 1 else 's'}"

@@ -15,7 +15,8 @@ from bitmend.container import format as fmt
 from bitmend.container.delivery import Delivered, Event, LostRun, Sequencer, StreamEnded
 from bitmend.container.reader import DecodedFrame, FrameScanner
 from bitmend.errors import ContainerError, SettingError
-from bitmend.report import CLEAN, CORRECTED, DAMAGED, LOST, REBUILT, UNAUTHENTICATED, FrameReport, Summary, counted
+from bitmend.report import CLEAN, CORRECTED, DAMAGED, LOST, REBUILT, UNAUTHENTICATED, FrameReport, Summary
+from bitmend.wording import counted
 
 ON_ERROR_CHOICES = ("keep", "zero", "drop", "fail")
 MAX_LOST_LISTED = 100_000  # a gap wider than this is listed only up to this many frames

@@ -19,7 +19,7 @@ from typing import BinaryIO, Iterator
 from bitmend.codes.catalog import CATALOG
 from bitmend.container.assembler import NotAContainerError
 from bitmend.container.reader import FrameScanner
-from bitmend.report import counted
+from bitmend.wording import counted
 
 _CATALOG_NAMES = {entry.code_id: entry.name for entry in CATALOG}
 
