@@ -469,6 +469,33 @@ _MODES = {"rb": (False, False), "r": (False, False), "rt": (False, True),
           "wb": (True, False), "w": (True, False), "wt": (True, True)}
 
 
+def _checked_mode(mode: str, **arguments: object) -> tuple[bool, bool]:
+    """(writing, text) for an open() mode, after refusing every argument given (not None)
+    that the mode does not take: ValueError naming the argument and the mode."""
+    if mode not in _MODES:
+        raise ValueError(f"mode must be 'rb', 'wb', 'rt' or 'wt', got {mode!r}")
+    writing, text = _MODES[mode]
+    given = {name for name, value in arguments.items() if value is not None}
+    other_direction = [name for name in (_READ_ONLY if writing else _WRITE_ONLY) if name in given]
+    if other_direction:
+        raise ValueError(f"{other_direction[0]}= applies to {'reading' if writing else 'writing'} only, "
+                         f"not to mode {mode!r}")
+    text_only = [name for name in _TEXT_ONLY if name in given and not text]
+    if text_only:
+        raise ValueError(f"{text_only[0]}= applies to text modes ('rt', 'wt') only, not to mode {mode!r}")
+    return writing, text
+
+
+def _binary_file(file: PathOrFile, writing: bool) -> tuple[BinaryIO, bool]:
+    """(the binary file object to use, whether open() opened it and so must close it)."""
+    if isinstance(file, (str, bytes, os.PathLike)):
+        return io.open(file, "wb" if writing else "rb"), True
+    if hasattr(file, "write" if writing else "read"):
+        return file, False
+    raise TypeError(f"file must be a path or a binary file object open for "
+                    f"{'writing' if writing else 'reading'}, got {type(file).__name__}")
+
+
 def open(file: PathOrFile, mode: str = "rb", *, code: CodeChoice | None = None, depth: int | None = None,
          frame_bytes: int | None = None, stream_id: int | None = None,
          repair: str | tuple[int, int] | None = None, key: bytes | None = None, on_error: str | None = None,
@@ -485,22 +512,9 @@ def open(file: PathOrFile, mode: str = "rb", *, code: CodeChoice | None = None, 
     to text modes only, as for io.TextIOWrapper. An argument of the other direction is
     refused (ValueError) rather than ignored, and every value is checked before a file is
     opened: UnknownCodeError, SettingError, RepairSpecError."""
-    if mode not in _MODES:
-        raise ValueError(f"mode must be 'rb', 'wb', 'rt' or 'wt', got {mode!r}")
-    writing, text = _MODES[mode]
-    given = {name for name, value in (("code", code), ("depth", depth), ("frame_bytes", frame_bytes),
-                                      ("stream_id", stream_id), ("repair", repair), ("on_error", on_error),
-                                      ("accept_unauthenticated", accept_unauthenticated),
-                                      ("encoding", encoding), ("errors", errors), ("newline", newline))
-             if value is not None}
-    for name in (_READ_ONLY if writing else _WRITE_ONLY):
-        if name in given:
-            raise ValueError(f"{name}= applies to {'reading' if writing else 'writing'} only, "
-                             f"not to mode {mode!r}")
-    if not text:
-        for name in _TEXT_ONLY:
-            if name in given:
-                raise ValueError(f"{name}= applies to text modes ('rt', 'wt') only, not to mode {mode!r}")
+    writing, text = _checked_mode(mode, code=code, depth=depth, frame_bytes=frame_bytes, stream_id=stream_id,
+                                  repair=repair, on_error=on_error, accept_unauthenticated=accept_unauthenticated,
+                                  encoding=encoding, errors=errors, newline=newline)
     code = DEFAULT_CODE if code is None else code
     depth = DEFAULT_DEPTH if depth is None else depth
     frame_bytes = DEFAULT_FRAME_BYTES if frame_bytes is None else frame_bytes
@@ -510,14 +524,7 @@ def open(file: PathOrFile, mode: str = "rb", *, code: CodeChoice | None = None, 
     else:
         _check_on_error(on_error)
     _checked_key(key)
-    if isinstance(file, (str, bytes, os.PathLike)):
-        fileobj = io.open(file, "wb" if writing else "rb")
-        owned = True
-    elif hasattr(file, "write" if writing else "read"):
-        fileobj, owned = file, False
-    else:
-        raise TypeError(f"file must be a path or a binary file object open for "
-                        f"{'writing' if writing else 'reading'}, got {type(file).__name__}")
+    fileobj, owned = _binary_file(file, writing)
     try:
         if writing:
             binary: Encoder | Decoder = Encoder(fileobj, code, depth, frame_bytes, close_fileobj=owned,
