@@ -23,13 +23,14 @@ from bitmend.codes.base import BlockCode
 from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH, code_id
 from bitmend.codes.custom import MAX_DEFINITION_CHARS, parse_code_definition
 from bitmend.codes.linear import BinaryLinearCode, CodeDefinitionError
-from bitmend.container.assembler import ON_ERROR_CHOICES, Assembler, DamagedDataError, NotAContainerError
+from bitmend.container.assembler import (ON_ERROR_CHOICES, Assembler, AssemblerReadings, DamagedDataError,
+                                        NotAContainerError)
 from bitmend.container.format import DEFAULT_FRAME_BYTES, check_depth, check_frame_bytes
 from bitmend.container.repair import parse_repair
 from bitmend.container.writer import FrameWriter
 from bitmend.errors import SettingError
 from bitmend.keyfile import MIN_KEY_BYTES, KeyFileError, load_key_file
-from bitmend.report import DecodeReport, FrameReport, Summary
+from bitmend.report import DecodeReport, FrameReport
 
 __all__ = ["open", "Encoder", "Decoder", "encode_bytes", "decode_bytes", "Decoded", "load_code_file",
            "load_key_file", "KeyFileError", "NotAContainerError", "DamagedDataError"]
@@ -306,7 +307,7 @@ class _PlainData(io.RawIOBase):
         return data
 
 
-class Decoder(io.BufferedIOBase):
+class Decoder(AssemblerReadings, io.BufferedIOBase):
     """Readable binary file object over a container; .report holds what was found.
 
     on_error: 'keep' delivers damaged frames' bytes as corrected as far as possible,
@@ -427,26 +428,6 @@ class Decoder(io.BufferedIOBase):
     def report(self) -> DecodeReport:
         """Frame reports so far and the summary (final once the stream is read to the end)."""
         return DecodeReport(list(self._frame_reports), self._assembler.summary())
-
-    @property
-    def summary(self) -> Summary:
-        """What the stream held so far (final once it is read to the end)."""
-        return self._assembler.summary()
-
-    @property
-    def keyed_without_key(self) -> int:
-        """Frames held back because they carry a tag and no key was given to check it."""
-        return self._assembler.keyed_without_key
-
-    @property
-    def untagged_with_key(self) -> int:
-        """Frames held back because they carry no tag while a key was given."""
-        return self._assembler.untagged_with_key
-
-    @property
-    def bytes_read(self) -> int:
-        """Container bytes consumed from the source so far."""
-        return self._assembler.scanner.bytes_read
 
     def close(self) -> None:
         if self.closed:

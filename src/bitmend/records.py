@@ -22,12 +22,12 @@ import time
 from typing import BinaryIO, Callable, Iterable, Iterator
 
 from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH
-from bitmend.container.assembler import Assembler, DamagedDataError
+from bitmend.container.assembler import Assembler, AssemblerReadings, DamagedDataError
 from bitmend.container.format import DEFAULT_FRAME_BYTES, MAX_PAYLOAD_BYTES
 from bitmend.container.reader import FrameScanner, ScanStats
 from bitmend.container.writer import FrameWriter
 from bitmend.errors import SettingError
-from bitmend.report import CLEAN, CORRECTED, DAMAGED, REBUILT, DecodeReport, FrameReport, Summary
+from bitmend.report import CLEAN, CORRECTED, DAMAGED, REBUILT, DecodeReport, FrameReport
 
 FRAMINGS = ("line", "u16", "u32")
 RECORD_ON_ERROR = ("drop", "keep", "fail")  # zero-filling a record would invent one
@@ -170,7 +170,7 @@ class BlobScanner:
                 self._on_blob(len(blob))
 
 
-class RecordReader:
+class RecordReader(AssemblerReadings):
     """Iterate the verified records of a stream of frames, in order, each once.
 
     on_error: 'drop' (default) leaves damaged records out, 'keep' delivers them as
@@ -210,27 +210,8 @@ class RecordReader:
                 yield report.seq, data, report
 
     @property
-    def summary(self) -> Summary:
-        """What the stream held so far (final once it is read to the end)."""
-        return self._assembler.summary()
-
-    @property
-    def keyed_without_key(self) -> int:
-        """Frames held back because they carry a tag and no key was given to check it."""
-        return self._assembler.keyed_without_key
-
-    @property
-    def untagged_with_key(self) -> int:
-        """Frames held back because they carry no tag while a key was given."""
-        return self._assembler.untagged_with_key
-
-    @property
     def report(self) -> DecodeReport:
         return DecodeReport(list(self.frames), self.summary)
-
-    @property
-    def bytes_read(self) -> int:
-        return self._assembler.scanner.bytes_read
 
 
 def record_assembler(source, on_error: str, key: bytes | None = None, accept_unauthenticated: bool = False) -> Assembler:

@@ -236,3 +236,30 @@ class Assembler:
                        duplicates=d.duplicates, foreign=d.foreign, reordered=d.reordered, late=d.late,
                        streams=d.streams, rebuilt=c.rebuilt, repair_frames=d.repair_frames,
                        unauthenticated=c.unauthenticated)
+
+
+class AssemblerReadings:
+    """What a reader built on an Assembler (the API's Decoder, the RecordReader) tells its
+    user about the stream so far; the reader keeps the assembler as self._assembler."""
+
+    _assembler: Assembler
+
+    @property
+    def summary(self) -> Summary:
+        """What the stream held so far (final once it is read to the end)."""
+        return self._assembler.summary()
+
+    @property
+    def keyed_without_key(self) -> int:
+        """Frames held back because they carry a tag and no key was given to check it."""
+        return self._assembler.keyed_without_key
+
+    @property
+    def untagged_with_key(self) -> int:
+        """Frames held back because they carry no tag while a key was given."""
+        return self._assembler.untagged_with_key
+
+    @property
+    def bytes_read(self) -> int:
+        """Container bytes consumed from the source so far."""
+        return self._assembler.scanner.bytes_read
