@@ -26,6 +26,7 @@ from bitmend.codes.linear import BinaryLinearCode, CodeDefinitionError
 from bitmend.container.assembler import ON_ERROR_CHOICES, Assembler, DamagedDataError, NotAContainerError
 from bitmend.container.format import DEFAULT_FRAME_BYTES, check_depth, check_frame_bytes
 from bitmend.container.repair import parse_repair
+from bitmend.container.workers import resolve_jobs
 from bitmend.container.writer import FrameWriter
 from bitmend.errors import SettingError
 from bitmend.keyfile import MIN_KEY_BYTES, KeyFileError, load_key_file
@@ -105,14 +106,18 @@ class Encoder(io.BufferedIOBase):
     def __init__(self, fileobj: BinaryIO, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
                  frame_bytes: int = DEFAULT_FRAME_BYTES, close_fileobj: bool = False,
                  stream_id: int | None = None, repair: str | tuple[int, int] | None = None,
-                 key: bytes | None = None) -> None:
-        """repair: 'R/K' (or (R, K)): R repair frames after every K data frames, so that any
+                 key: bytes | None = None, jobs: int = 1) -> None:
+        """jobs: worker processes that code the frames (0: one per core; 1, the default: all
+        in this process); the container is the same byte for byte for any number, and frames
+        leave in batches when it is above 1.
+        repair: 'R/K' (or (R, K)): R repair frames after every K data frames, so that any
         R frames of a group lost or damaged are rebuilt (docs/FORMAT.md, "Repair frames").
         key: a shared secret of at least 16 bytes; every frame then carries a tag under it,
         and a decoder with the same key delivers only frames whose tag matches."""
         super().__init__()
         _check_write_settings(code, depth, frame_bytes, repair)
-        self._writer = FrameWriter(fileobj, code, depth, frame_bytes, stream_id, repair, _checked_key(key))
+        self._writer = FrameWriter(fileobj, code, depth, frame_bytes, stream_id, repair, _checked_key(key),
+                                   resolve_jobs(jobs))
         self._fileobj = fileobj
         self._close_fileobj = close_fileobj
         self._name = _name_of(fileobj)
@@ -215,9 +220,11 @@ class Encoder(io.BufferedIOBase):
         ended early, never one that looks whole."""
         if self.closed:
             return
-        if self._writer is not None:
-            self._writer.closed = True
-        self.close()
+        try:
+            if self._writer is not None:
+                self._writer.abandon()
+        finally:
+            self.close()
 
     def __exit__(self, exc_type, exc, tb) -> None:
         if exc_type is not None:
@@ -544,12 +551,13 @@ class Decoded:
 
 def encode_bytes(data: bytes, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
                  frame_bytes: int = DEFAULT_FRAME_BYTES, stream_id: int | None = None,
-                 repair: str | tuple[int, int] | None = None, key: bytes | None = None) -> bytes:
-    """The container for data (one-shot); code is a catalog name or a code object;
+                 repair: str | tuple[int, int] | None = None, key: bytes | None = None, jobs: int = 1) -> bytes:
+    """The container for data (one-shot); code is a catalog name or a code object; jobs as
+    for Encoder;
     stream_id is drawn at random unless given (give one only to make output reproducible);
     repair 'R/K' adds R repair frames after every K data frames."""
     sink = io.BytesIO()
-    with Encoder(sink, code, depth, frame_bytes, stream_id=stream_id, repair=repair, key=key) as enc:
+    with Encoder(sink, code, depth, frame_bytes, stream_id=stream_id, repair=repair, key=key, jobs=jobs) as enc:
         enc.write(data)
     return sink.getvalue()
 

@@ -44,7 +44,10 @@ class FrameWriter:
 
     def __init__(self, sink: BinaryIO, code: str | BlockCode, depth: int,
                  frame_bytes: int = fmt.DEFAULT_FRAME_BYTES, stream_id: int | None = None,
-                 repair: tuple[int, int] | str | None = None, key: bytes | None = None) -> None:
+                 repair: tuple[int, int] | str | None = None, key: bytes | None = None, jobs: int = 1) -> None:
+        """jobs: worker processes that code the frames (1: all in this process). The bytes
+        written are the same for any number; with more than one, frames leave in batches
+        (flush() waits for every frame queued; container/batch_encode.py)."""
         fmt.check_depth(depth)
         fmt.check_frame_bytes(frame_bytes)
         self._sink = sink
@@ -73,8 +76,18 @@ class FrameWriter:
         self._group = GroupBuilder(*spec) if spec else None
         self.repair_frames = 0
         self.bytes_in = 0
-        self.bytes_out = 0
+        self._bytes_written = 0  # by this process (one job, or frames too big for a batch)
         self.closed = False
+        self._batches = None
+        if jobs > 1:
+            from bitmend.container.batch_encode import BatchEncoder
+
+            self._batches = BatchEncoder(sink, jobs, key, self._defined_code)
+
+    @property
+    def bytes_out(self) -> int:
+        """Container bytes written to the sink so far."""
+        return self._bytes_written + (self._batches.bytes_out if self._batches is not None else 0)
 
     def _header(self, length: int, last: bool) -> fmt.FrameHeader:
         """The header of the next data frame (the writer's code, depth, stream and flags)."""
@@ -96,9 +109,12 @@ class FrameWriter:
             self.end_group()
 
     def _send(self, header: fmt.FrameHeader, payload: bytes) -> None:
+        if self._batches is not None:
+            self._batches.send(header, payload)
+            return
         frame = fmt.encode_frame(header, payload, self._key)
         self._sink.write(frame)
-        self.bytes_out += len(frame)
+        self._bytes_written += len(frame)
 
     @property
     def group_open(self) -> bool:
@@ -135,6 +151,8 @@ class FrameWriter:
 
     def flush_sink(self) -> None:
         """Push frames already made out of the sink's buffer, without cutting a frame."""
+        if self._batches is not None:
+            self._batches.write_finished()
         self._sink.flush()
 
     def flush(self) -> None:
@@ -142,6 +160,8 @@ class FrameWriter:
         if self._pending:
             self._emit(bytes(self._pending), last=False)
             self._pending.clear()
+        if self._batches is not None:
+            self._batches.drain()
         self._sink.flush()
 
     def send_record(self, record: bytes) -> None:
@@ -156,13 +176,38 @@ class FrameWriter:
             raise SettingError(f"a record of {len(record)} bytes does not fit a frame of {self._frame_bytes} bytes")
         self.bytes_in += len(record)
         self._emit(bytes(record), last=False)
-        self._sink.flush()
+        self.flush_sink()
 
     def close(self) -> None:
-        """Send the closing frame (the held data, possibly empty)."""
+        """Send the closing frame (the held data, possibly empty). After abandon(), only
+        writes the frames already queued and stops the workers."""
+        if self.closed:
+            self._stop_workers()
+            return
+        try:
+            self._emit(bytes(self._pending), last=True)
+            self._pending.clear()
+            self.closed = True
+            if self._batches is not None:
+                self._batches.drain()
+        finally:
+            self._stop_workers()
+        self._sink.flush()
+
+    def abandon(self) -> None:
+        """End without the closing frame (after a failure): frames queued so far are still
+        written, as with one job; a reader sees a stream that ended early."""
         if self.closed:
             return
-        self._emit(bytes(self._pending), last=True)
-        self._pending.clear()
         self.closed = True
-        self._sink.flush()
+        try:
+            if self._batches is not None:
+                self._batches.drain()
+        finally:
+            self._stop_workers()
+
+    def _stop_workers(self) -> None:
+        batches, self._batches = self._batches, None
+        if batches is not None:
+            self._bytes_written += batches.bytes_out
+            batches.close()
