@@ -328,20 +328,23 @@ class Decoder(io.BufferedIOBase):
     """
 
     _buffer: io.BufferedReader | None = None  # None only while __init__ has not finished
+    _assembler: Assembler | None = None
     _fileobj: BinaryIO | None = None
     _close_fileobj = False
 
     def __init__(self, fileobj: BinaryIO, on_error: str = "keep", keep_frame_reports: bool = True,
                  on_frame: Callable[[FrameReport], None] | None = None, close_fileobj: bool = False,
-                 key: bytes | None = None, accept_unauthenticated: bool = False) -> None:
-        """key: the shared key of keyed frames (only frames whose tag matches are delivered);
+                 key: bytes | None = None, accept_unauthenticated: bool = False, jobs: int = 1) -> None:
+        """jobs: worker processes that decode the frames' payloads (0: one per core; 1, the
+        default: all in this process); data, reports and errors are the same for any number.
+        key: the shared key of keyed frames (only frames whose tag matches are delivered);
         accept_unauthenticated: also deliver frames whose origin cannot be checked (no tag
         while a key is given, or tags but no key). A tag that does not match is never
         accepted."""
         super().__init__()
         _check_on_error(on_error)
         self._assembler = Assembler(fileobj, on_error, key=_checked_key(key),
-                                    accept_unauthenticated=accept_unauthenticated)
+                                    accept_unauthenticated=accept_unauthenticated, jobs=resolve_jobs(jobs))
         self._frame_reports: list[FrameReport] = []
         self._keep = keep_frame_reports
         self._on_frame = on_frame
@@ -461,6 +464,8 @@ class Decoder(io.BufferedIOBase):
         try:
             if self._buffer is not None:
                 self._buffer.close()
+            if self._assembler is not None:
+                self._assembler.close()
         finally:
             try:
                 super().close()
@@ -563,10 +568,11 @@ def encode_bytes(data: bytes, code: CodeChoice = DEFAULT_CODE, depth: int = DEFA
 
 
 def decode_bytes(container: bytes, on_error: str = "keep", key: bytes | None = None,
-                 accept_unauthenticated: bool = False) -> Decoded:
+                 accept_unauthenticated: bool = False, jobs: int = 1) -> Decoded:
     """Decode a whole container held in memory; raises NotAContainerError if no frame is
     found and, with on_error='fail', DamagedDataError at the first damaged or lost frame.
-    key and accept_unauthenticated as for Decoder."""
-    with Decoder(io.BytesIO(container), on_error, key=key, accept_unauthenticated=accept_unauthenticated) as dec:
+    key, accept_unauthenticated and jobs as for Decoder."""
+    with Decoder(io.BytesIO(container), on_error, key=key, accept_unauthenticated=accept_unauthenticated,
+                 jobs=jobs) as dec:
         data = dec.read()
         return Decoded(data, dec.report)

@@ -10,12 +10,11 @@ from __future__ import annotations
 
 import io
 from collections import deque
-from concurrent.futures import Future
 from dataclasses import dataclass, field, replace
 from typing import BinaryIO
 
 from bitmend.container import format as fmt
-from bitmend.container.workers import SLOT_INPUT_BYTES, SLOT_OUTPUT_BYTES, SlotPool, shared_views
+from bitmend.container.workers import SLOT_INPUT_BYTES, SLOT_OUTPUT_BYTES, SlotPool, Task, shared_views
 
 # sinks that copy (or write out) what they are given before write() returns, so a slot's
 # memory can be handed to them directly and reused afterwards
@@ -54,7 +53,7 @@ class _Batch:
     headers: list[fmt.FrameHeader] = field(default_factory=list)
     input_bytes: int = 0
     output_bytes: int = 0
-    future: Future | None = None
+    task: Task | None = None
 
 
 class BatchEncoder:
@@ -109,7 +108,7 @@ class BatchEncoder:
         """Send the open batch to the workers."""
         batch, self._open = self._open, None
         if batch is not None:
-            batch.future = self._pool.submit(_encode_batch, batch.slot, batch.headers)
+            batch.task = self._pool.submit(_encode_batch, batch.slot, batch.headers)
             self._queue.append(batch)
 
     def _write_head(self) -> None:
@@ -118,7 +117,7 @@ class BatchEncoder:
         if isinstance(item, bytes):
             self._write(item)
             return
-        sizes = item.future.result()
+        sizes = item.task.result()
         view = self._pool.output_view(item.slot)
         start = 0
         for size in sizes:  # one write per frame, as with one job (a datagram sink sends each alone)
@@ -132,7 +131,7 @@ class BatchEncoder:
         self.bytes_out += len(frame)
 
     def _write_ready(self, wait: bool) -> None:
-        while self._queue and (wait or isinstance(self._queue[0], bytes) or self._queue[0].future.done()):
+        while self._queue and (wait or isinstance(self._queue[0], bytes) or self._queue[0].task.done()):
             self._write_head()
 
     def drain(self) -> None:

@@ -23,8 +23,8 @@ import itertools
 import mmap
 import multiprocessing
 import os
+import signal
 from collections import deque
-from concurrent.futures import Future, ProcessPoolExecutor
 from typing import Any, Callable
 
 SLOT_INPUT_BYTES = 1 << 20  # input of one batch (payloads to encode, or coded payloads to decode)
@@ -69,16 +69,100 @@ def shared_views(token: int, slot: int) -> tuple[memoryview, memoryview, Any]:
             memoryview(outputs)[slot * SLOT_OUTPUT_BYTES: (slot + 1) * SLOT_OUTPUT_BYTES], context)
 
 
-def _ready() -> None:
-    """A no-op task: makes the pool fork its workers now, while the shared mappings exist."""
+class WorkerStoppedError(RuntimeError):
+    """A worker process ended without answering (killed, or out of memory)."""
+
+
+def _serve(token: int, conn) -> None:
+    """A worker's loop: (fn, slot, args) in, ("ok", result) or ("error", exception) out, in
+    order; None or a closed pipe ends it. Ctrl-C goes to the parent alone: it stops the run."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
+    while True:
+        try:
+            task = conn.recv()
+        except (EOFError, OSError):
+            return
+        if task is None:
+            return
+        fn, slot, args = task
+        try:
+            answer = ("ok", fn(token, slot, *args))
+        except Exception as exc:  # sent back and raised in the parent
+            answer = ("error", exc)
+        conn.send(answer)
+
+
+class Task:
+    """A task sent to one worker; each worker answers its tasks in the order sent."""
+
+    def __init__(self, worker: "_Worker") -> None:
+        self._worker = worker
+        self._answered = False
+        self._answer: Any = None
+
+    def _take(self, answer: Any) -> None:
+        self._answered, self._answer = True, answer
+
+    def done(self) -> bool:
+        """True once the answer is here (takes answers that have arrived, without waiting)."""
+        while not self._answered and self._worker.poll():
+            self._worker.receive()
+        return self._answered
+
+    def result(self) -> Any:
+        while not self._answered:
+            self._worker.receive()
+        kind, value = self._answer
+        if kind == "error":
+            raise value
+        return value
+
+
+class _Worker:
+    def __init__(self, token: int, context) -> None:
+        self.conn, child = context.Pipe()
+        self.process = context.Process(target=_serve, args=(token, child), daemon=True)
+        self.process.start()
+        child.close()
+        self.waiting: deque[Task] = deque()
+
+    def send(self, fn: Callable[..., Any], slot: int, args: tuple) -> Task:
+        task = Task(self)
+        self.conn.send((fn, slot, args))
+        self.waiting.append(task)
+        return task
+
+    def poll(self) -> bool:
+        return bool(self.waiting) and self.conn.poll()
+
+    def receive(self) -> None:
+        try:
+            answer = self.conn.recv()
+        except (EOFError, OSError):
+            raise WorkerStoppedError("a worker process stopped without finishing its frames") from None
+        self.waiting.popleft()._take(answer)
+
+    def stop(self) -> None:
+        try:
+            self.conn.send(None)
+        except OSError:
+            pass
+        self.process.join(timeout=5)
+        if self.process.is_alive():
+            self.process.terminate()
+            self.process.join()
+        self.conn.close()
 
 
 class SlotPool:
     """`jobs` forked workers and SLOTS_PER_JOB * jobs shared slots; tasks are module-level
-    functions called as fn(token, slot, *args) in a worker.
+    functions called as fn(token, slot, *args) in a worker, sent to the workers in turn.
 
-    context: read-only data the workers need (a code, a key), inherited at fork rather than
-    sent with every task."""
+    No helper threads: a task is one message down a pipe and one answer back (the
+    standard library's process pool runs two threads in the parent, which took the GIL
+    from the thread doing the real work for milliseconds at a time). context: read-only
+    data the workers need (a code, a key), inherited at fork rather than sent with every task."""
 
     def __init__(self, jobs: int, context: Any = None) -> None:
         self.jobs = jobs
@@ -88,10 +172,12 @@ class SlotPool:
         self.token = next(_tokens)
         _SHARED[self.token] = (self._inputs, self._outputs, context)
         self._free: deque[int] = deque(range(self.slots))
-        self._executor = ProcessPoolExecutor(jobs, mp_context=multiprocessing.get_context("fork"))
+        self._turn = itertools.cycle(range(jobs))
+        self._workers: list[_Worker] = []
         try:
+            fork = multiprocessing.get_context("fork")
             for _ in range(jobs):
-                self._executor.submit(_ready)  # the workers are forked here, with _SHARED as it is now
+                self._workers.append(_Worker(self.token, fork))
         except BaseException:
             self.close()
             raise
@@ -112,12 +198,12 @@ class SlotPool:
     def output_view(self, slot: int) -> memoryview:
         return memoryview(self._outputs)[slot * SLOT_OUTPUT_BYTES: (slot + 1) * SLOT_OUTPUT_BYTES]
 
-    def submit(self, fn: Callable[..., Any], slot: int, *args: Any) -> Future:
-        return self._executor.submit(fn, self.token, slot, *args)
+    def submit(self, fn: Callable[..., Any], slot: int, *args: Any) -> Task:
+        return self._workers[next(self._turn)].send(fn, slot, args)
 
     def close(self) -> None:
-        """Stop the workers (waiting for tasks already sent) and free the mappings."""
-        executor, self._executor = getattr(self, "_executor", None), None
-        if executor is not None:
-            executor.shutdown(wait=True, cancel_futures=True)
+        """Stop the workers (they finish the task in hand) and forget the mappings."""
+        workers, self._workers = self._workers, []
+        for worker in workers:
+            worker.stop()
         _SHARED.pop(self.token, None)
