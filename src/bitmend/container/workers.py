@@ -49,6 +49,18 @@ def cpu_count() -> int:
         return os.cpu_count() or 1
 
 
+AUTOMATIC_MIN_BYTES = 16 << 20  # inputs this large get one job per core when jobs are automatic
+
+
+def automatic_jobs(input_bytes: int | None) -> int:
+    """Jobs chosen for `--jobs 0`: one per core for an input of known size of at least
+    AUTOMATIC_MIN_BYTES (starting workers costs ~10 ms, and batches add latency a live
+    pipe should not have), else 1 (a pipe, or a small file)."""
+    if input_bytes is None or input_bytes < AUTOMATIC_MIN_BYTES or not available():
+        return 1
+    return cpu_count()
+
+
 def resolve_jobs(jobs: int) -> int:
     """Worker processes for a `jobs` setting: 0 means one per core; 1 codes in this process.
     SettingError below 0; 1 wherever workers cannot be forked."""
