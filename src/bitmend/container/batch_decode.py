@@ -17,7 +17,7 @@ import numpy as np
 
 from bitmend.container import format as fmt
 from bitmend.container.reader import DecodedFrame, decode_payload
-from bitmend.container.workers import SLOT_INPUT_BYTES, SLOT_OUTPUT_BYTES, SlotPool, Task, shared_views
+from bitmend.container.workers import SlotPool, Task, shared_views
 from bitmend.kernels.status import FAILED
 
 # a frame's results in the output region: its payload, then one status byte per block;
@@ -86,11 +86,11 @@ class BatchDecoder:
         a slot."""
         header = frame.header
         need_out = header.length + BLOCKS_PER_CODED_BYTE * len(coded)
-        if len(coded) > SLOT_INPUT_BYTES or need_out > SLOT_OUTPUT_BYTES:
+        if len(coded) > self._pool.input_bytes or need_out > self._pool.output_bytes:
             return False
         batch = self._open
-        if batch is not None and (batch.input_bytes + len(coded) > SLOT_INPUT_BYTES
-                                  or batch.output_bytes + need_out > SLOT_OUTPUT_BYTES):
+        if batch is not None and (batch.input_bytes + len(coded) > self._pool.input_bytes
+                                  or batch.output_bytes + need_out > self._pool.output_bytes):
             self._dispatch()
             batch = None
         if batch is None:

@@ -14,7 +14,7 @@ from dataclasses import dataclass, field, replace
 from typing import BinaryIO
 
 from bitmend.container import format as fmt
-from bitmend.container.workers import SLOT_INPUT_BYTES, SLOT_OUTPUT_BYTES, SlotPool, Task, shared_views
+from bitmend.container.workers import SlotPool, Task, shared_views
 
 # sinks that copy (or write out) what they are given before write() returns, so a slot's
 # memory can be handed to them directly and reused afterwards
@@ -81,14 +81,14 @@ class BatchEncoder:
     def send(self, header: fmt.FrameHeader, payload: bytes) -> None:
         """Queue one frame; writes those finished before it without waiting."""
         size = self._frame_size(header)
-        if len(payload) > SLOT_INPUT_BYTES or size > SLOT_OUTPUT_BYTES:
+        if len(payload) > self._pool.input_bytes or size > self._pool.output_bytes:
             self._dispatch()  # too big for a slot: coded here, still in its place
             self._queue.append(fmt.encode_frame(header, payload, self._key))
             self._write_ready(wait=False)
             return
         batch = self._open
-        if batch is not None and (batch.input_bytes + len(payload) > SLOT_INPUT_BYTES
-                                  or batch.output_bytes + size > SLOT_OUTPUT_BYTES):
+        if batch is not None and (batch.input_bytes + len(payload) > self._pool.input_bytes
+                                  or batch.output_bytes + size > self._pool.output_bytes):
             self._dispatch()
             batch = None
         if batch is None:

@@ -6,8 +6,9 @@ buffers, dispatch), which a thread cannot run beside another. Threads measured 0
 of one job; processes code whole frames, Python and all, side by side (benchmarks/
 jobs_scaling.py, DEVELOPERS.md "Speed").
 
-Why shared memory: sending frames through the pool's pipes (pickled) cost the parent about
-0.6 s of CPU time per 64 MiB, as much as coding them in one process. Here the parent copies
+Why shared memory: sending frames through a process pool's pipes (pickled) cost the parent
+about 0.5 s of CPU time per 64 MiB, more than half of what coding them in one process costs.
+Here the parent copies
 a batch's input into a slot of an anonymous shared mapping, sends only a small task (slot
 number, headers, sizes) and reads the results from the slot's output region; the slot is
 free again once the parent has taken its results.
@@ -32,7 +33,7 @@ SLOT_OUTPUT_BYTES = 4 << 20  # its results (frames, or messages and block status
 SLOTS_PER_JOB = 3  # batches in flight per worker: one coding, one queued, one being taken back
 
 # shared mappings by pool token, inherited by the forked workers (read there, never resized)
-_SHARED: dict[int, tuple[mmap.mmap, mmap.mmap, Any]] = {}
+_SHARED: dict[int, tuple[mmap.mmap, mmap.mmap, int, int, Any]] = {}
 _tokens = itertools.count(1)
 
 
@@ -76,9 +77,9 @@ def resolve_jobs(jobs: int) -> int:
 
 def shared_views(token: int, slot: int) -> tuple[memoryview, memoryview, Any]:
     """In a worker: (input region, output region, the pool's context) of a slot."""
-    inputs, outputs, context = _SHARED[token]
-    return (memoryview(inputs)[slot * SLOT_INPUT_BYTES: (slot + 1) * SLOT_INPUT_BYTES],
-            memoryview(outputs)[slot * SLOT_OUTPUT_BYTES: (slot + 1) * SLOT_OUTPUT_BYTES], context)
+    inputs, outputs, input_bytes, output_bytes, context = _SHARED[token]
+    return (memoryview(inputs)[slot * input_bytes: (slot + 1) * input_bytes],
+            memoryview(outputs)[slot * output_bytes: (slot + 1) * output_bytes], context)
 
 
 class WorkerStoppedError(RuntimeError):
@@ -179,10 +180,11 @@ class SlotPool:
     def __init__(self, jobs: int, context: Any = None) -> None:
         self.jobs = jobs
         self.slots = SLOTS_PER_JOB * jobs
-        self._inputs = mmap.mmap(-1, self.slots * SLOT_INPUT_BYTES)
-        self._outputs = mmap.mmap(-1, self.slots * SLOT_OUTPUT_BYTES)
+        self.input_bytes, self.output_bytes = SLOT_INPUT_BYTES, SLOT_OUTPUT_BYTES  # per slot
+        self._inputs = mmap.mmap(-1, self.slots * self.input_bytes)
+        self._outputs = mmap.mmap(-1, self.slots * self.output_bytes)
         self.token = next(_tokens)
-        _SHARED[self.token] = (self._inputs, self._outputs, context)
+        _SHARED[self.token] = (self._inputs, self._outputs, self.input_bytes, self.output_bytes, context)
         self._free: deque[int] = deque(range(self.slots))
         self._turn = itertools.cycle(range(jobs))
         self._workers: list[_Worker] = []
@@ -205,10 +207,10 @@ class SlotPool:
         self._free.append(slot)
 
     def input_view(self, slot: int) -> memoryview:
-        return memoryview(self._inputs)[slot * SLOT_INPUT_BYTES: (slot + 1) * SLOT_INPUT_BYTES]
+        return memoryview(self._inputs)[slot * self.input_bytes: (slot + 1) * self.input_bytes]
 
     def output_view(self, slot: int) -> memoryview:
-        return memoryview(self._outputs)[slot * SLOT_OUTPUT_BYTES: (slot + 1) * SLOT_OUTPUT_BYTES]
+        return memoryview(self._outputs)[slot * self.output_bytes: (slot + 1) * self.output_bytes]
 
     def submit(self, fn: Callable[..., Any], slot: int, *args: Any) -> Task:
         return self._workers[next(self._turn)].send(fn, slot, args)
