@@ -77,14 +77,24 @@ class BatchDecoder:
     """Decodes whole frames' payloads in `jobs` worker processes; see the module docstring."""
 
     def __init__(self, jobs: int, key: bytes | None) -> None:
-        self._pool = SlotPool(jobs, key)
+        self._jobs = jobs
+        self._key = key
+        self._pool: SlotPool | None = None  # forked once a payload was decoded here (see submit)
         self._open: _Batch | None = None
         self._in_flight: deque[_Batch] = deque()
+        self._warmed = False
 
     def submit(self, frame: DecodedFrame, code, checked: bool, coded: bytes) -> bool:
         """Queue frame's payload for decoding; False (decode it here) when it is too big for
         a slot."""
         header = frame.header
+        if self._pool is None:
+            if not self._warmed:
+                # the first payload is decoded here: the kernels it needs are loaded once, in
+                # this process, and the workers forked next have them (each would spend ~0.5 s)
+                self._warmed = True
+                return False
+            self._pool = SlotPool(self._jobs, self._key)
         need_out = header.length + BLOCKS_PER_CODED_BYTE * len(coded)
         if len(coded) > self._pool.input_bytes or need_out > self._pool.output_bytes:
             return False
@@ -151,4 +161,5 @@ class BatchDecoder:
             yield self.settle(held.popleft())
 
     def close(self) -> None:
-        self._pool.close()
+        if self._pool is not None:
+            self._pool.close()
