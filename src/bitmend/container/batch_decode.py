@@ -16,7 +16,7 @@ from typing import Iterable, Iterator
 import numpy as np
 
 from bitmend.container import format as fmt
-from bitmend.container.reader import DecodedFrame, decode_payload
+from bitmend.container.reader import DecodedFrame, block_counts, decode_payload
 from bitmend.container.workers import SlotPool, Task, shared_views
 from bitmend.kernels.status import FAILED
 
@@ -55,11 +55,13 @@ def _decode_batch(token: int, slot: int, jobs: list[tuple[fmt.FrameHeader, CodeS
         coded = bytes(inputs[read: read + coded_len])
         read += coded_len
         payload, status, crc_ok, authentic = decode_payload(_code_of(header, spec), header, coded, key)
+        if spec[0] == "unchecked":  # no block could be checked; only the CRC speaks for the data
+            status = np.full(len(status), FAILED, dtype=np.uint8)
         outputs[written: written + len(payload)] = payload
         written += len(payload)
         outputs[written: written + len(status)] = np.ascontiguousarray(status, dtype=np.uint8).tobytes()
         written += len(status)
-        results.append((len(status), crc_ok, authentic))
+        results.append((len(status), crc_ok, authentic, block_counts(status)))
     return results
 
 
@@ -130,15 +132,14 @@ class BatchDecoder:
         self._in_flight.remove(batch)
         view = self._pool.output_view(batch.slot)
         start = 0
-        for (frame, checked), (blocks, crc_ok, authentic) in zip(batch.frames, results):
+        for (frame, _), (blocks, crc_ok, authentic, counts) in zip(batch.frames, results):
             length = frame.header.length
             frame.payload = bytes(view[start: start + length])
             start += length
-            status = np.frombuffer(view[start: start + blocks], dtype=np.uint8).copy()
+            frame.block_status = np.frombuffer(view[start: start + blocks], dtype=np.uint8).copy()
             start += blocks
-            if not checked:  # no block could be checked; only the CRC speaks for the data
-                status = np.full(blocks, FAILED, dtype=np.uint8)
-            frame.block_status, frame.crc_ok, frame.authentic = status, crc_ok, authentic
+            frame.crc_ok, frame.authentic = crc_ok, authentic
+            frame.set_counts(counts)  # counted in the worker
             frame.pending = None
         self._pool.release(batch.slot)
 

@@ -34,6 +34,15 @@ MAX_HEADER_BITS = 8 * fmt.MAX_HEADER_BYTES  # a header of any version fits in th
 V1_HEADER_BYTES = fmt.HEADER_LAYOUTS[1].coded_bytes  # the smallest header of any version
 
 
+def block_counts(status: np.ndarray) -> tuple[int, int, int]:
+    """(blocks corrected, symbols corrected, blocks failed) of a frame's block statuses."""
+    if not status.any():
+        return 0, 0, 0
+    failed = status == FAILED
+    return (int(np.count_nonzero((status > 0) & ~failed)), int(status[~failed].sum(dtype=np.int64)),
+            int(np.count_nonzero(failed)))
+
+
 @dataclass
 class DecodedFrame:
     """One frame as found in the stream (payload corrected as far as the code allows)."""
@@ -52,20 +61,19 @@ class DecodedFrame:
 
     @cached_property
     def corrected_blocks(self) -> int:
-        return int(np.count_nonzero((self.block_status > 0) & (self.block_status != FAILED)))
+        return block_counts(self.block_status)[0]
 
     @cached_property
     def corrected_symbols(self) -> int:
-        s = self.block_status
-        if not s.any():
-            return 0
-        return int(s[s != FAILED].sum(dtype=np.int64))
+        return block_counts(self.block_status)[1]
 
     @cached_property
     def failed_count(self) -> int:
-        if not self.block_status.any():
-            return 0
-        return int(np.count_nonzero(self.block_status == FAILED))
+        return block_counts(self.block_status)[2]
+
+    def set_counts(self, counts: tuple[int, int, int]) -> None:
+        """Take block_counts(block_status) computed elsewhere (by a batch worker)."""
+        self.__dict__.update(zip(("corrected_blocks", "corrected_symbols", "failed_count"), counts))
 
     @cached_property
     def failed_blocks(self) -> list[int]:
