@@ -87,7 +87,9 @@ class BatchEncoder:
         self._key = key
         self._jobs = jobs
         self._context = _Context(key, defined_code)
-        self._pool: SlotPool | None = None  # forked once the first frame is coded here (see send)
+        # forked now, before this process loads numba: each worker loads the kernels it needs
+        # while the others do the same and this process cuts frames (it codes none itself)
+        self._pool = SlotPool(jobs, self._context)
         self._open: _Batch | None = None
         self._queue: deque[_Batch | bytes] = deque()  # batches in flight and frames coded here, in order
         self._sizes: dict[tuple[int, bool, bool], int] = {}
@@ -105,13 +107,6 @@ class BatchEncoder:
     def send(self, header: fmt.FrameHeader, payload: bytes) -> None:
         """Queue one frame; writes those finished before it without waiting."""
         size = self._frame_size(header)
-        if self._pool is None:
-            # the first frame is coded here: the kernels it needs are loaded once, in this
-            # process, and the workers forked next have them (each would spend ~0.5 s)
-            self._queue.append(fmt.encode_frame(header, payload, self._key))
-            self._write_ready(wait=False)
-            self._pool = SlotPool(self._jobs, self._context)
-            return
         if len(payload) > self._pool.input_bytes or size > self._pool.output_bytes:
             self._dispatch()  # too big for a slot: coded here, still in its place
             self._queue.append(fmt.encode_frame(header, payload, self._key))
@@ -142,7 +137,7 @@ class BatchEncoder:
         size = self._frame_size(first)
         done = 0
         while done < count:
-            if self._pool is None or length > self._pool.input_bytes or size > self._pool.output_bytes:
+            if length > self._pool.input_bytes or size > self._pool.output_bytes:
                 self.send(Run(first, count).header_at(done), bytes(payloads[done * length: (done + 1) * length]))
                 done += 1
                 continue
@@ -211,5 +206,4 @@ class BatchEncoder:
 
     def close(self) -> None:
         """Stop the workers (frames not yet written are dropped: call drain() first)."""
-        if self._pool is not None:
-            self._pool.close()
+        self._pool.close()
