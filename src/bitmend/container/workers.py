@@ -3,19 +3,18 @@
 Why processes and not threads: on this kind of machine only about a third of a frame's
 encoding time is spent inside the compiled kernels; the rest is Python (headers, CRC,
 buffers, dispatch), which a thread cannot run beside another. Threads measured 0.8-0.9x
-of one job; processes code whole frames, Python and all, side by side (benchmarks/
-jobs_scaling.py, DEVELOPERS.md "Speed").
+of one job; processes code whole frames, Python and all, side by side (DEVELOPERS.md
+"Jobs", benchmarks/jobs_scaling.py).
 
 Why shared memory: sending frames through a process pool's pipes (pickled) cost the parent
 about 0.5 s of CPU time per 64 MiB, more than half of what coding them in one process costs.
-Here the parent copies
-a batch's input into a slot of an anonymous shared mapping, sends only a small task (slot
-number, headers, sizes) and reads the results from the slot's output region; the slot is
-free again once the parent has taken its results.
+Here the parent copies a batch's input into a slot of an anonymous shared mapping, sends
+only a small task (slot number, headers) and reads the results from the slot's output
+region; the slot is free again once the parent has taken its results.
 
-The workers are forked (the kernels the parent loaded and the shared mappings are
-inherited, so a worker starts in milliseconds); where fork is not available the pool is
-not used and coding stays in one process (`available()`).
+The workers are forked, so the shared mappings (and whatever the parent has loaded) are
+inherited and a worker starts in milliseconds; where fork is not available every setting
+means one job (`resolve_jobs`, `automatic_jobs`).
 """
 
 from __future__ import annotations
