@@ -191,6 +191,23 @@ def test_workers_are_gone_after_each_use(data):
     assert not multiprocessing.active_children()
 
 
+def _twice(token: int, slot: int, value: int) -> int:
+    return 2 * value
+
+
+def test_a_worker_that_dies_is_an_error_not_a_hang():
+    pool = workers.SlotPool(1)
+    try:
+        assert pool.submit(_twice, 0, 21).result() == 42
+        pool._workers[0].process.kill()
+        pool._workers[0].process.join()
+        with pytest.raises(bitmend.WorkerStoppedError, match="worker process stopped"):
+            pool.submit(_twice, 0, 1).result()
+    finally:
+        pool.close()
+    assert not multiprocessing.active_children()
+
+
 def test_jobs_settings():
     assert workers.resolve_jobs(0) == workers.cpu_count()
     assert workers.resolve_jobs(1) == 1 and workers.resolve_jobs(3) == 3

@@ -27,6 +27,8 @@ import signal
 from collections import deque
 from typing import Any, Callable
 
+from bitmend.errors import ContainerError, SettingError
+
 SLOT_INPUT_BYTES = 1 << 20  # input of one batch (payloads to encode, or coded payloads to decode)
 SLOT_OUTPUT_BYTES = 4 << 20  # its results (frames, or messages and block statuses)
 SLOTS_PER_JOB = 3  # batches in flight per worker: one coding, one queued, one being taken back
@@ -64,8 +66,6 @@ def automatic_jobs(input_bytes: int | None) -> int:
 def resolve_jobs(jobs: int) -> int:
     """Worker processes for a `jobs` setting: 0 means one per core; 1 codes in this process.
     SettingError below 0; 1 wherever workers cannot be forked."""
-    from bitmend.errors import SettingError
-
     if isinstance(jobs, bool) or not isinstance(jobs, int):
         raise TypeError(f"jobs is a whole number, got {type(jobs).__name__}")
     if jobs < 0:
@@ -81,8 +81,9 @@ def shared_views(token: int, slot: int) -> tuple[memoryview, memoryview, Any]:
             memoryview(outputs)[slot * output_bytes: (slot + 1) * output_bytes], context)
 
 
-class WorkerStoppedError(RuntimeError):
-    """A worker process ended without answering (killed, or out of memory)."""
+class WorkerStoppedError(ContainerError):
+    """A worker process (jobs > 1) ended without answering: killed, or out of memory. The
+    container was not finished (encoding) or not read to its end (decoding)."""
 
 
 def _serve(token: int, conn) -> None:
@@ -141,7 +142,10 @@ class _Worker:
 
     def send(self, fn: Callable[..., Any], slot: int, args: tuple) -> Task:
         task = Task(self)
-        self.conn.send((fn, slot, args))
+        try:
+            self.conn.send((fn, slot, args))
+        except OSError:  # its end of the pipe is closed: the worker is gone
+            raise WorkerStoppedError("a worker process stopped without finishing its frames") from None
         self.waiting.append(task)
         return task
 
