@@ -85,10 +85,10 @@ class BatchEncoder:
     def __init__(self, sink: BinaryIO, jobs: int, key: bytes | None, defined_code) -> None:
         self._sink = sink
         self._key = key
-        self._jobs = jobs
         self._context = _Context(key, defined_code)
         # forked now, before this process loads numba: each worker loads the kernels it needs
-        # while the others do the same and this process cuts frames (it codes none itself)
+        # while the others do the same and this process cuts frames (it codes only frames too
+        # big for a slot)
         self._pool = SlotPool(jobs, self._context)
         self._open: _Batch | None = None
         self._queue: deque[_Batch | bytes] = deque()  # batches in flight and frames coded here, in order
