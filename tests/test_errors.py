@@ -65,7 +65,7 @@ GROUPS = {
     CodeError: ["UnknownCodeError", "CodeDefinitionError", "BCHParameterError", "ReedSolomonParameterError",
                 "ErasureCodeError", "NotEnoughSymbolsError"],
     ContainerError: ["HeaderError", "UnsupportedVersionError", "NotAContainerError", "DamagedDataError",
-                     "NoFramesError"],
+                     "NoFramesError", "WorkerStoppedError"],
     SettingError: ["KeyFileError", "RecordError", "ChannelSpecError", "EndpointError", "RepairSpecError",
                    "PlanError"],
 }

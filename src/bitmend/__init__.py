@@ -41,6 +41,7 @@ _LAZY = {
     "CampaignError": "bitmend.campaign",
     "SchedulerAddressError": "bitmend.campaign",
     "PlotUnavailableError": "bitmend.plot",
+    "WorkerStoppedError": "bitmend.container.workers",
 }
 
 __all__ = [

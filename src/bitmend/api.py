@@ -27,6 +27,7 @@ from bitmend.container.assembler import (ON_ERROR_CHOICES, Assembler, AssemblerR
                                         NotAContainerError)
 from bitmend.container.format import DEFAULT_FRAME_BYTES, check_depth, check_frame_bytes
 from bitmend.container.repair import parse_repair
+from bitmend.container.workers import resolve_jobs
 from bitmend.container.writer import FrameWriter
 from bitmend.errors import SettingError
 from bitmend.keyfile import MIN_KEY_BYTES, KeyFileError, load_key_file
@@ -106,14 +107,18 @@ class Encoder(io.BufferedIOBase):
     def __init__(self, fileobj: BinaryIO, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
                  frame_bytes: int = DEFAULT_FRAME_BYTES, close_fileobj: bool = False,
                  stream_id: int | None = None, repair: str | tuple[int, int] | None = None,
-                 key: bytes | None = None) -> None:
-        """repair: 'R/K' (or (R, K)): R repair frames after every K data frames, so that any
+                 key: bytes | None = None, jobs: int = 1) -> None:
+        """jobs: worker processes that code the frames (0: one per core; 1, the default: all
+        in this process); the container is the same byte for byte for any number, and frames
+        leave in batches when it is above 1.
+        repair: 'R/K' (or (R, K)): R repair frames after every K data frames, so that any
         R frames of a group lost or damaged are rebuilt (docs/FORMAT.md, "Repair frames").
         key: a shared secret of at least 16 bytes; every frame then carries a tag under it,
         and a decoder with the same key delivers only frames whose tag matches."""
         super().__init__()
         _check_write_settings(code, depth, frame_bytes, repair)
-        self._writer = FrameWriter(fileobj, code, depth, frame_bytes, stream_id, repair, _checked_key(key))
+        self._writer = FrameWriter(fileobj, code, depth, frame_bytes, stream_id, repair, _checked_key(key),
+                                   resolve_jobs(jobs))
         self._fileobj = fileobj
         self._close_fileobj = close_fileobj
         self._name = _name_of(fileobj)
@@ -216,9 +221,11 @@ class Encoder(io.BufferedIOBase):
         ended early, never one that looks whole."""
         if self.closed:
             return
-        if self._writer is not None:
-            self._writer.closed = True
-        self.close()
+        try:
+            if self._writer is not None:
+                self._writer.abandon()
+        finally:
+            self.close()
 
     def __exit__(self, exc_type, exc, tb) -> None:
         if exc_type is not None:
@@ -322,20 +329,23 @@ class Decoder(AssemblerReadings, io.BufferedIOBase):
     """
 
     _buffer: io.BufferedReader | None = None  # None only while __init__ has not finished
+    _assembler: Assembler | None = None
     _fileobj: BinaryIO | None = None
     _close_fileobj = False
 
     def __init__(self, fileobj: BinaryIO, on_error: str = "keep", keep_frame_reports: bool = True,
                  on_frame: Callable[[FrameReport], None] | None = None, close_fileobj: bool = False,
-                 key: bytes | None = None, accept_unauthenticated: bool = False) -> None:
-        """key: the shared key of keyed frames (only frames whose tag matches are delivered);
+                 key: bytes | None = None, accept_unauthenticated: bool = False, jobs: int = 1) -> None:
+        """jobs: worker processes that decode the frames' payloads (0: one per core; 1, the
+        default: all in this process); data, reports and errors are the same for any number.
+        key: the shared key of keyed frames (only frames whose tag matches are delivered);
         accept_unauthenticated: also deliver frames whose origin cannot be checked (no tag
         while a key is given, or tags but no key). A tag that does not match is never
         accepted."""
         super().__init__()
         _check_on_error(on_error)
         self._assembler = Assembler(fileobj, on_error, key=_checked_key(key),
-                                    accept_unauthenticated=accept_unauthenticated)
+                                    accept_unauthenticated=accept_unauthenticated, jobs=resolve_jobs(jobs))
         self._frame_reports: list[FrameReport] = []
         self._keep = keep_frame_reports
         self._on_frame = on_frame
@@ -435,6 +445,8 @@ class Decoder(AssemblerReadings, io.BufferedIOBase):
         try:
             if self._buffer is not None:
                 self._buffer.close()
+            if self._assembler is not None:
+                self._assembler.close()
         finally:
             try:
                 super().close()
@@ -532,21 +544,23 @@ class Decoded:
 
 def encode_bytes(data: bytes, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
                  frame_bytes: int = DEFAULT_FRAME_BYTES, stream_id: int | None = None,
-                 repair: str | tuple[int, int] | None = None, key: bytes | None = None) -> bytes:
-    """The container for data (one-shot); code is a catalog name or a code object;
+                 repair: str | tuple[int, int] | None = None, key: bytes | None = None, jobs: int = 1) -> bytes:
+    """The container for data (one-shot); code is a catalog name or a code object; jobs as
+    for Encoder;
     stream_id is drawn at random unless given (give one only to make output reproducible);
     repair 'R/K' adds R repair frames after every K data frames."""
     sink = io.BytesIO()
-    with Encoder(sink, code, depth, frame_bytes, stream_id=stream_id, repair=repair, key=key) as enc:
+    with Encoder(sink, code, depth, frame_bytes, stream_id=stream_id, repair=repair, key=key, jobs=jobs) as enc:
         enc.write(data)
     return sink.getvalue()
 
 
 def decode_bytes(container: bytes, on_error: str = "keep", key: bytes | None = None,
-                 accept_unauthenticated: bool = False) -> Decoded:
+                 accept_unauthenticated: bool = False, jobs: int = 1) -> Decoded:
     """Decode a whole container held in memory; raises NotAContainerError if no frame is
     found and, with on_error='fail', DamagedDataError at the first damaged or lost frame.
-    key and accept_unauthenticated as for Decoder."""
-    with Decoder(io.BytesIO(container), on_error, key=key, accept_unauthenticated=accept_unauthenticated) as dec:
+    key, accept_unauthenticated and jobs as for Decoder."""
+    with Decoder(io.BytesIO(container), on_error, key=key, accept_unauthenticated=accept_unauthenticated,
+                 jobs=jobs) as dec:
         data = dec.read()
         return Decoded(data, dec.report)

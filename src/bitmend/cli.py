@@ -27,9 +27,9 @@ from bitmend import outputs
 from bitmend.cli_io import (EXIT_BROKEN_PIPE, EXIT_DAMAGED, EXIT_OK, EXIT_UNREADABLE, EXIT_USAGE, CliError,
                             flush_stdout, input_size, ledger_end, open_data_output, open_input, open_side_file,
                             progress, report_end)
-from bitmend.cli_options import (CODE_FILE_HELP, KEY_FILE_HELP, Framing, OnError, Per, TextArgument,
-                                 bit_flip_probability, command, positive_seconds, seconds_or_inf, simulated_bits,
-                                 whole_number)
+from bitmend.cli_options import (CODE_FILE_HELP, DECODE_JOBS_HELP, ENCODE_JOBS_HELP, KEY_FILE_HELP, Framing,
+                                 OnError, Per, TextArgument, bit_flip_probability, command, positive_seconds,
+                                 seconds_or_inf, simulated_bits, whole_number)
 from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH, MAX_DEPTH
 from bitmend.container.format import DEFAULT_FRAME_BYTES, MAX_PAYLOAD_BYTES
 from bitmend.errors import BitmendError, CodeError, ContainerError, SettingError
@@ -257,6 +257,7 @@ def encode(
                                               "frames of the group that are lost or damaged are rebuilt exactly. "
                                               "A group also closes at --max-delay and at the end."),
     key_file: Optional[str] = typer.Option(None, "--key-file", metavar="FILE", help=KEY_FILE_HELP),
+    jobs: int = typer.Option(0, "--jobs", metavar="N", min=0, help=ENCODE_JOBS_HELP),
 ) -> None:
     """Wrap a byte stream in coded, self-contained frames.
 
@@ -267,6 +268,7 @@ def encode(
         _check_idle_input(idle, source_udp)
         if source_udp is not None and records is not None:
             raise _usage("a datagram is already one record: --records applies to byte-stream input")
+        _check_jobs(jobs, records is not None or source_udp is not None or output_udp is not None)
         chosen = _load_code(code, code_file)  # unknown names and bad files fail before any output is made
         key = _load_key(key_file)
         _check_encoder_settings(chosen, depth, frame_bytes, repair, output_udp)
@@ -276,11 +278,25 @@ def encode(
             with outputs.deferred_signals():  # a signal ends the datagram input; the run finishes cleanly
                 _encode_datagrams(source_udp, output, output_udp, settings, idle, delay)
         else:
-            _encode_stream(source, output, output_udp, settings, records, delay)
+            _encode_stream(source, output, output_udp, settings, records, delay, jobs)
+
+
+def _check_jobs(jobs: int, record_mode: bool) -> None:
+    """Records and datagrams are coded one frame at a time as they come (batches would hold
+    them back): more than one job there is refused rather than ignored."""
+    if record_mode and jobs > 1:
+        raise _usage("--jobs applies to byte streams; records and datagrams are coded one frame at a time")
+
+
+def _jobs_for(jobs: int, inp) -> int:
+    """--jobs as given, or for 0 the automatic choice by the input's size (a pipe: 1)."""
+    from bitmend.container.workers import automatic_jobs
+
+    return jobs if jobs > 0 else automatic_jobs(input_size(inp))
 
 
 def _encode_stream(source: str, output: Optional[str], output_udp, settings: dict, records: Optional[Framing],
-                   delay: Optional[float]) -> None:
+                   delay: Optional[float], jobs: int = 1) -> None:
     """encode a file or stdin: bytes (or records) in, frames out, each frame at most delay
     seconds after its first byte arrived."""
     from bitmend.api import Encoder
@@ -288,7 +304,9 @@ def _encode_stream(source: str, output: Optional[str], output_udp, settings: dic
     from bitmend.records import pump_records
 
     with open_input(source) as inp, open_data_output(output, output_udp) as out:
-        with progress("encoding", input_size(inp), True) as tick, Encoder(out, **settings) as enc:
+        workers = _jobs_for(jobs, inp) if records is None and output_udp is None else 1
+        # the encoder (and its forked workers) before the progress bar and its thread
+        with Encoder(out, **settings, jobs=workers) as enc, progress("encoding", input_size(inp), True) as tick:
             if records is not None:
                 pump_records(inp, enc, records.value, tick, max_delay=delay)
             else:
@@ -370,6 +388,7 @@ def decode(
                                                      "without a tag while --key-file is given, or keyed frames "
                                                      "without --key-file. A tag that does not match is never "
                                                      "accepted."),
+    jobs: int = typer.Option(0, "--jobs", metavar="N", min=0, help=DECODE_JOBS_HELP),
 ) -> None:
     """Recover the data; exit 0 only if every byte was CRC-verified.
 
@@ -379,6 +398,7 @@ def decode(
         source_udp, output_udp = _endpoint(source), _endpoint(output)
         _check_idle_input(idle, source_udp)
         record_mode = records is not None or output_udp is not None
+        _check_jobs(jobs, record_mode or source_udp is not None)
         policy = _decode_policy(on_error, record_mode)
         outputs.check_distinct({"-o": output or "-", "--report": report})
         key = _load_key(key_file)
@@ -388,11 +408,11 @@ def decode(
                 _decode_records(source, source_udp, output, output_udp, report, policy,
                                 records.value if records else None, idle, quiet, key, accept_unauthenticated)
         else:
-            _decode_stream(source, output, report, policy, quiet, key, accept_unauthenticated)
+            _decode_stream(source, output, report, policy, quiet, key, accept_unauthenticated, jobs)
 
 
 def _decode_stream(source: str, output: Optional[str], report: Optional[str], on_error: str, quiet: bool,
-                   key: Optional[bytes], accept_unauthenticated: bool) -> None:
+                   key: Optional[bytes], accept_unauthenticated: bool, jobs: int = 1) -> None:
     """decode a byte stream: verified bytes out as each frame completes, a report line per
     frame, then decode's last words and exit code."""
     from bitmend.api import Decoder
@@ -404,7 +424,7 @@ def _decode_stream(source: str, output: Optional[str], report: Optional[str], on
         # made before any output (it reads nothing yet): a run stopped at any point has a summary
         on_frame = (lambda r: report_file.write_text(r.to_json() + "\n")) if report else None
         decoder = Decoder(inp, on_error, keep_frame_reports=False, on_frame=on_frame, key=key,
-                          accept_unauthenticated=accept_unauthenticated)
+                          accept_unauthenticated=accept_unauthenticated, jobs=_jobs_for(jobs, inp))
         # the output is the outer context: the report's summary is written once the output is
         # whole (out.prepare()), and a report that cannot be written takes the output with it
         with outputs.writing(output) as out, \

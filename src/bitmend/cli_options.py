@@ -17,6 +17,11 @@ import typer
 import typer.main
 import typer.models
 
+_JOBS_HELP = ("Worker processes that {verb} frames: 0 (the default) is one per core for a file input of "
+              "16 MiB or more, else 1; the {what} is the same for any N. Byte streams only (not --records "
+              "or udp:).")
+ENCODE_JOBS_HELP = _JOBS_HELP.format(verb="code", what="container")
+DECODE_JOBS_HELP = _JOBS_HELP.format(verb="decode", what="output, report and exit code")
 KEY_FILE_HELP = ("Shared key (at least 16 bytes, raw or hex; not readable by others): every frame carries a tag "
                  "under it, and decode delivers only frames whose tag matches.")
 CODE_FILE_HELP = ("Custom code: a text file ('generator' or 'parity-check', then rows of 0/1) or JSON "

@@ -173,6 +173,10 @@ class Output:
     """One output being written: `write()` bytes (or `write_text()`), then `commit()` to keep it
     or `discard()` to drop it (a temp file is removed; a direct target is only closed)."""
 
+    # write() has written (or copied) all it was given when it returns, and cuts nothing at
+    # the call's boundaries: a frame writer may hand it many frames in one call
+    whole_writes = True
+
     def __init__(self, label: str, stream: BinaryIO, *, temp: Optional[str] = None, final: Optional[str] = None,
                  owned: bool = True, is_stdout: bool = False) -> None:
         self.label = label  # the user's name for it, used in every message

@@ -64,7 +64,7 @@ class Assembler:
     run). summary() when done."""
 
     def __init__(self, source: BinaryIO | None, on_error: str = "keep", scanner=None, key: bytes | None = None,
-                 accept_unauthenticated: bool = False) -> None:
+                 accept_unauthenticated: bool = False, jobs: int = 1) -> None:
         """source: a container byte stream; or give `scanner`, anything with `frames()`,
         `stats` and `bytes_read` like FrameScanner (e.g. one over separate datagrams).
 
@@ -72,13 +72,22 @@ class Assembler:
         delivered (or used to rebuild others); frames without a tag are not delivered either
         unless accept_unauthenticated. Without a key, keyed frames cannot be checked and are
         delivered only with accept_unauthenticated. Frames held back are reported with
-        status 'unauthenticated' and count as missing for their stream."""
+        status 'unauthenticated' and count as missing for their stream.
+
+        jobs: worker processes that decode whole payloads (1: all in this process; the
+        output and reports are the same for any number). Applies to a source, not to a
+        scanner given."""
         if on_error not in ON_ERROR_CHOICES:
             raise SettingError(f"on_error must be one of {', '.join(ON_ERROR_CHOICES)}, got {on_error!r}")
         self.on_error = on_error
         self.key = key
         self.accept_unauthenticated = accept_unauthenticated
-        self.scanner = scanner if scanner is not None else FrameScanner(source, key=key)
+        self._batches = None
+        if scanner is None and jobs > 1:
+            from bitmend.container.batch_decode import BatchDecoder
+
+            self._batches = BatchDecoder(jobs, key)
+        self.scanner = scanner if scanner is not None else FrameScanner(source, key=key, batches=self._batches)
         self.keyed_without_key = 0  # keyed frames held back: no key to check them with
         self.untagged_with_key = 0  # frames without a tag held back: a key was given
         self.sequencer = Sequencer()
@@ -196,8 +205,24 @@ class Assembler:
         self._record(report)
         return report
 
+    def _found_frames(self) -> Iterator[DecodedFrame]:
+        """The scanner's frames in the order found, each with its payload decoded."""
+        if self._batches is None:
+            yield from self.scanner.frames()
+            return
+        try:
+            yield from self._batches.in_order(self.scanner.frames())
+        finally:
+            self.close()
+
+    def close(self) -> None:
+        """Stop the payload workers, if any (done by itself at the end of the input)."""
+        batches, self._batches = self._batches, None
+        if batches is not None:
+            batches.close()
+
     def __iter__(self) -> Iterator[tuple[bytes, FrameReport | None]]:
-        for frame in self.scanner.frames():
+        for frame in self._found_frames():
             self._any_frame = True
             if not self._admit(frame):
                 yield b"", self._unauthenticated(frame)

@@ -383,6 +383,12 @@ def _code_from_definition(body: bytes) -> BinaryLinearCode | None:
         return None
 
 
+def code_from_definition_body(body: bytes) -> BinaryLinearCode | None:
+    """The code of a checked definition block's body (its message without the CRC-32C);
+    built once per distinct body."""
+    return _code_from_definition(bytes(body))
+
+
 @lru_cache(maxsize=4)
 def unchecked_reading_code(k: int, r: int) -> BinaryLinearCode:
     """A stand-in with parity part 0 and t = 0, for reading the systematic message bits

@@ -34,6 +34,15 @@ MAX_HEADER_BITS = 8 * fmt.MAX_HEADER_BYTES  # a header of any version fits in th
 V1_HEADER_BYTES = fmt.HEADER_LAYOUTS[1].coded_bytes  # the smallest header of any version
 
 
+def block_counts(status: np.ndarray) -> tuple[int, int, int]:
+    """(blocks corrected, symbols corrected, blocks failed) of a frame's block statuses."""
+    if not status.any():
+        return 0, 0, 0
+    failed = status == FAILED
+    return (int(np.count_nonzero((status > 0) & ~failed)), int(status[~failed].sum(dtype=np.int64)),
+            int(np.count_nonzero(failed)))
+
+
 @dataclass
 class DecodedFrame:
     """One frame as found in the stream (payload corrected as far as the code allows)."""
@@ -48,23 +57,23 @@ class DecodedFrame:
     header_from_copy: bool = False  # the leading header was hit; the copy was used
     marker_distance: int = 0
     authentic: bool | None = None  # keyed frame: its tag matched the reader's key (None: not checked)
+    pending: object | None = field(default=None, repr=False, compare=False)  # its batch, until settled
 
     @cached_property
     def corrected_blocks(self) -> int:
-        return int(np.count_nonzero((self.block_status > 0) & (self.block_status != FAILED)))
+        return block_counts(self.block_status)[0]
 
     @cached_property
     def corrected_symbols(self) -> int:
-        s = self.block_status
-        if not s.any():
-            return 0
-        return int(s[s != FAILED].sum(dtype=np.int64))
+        return block_counts(self.block_status)[1]
 
     @cached_property
     def failed_count(self) -> int:
-        if not self.block_status.any():
-            return 0
-        return int(np.count_nonzero(self.block_status == FAILED))
+        return block_counts(self.block_status)[2]
+
+    def set_counts(self, counts: tuple[int, int, int]) -> None:
+        """Take block_counts(block_status) computed elsewhere (by a batch worker)."""
+        self.__dict__.update(zip(("corrected_blocks", "corrected_symbols", "failed_count"), counts))
 
     @cached_property
     def failed_blocks(self) -> list[int]:
@@ -73,6 +82,22 @@ class DecodedFrame:
         if not self.failed_count:
             return []
         return [int(i) for i in np.nonzero(self.block_status == FAILED)[0][:MAX_LISTED_FAILED]]
+
+
+def decode_payload(code, header: fmt.FrameHeader, coded: bytes,
+                   key: bytes | None) -> tuple[bytes, np.ndarray, bool, bool | None]:
+    """(payload, block status, CRC-32C matches, tag matches) of a whole frame's coded
+    payload; the tag is checked only for a keyed frame, a key and a good CRC (else False
+    with a key, None without). The one place a whole payload is decoded, in this process or
+    in a worker (container/batch_decode.py)."""
+    message, status = decode_segment(code, header.depth, coded, header.message_bytes)
+    payload = message[: header.length]
+    check = message[header.length: header.length + fmt.CRC_BYTES]
+    crc_ok = struct.unpack(">I", check)[0] == fmt.crc32c(payload)
+    authentic: bool | None = False if header.keyed and key is not None else None
+    if header.keyed and key is not None and crc_ok:
+        authentic = fmt.tag_matches(key, header, bytes(payload), message[header.length + fmt.CRC_BYTES:])
+    return payload, status, crc_ok, authentic
 
 
 @dataclass
@@ -85,9 +110,12 @@ class FrameScanner:
     """Iterate the frames of a container read from a binary file object."""
 
     def __init__(self, source: BinaryIO, read_chunk: int = READ_CHUNK, decode_payloads: bool = True,
-                 key: bytes | None = None) -> None:
-        """key: the shared key that keyed frames' tags are checked with (None: not checked)."""
+                 key: bytes | None = None, batches=None) -> None:
+        """key: the shared key that keyed frames' tags are checked with (None: not checked).
+        batches: a container.batch_decode.BatchDecoder; whole payloads are then decoded by its
+        workers, and a frame's payload fields are filled when it is settled (BatchDecoder.settle)."""
         self._key = key
+        self._batches = batches
         self._source = source
         self._read = getattr(source, "read1", None) or source.read
         self._decode_payloads = decode_payloads
@@ -202,7 +230,7 @@ class FrameScanner:
         delivered; it costs one decode when the guess fails."""
         if not self._decode_payloads or not self._fill(frame_bit + 8 * predicted.frame_bytes):
             return None
-        frame = self._decode_frame(frame_bit, predicted, from_copy=True)
+        frame = self._decode_frame(frame_bit, predicted, from_copy=True, here=True)
         return frame if frame.crc_ok else None
 
     def _look_back(self, gap_start: int, gap_end: int) -> DecodedFrame | None:
@@ -246,7 +274,9 @@ class FrameScanner:
                                         "payload read without correction")
         return header, False
 
-    def _decode_frame(self, bit: int, header: fmt.FrameHeader, from_copy: bool) -> DecodedFrame:
+    def _decode_frame(self, bit: int, header: fmt.FrameHeader, from_copy: bool, here: bool = False) -> DecodedFrame:
+        """The frame at bit. Its payload is decoded now, or by the batch workers unless here
+        (the scan needs its CRC at once)."""
         total = header.frame_bytes
         complete = self._fill(bit + 8 * total)
         payload_bit = bit + MARKER_BITS + 8 * (header.header_bytes + header.definition_bytes)
@@ -262,13 +292,12 @@ class FrameScanner:
         authentic: bool | None = False if header.keyed and self._key is not None else None
         if complete:
             coded = self._bytes_at(payload_bit, coded_len)
-            message, status = decode_segment(code, header.depth, coded, header.message_bytes)
-            payload = message[: header.length]
-            check = message[header.length: header.length + fmt.CRC_BYTES]
-            crc_ok = struct.unpack(">I", check)[0] == fmt.crc32c(payload)
-            if header.keyed and self._key is not None and crc_ok:
-                authentic = fmt.tag_matches(self._key, header, bytes(payload),
-                                            message[header.length + fmt.CRC_BYTES:])
+            if self._batches is not None and not here:
+                frame = DecodedFrame(header, bit >> 3, bit, b"", np.zeros(0, np.uint8), False, False, from_copy,
+                                     marker_distance, authentic)
+                if self._batches.submit(frame, code, checked, coded):
+                    return frame  # its payload fields are filled when it is settled
+            payload, status, crc_ok, authentic = decode_payload(code, header, coded, self._key)
         else:
             # the input ended inside the frame: decode only the groups that arrived whole, and
             # for Reed-Solomon the cut group too, its missing tail as erasures (work and
@@ -282,6 +311,13 @@ class FrameScanner:
         return DecodedFrame(header, bit >> 3, bit, payload, status, crc_ok, not complete, from_copy,
                             marker_distance, authentic)
 
+    def _damaged(self, frame: DecodedFrame | None) -> bool:
+        if frame is None:
+            return False
+        if self._batches is not None:
+            self._batches.settle(frame)
+        return not frame.crc_ok
+
     # ---- the scan ----------------------------------------------------------------------
     def frames(self) -> Iterator[DecodedFrame]:
         """Frames in stream order; see the module docstring for how they are found."""
@@ -289,6 +325,7 @@ class FrameScanner:
         covered = 0  # absolute bit where the last emitted frame ended
         locked: fmt.FrameHeader | None = None  # last good header while in lock
         fallback: int | None = None  # where to search if the frame after a damaged one is not in place
+        fallback_frame: DecodedFrame | None = None  # the frame that may be damaged
         at_start = True  # input should begin with a frame: try its header even if the marker is hit
         while True:
             searched = locked is None and not at_start
@@ -329,8 +366,9 @@ class FrameScanner:
                     pos = candidate if was_start else candidate + 1
                 else:
                     locked = None  # lost lock: search from here (or from inside a damaged frame)
-                    if fallback is not None:
-                        pos, fallback = fallback, None
+                    if fallback is not None and self._damaged(fallback_frame):
+                        pos = fallback
+                    fallback = None
                 continue
             gap_start = covered  # every byte since the last frame: a false marker match skipped is still skipped
             if searched and candidate > gap_start:
@@ -349,7 +387,9 @@ class FrameScanner:
             pos = covered
             locked = header
             # a damaged frame may hide a slip: if the next frame is not where expected,
-            # the search resumes from inside the damaged one
-            damaged = self._decode_payloads and not frame.crc_ok
-            fallback = candidate + MARKER_BITS if damaged else None
+            # the search resumes from inside the damaged one (whether it is damaged is asked
+            # only then: with batch workers its payload may not be decoded yet)
+            maybe_damaged = self._decode_payloads and (self._batches is not None or not frame.crc_ok)
+            fallback = candidate + MARKER_BITS if maybe_damaged else None
+            fallback_frame = frame
             self._drop_before(pos if fallback is None else fallback)

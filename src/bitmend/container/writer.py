@@ -44,7 +44,10 @@ class FrameWriter:
 
     def __init__(self, sink: BinaryIO, code: str | BlockCode, depth: int,
                  frame_bytes: int = fmt.DEFAULT_FRAME_BYTES, stream_id: int | None = None,
-                 repair: tuple[int, int] | str | None = None, key: bytes | None = None) -> None:
+                 repair: tuple[int, int] | str | None = None, key: bytes | None = None, jobs: int = 1) -> None:
+        """jobs: worker processes that code the frames (1: all in this process). The bytes
+        written are the same for any number; with more than one, frames leave in batches
+        (flush() waits for every frame queued; container/batch_encode.py)."""
         fmt.check_depth(depth)
         fmt.check_frame_bytes(frame_bytes)
         self._sink = sink
@@ -73,8 +76,18 @@ class FrameWriter:
         self._group = GroupBuilder(*spec) if spec else None
         self.repair_frames = 0
         self.bytes_in = 0
-        self.bytes_out = 0
+        self._bytes_written = 0  # by this process (one job, or frames too big for a batch)
         self.closed = False
+        self._batches = None
+        if jobs > 1:
+            from bitmend.container.batch_encode import BatchEncoder
+
+            self._batches = BatchEncoder(sink, jobs, key, self._defined_code)
+
+    @property
+    def bytes_out(self) -> int:
+        """Container bytes written to the sink so far."""
+        return self._bytes_written + (self._batches.bytes_out if self._batches is not None else 0)
 
     def _header(self, length: int, last: bool) -> fmt.FrameHeader:
         """The header of the next data frame (the writer's code, depth, stream and flags)."""
@@ -95,10 +108,28 @@ class FrameWriter:
         if self._group is not None and (self._group.add(header, payload) or last):
             self.end_group()
 
+    def _emit_run(self) -> int:
+        """With workers and no repair groups: every full frame pending but the one held back,
+        handed over in one piece (the same headers _emit would make, without a Python step
+        per frame here); the bytes handed over."""
+        size = self._frame_bytes
+        count = (len(self._pending) - 1) // size  # keep one frame back
+        if count < 2:
+            return 0
+        first = self._header(size, False)
+        with memoryview(self._pending) as pending:
+            self._batches.send_run(first, pending[: count * size])
+        self._seq = (self._seq + count) % fmt.SEQ_MODULUS
+        self._position += count * size
+        return count * size
+
     def _send(self, header: fmt.FrameHeader, payload: bytes) -> None:
+        if self._batches is not None:
+            self._batches.send(header, payload)
+            return
         frame = fmt.encode_frame(header, payload, self._key)
         self._sink.write(frame)
-        self.bytes_out += len(frame)
+        self._bytes_written += len(frame)
 
     @property
     def group_open(self) -> bool:
@@ -122,6 +153,8 @@ class FrameWriter:
         self.bytes_in += len(data)
         size = self._frame_bytes
         start = 0
+        if self._batches is not None and self._group is None:
+            start = self._emit_run()
         while len(self._pending) - start > size:  # strictly more: keep one frame back
             self._emit(bytes(self._pending[start: start + size]), last=False)
             start += size
@@ -135,6 +168,8 @@ class FrameWriter:
 
     def flush_sink(self) -> None:
         """Push frames already made out of the sink's buffer, without cutting a frame."""
+        if self._batches is not None:
+            self._batches.write_finished()
         self._sink.flush()
 
     def flush(self) -> None:
@@ -142,6 +177,8 @@ class FrameWriter:
         if self._pending:
             self._emit(bytes(self._pending), last=False)
             self._pending.clear()
+        if self._batches is not None:
+            self._batches.drain()
         self._sink.flush()
 
     def send_record(self, record: bytes) -> None:
@@ -156,13 +193,38 @@ class FrameWriter:
             raise SettingError(f"a record of {len(record)} bytes does not fit a frame of {self._frame_bytes} bytes")
         self.bytes_in += len(record)
         self._emit(bytes(record), last=False)
-        self._sink.flush()
+        self.flush_sink()
 
     def close(self) -> None:
-        """Send the closing frame (the held data, possibly empty)."""
+        """Send the closing frame (the held data, possibly empty). After abandon(), only
+        writes the frames already queued and stops the workers."""
+        if self.closed:
+            self._stop_workers()
+            return
+        try:
+            self._emit(bytes(self._pending), last=True)
+            self._pending.clear()
+            self.closed = True
+            if self._batches is not None:
+                self._batches.drain()
+        finally:
+            self._stop_workers()
+        self._sink.flush()
+
+    def abandon(self) -> None:
+        """End without the closing frame (after a failure): frames queued so far are still
+        written, as with one job; a reader sees a stream that ended early."""
         if self.closed:
             return
-        self._emit(bytes(self._pending), last=True)
-        self._pending.clear()
         self.closed = True
-        self._sink.flush()
+        try:
+            if self._batches is not None:
+                self._batches.drain()
+        finally:
+            self._stop_workers()
+
+    def _stop_workers(self) -> None:
+        batches, self._batches = self._batches, None
+        if batches is not None:
+            self._bytes_written += batches.bytes_out
+            batches.close()

@@ -1,0 +1,166 @@
+"""Payloads of found frames decoded by worker processes in batches (`--jobs N`).
+
+The scanner still finds every frame and decodes every header here, in input order; only
+`reader.decode_payload` of whole frames moves to the workers, and delivery (the sequencer
+and the assembler) still sees the frames one at a time in the order they were found, so
+output, reports and exit codes are the same as with one job. At most `SlotPool.slots`
+batches are in flight and `in_order` holds only the frames of those batches.
+"""
+
+from __future__ import annotations
+
+from collections import deque
+from dataclasses import dataclass, field, replace
+from typing import Iterable, Iterator
+
+import numpy as np
+
+from bitmend.container import format as fmt
+from bitmend.container.reader import DecodedFrame, block_counts, decode_payload
+from bitmend.container.workers import SlotPool, Task, shared_views
+from bitmend.kernels.status import FAILED
+
+# a frame's results in the output region: its payload, then one status byte per block;
+# blocks are at least 2 bits long, so a frame has at most 4 blocks per coded byte
+BLOCKS_PER_CODED_BYTE = 4
+
+CodeSpec = tuple  # ("catalog",) | ("defined", definition body) | ("unchecked", k, r)
+
+
+def _code_spec(header: fmt.FrameHeader, code, checked: bool) -> CodeSpec:
+    """How a worker finds the frame's code without the code object being sent."""
+    if header.code_id != fmt.CUSTOM_CODE_ID:
+        return ("catalog",)
+    if not checked:
+        return ("unchecked", *header.shape)
+    return ("defined", fmt.definition_record(code)[:-fmt.CRC_BYTES])
+
+
+def _code_of(header: fmt.FrameHeader, spec: CodeSpec):
+    if spec[0] == "catalog":
+        return header.code
+    if spec[0] == "unchecked":
+        return fmt.unchecked_reading_code(spec[1], spec[2])
+    return fmt.code_from_definition_body(spec[1])
+
+
+def _decode_batch(token: int, slot: int, jobs: list[tuple[fmt.FrameHeader, CodeSpec, int]]) -> list[tuple]:
+    """In a worker: decode each frame's coded payload (back to back in the slot's input);
+    write its payload and block statuses to the slot's output; (blocks, crc_ok, authentic)
+    per frame."""
+    inputs, outputs, key = shared_views(token, slot)
+    results = []
+    read = written = 0
+    for header, spec, coded_len in jobs:
+        coded = bytes(inputs[read: read + coded_len])
+        read += coded_len
+        payload, status, crc_ok, authentic = decode_payload(_code_of(header, spec), header, coded, key)
+        if spec[0] == "unchecked":  # no block could be checked; only the CRC speaks for the data
+            status = np.full(len(status), FAILED, dtype=np.uint8)
+        outputs[written: written + len(payload)] = payload
+        written += len(payload)
+        outputs[written: written + len(status)] = np.ascontiguousarray(status, dtype=np.uint8).tobytes()
+        written += len(status)
+        results.append((len(status), crc_ok, authentic, block_counts(status)))
+    return results
+
+
+@dataclass
+class _Batch:
+    slot: int
+    frames: list[tuple[DecodedFrame, bool]] = field(default_factory=list)  # (frame, code checked)
+    jobs: list[tuple[fmt.FrameHeader, CodeSpec, int]] = field(default_factory=list)
+    input_bytes: int = 0
+    output_bytes: int = 0
+    task: Task | None = None
+
+
+class BatchDecoder:
+    """Decodes whole frames' payloads in `jobs` worker processes; see the module docstring."""
+
+    def __init__(self, jobs: int, key: bytes | None) -> None:
+        self._jobs = jobs
+        self._key = key
+        self._pool: SlotPool | None = None  # forked once a payload was decoded here (see submit)
+        self._open: _Batch | None = None
+        self._in_flight: deque[_Batch] = deque()
+        self._warmed = False
+
+    def submit(self, frame: DecodedFrame, code, checked: bool, coded: bytes) -> bool:
+        """Queue frame's payload for decoding; False (decode it here) when it is too big for
+        a slot."""
+        header = frame.header
+        if self._pool is None:
+            if not self._warmed:
+                # the first payload is decoded here: the kernels it needs are loaded once, in
+                # this process, and the workers forked next have them (each would spend ~0.5 s)
+                self._warmed = True
+                return False
+            self._pool = SlotPool(self._jobs, self._key)
+        need_out = header.length + BLOCKS_PER_CODED_BYTE * len(coded)
+        if len(coded) > self._pool.input_bytes or need_out > self._pool.output_bytes:
+            return False
+        batch = self._open
+        if batch is not None and (batch.input_bytes + len(coded) > self._pool.input_bytes
+                                  or batch.output_bytes + need_out > self._pool.output_bytes):
+            self._dispatch()
+            batch = None
+        if batch is None:
+            while not self._pool.has_free_slot:
+                self._settle_batch(self._in_flight[0])
+            batch = self._open = _Batch(self._pool.take_slot())
+        self._pool.input_view(batch.slot)[batch.input_bytes: batch.input_bytes + len(coded)] = coded
+        sent_header = replace(header, defined_code=None) if header.defined_code is not None else header
+        batch.jobs.append((sent_header, _code_spec(header, code, checked), len(coded)))
+        batch.frames.append((frame, checked))
+        batch.input_bytes += len(coded)
+        batch.output_bytes += need_out
+        frame.pending = batch
+        return True
+
+    def _dispatch(self) -> None:
+        batch, self._open = self._open, None
+        if batch is not None:
+            batch.task = self._pool.submit(_decode_batch, batch.slot, batch.jobs)
+            self._in_flight.append(batch)
+
+    def _settle_batch(self, batch: _Batch) -> None:
+        """Wait for a batch and fill its frames' payload fields; its slot is free again."""
+        if batch.task is None:
+            self._dispatch()  # the open batch: send it now, its results are wanted
+        results = batch.task.result()
+        self._in_flight.remove(batch)
+        view = self._pool.output_view(batch.slot)
+        start = 0
+        for (frame, _), (blocks, crc_ok, authentic, counts) in zip(batch.frames, results):
+            length = frame.header.length
+            frame.payload = bytes(view[start: start + length])
+            start += length
+            frame.block_status = np.frombuffer(view[start: start + blocks], dtype=np.uint8).copy()
+            start += blocks
+            frame.crc_ok, frame.authentic = crc_ok, authentic
+            frame.set_counts(counts)  # counted in the worker
+            frame.pending = None
+        self._pool.release(batch.slot)
+
+    def settle(self, frame: DecodedFrame) -> DecodedFrame:
+        """frame with its payload fields filled (waits for its batch if need be)."""
+        if frame.pending is not None:
+            self._settle_batch(frame.pending)
+        return frame
+
+    def in_order(self, frames: Iterable[DecodedFrame]) -> Iterator[DecodedFrame]:
+        """frames as found, each settled, in the same order; a frame waits only for its own
+        batch, and batches are sent as they fill."""
+        held: deque[DecodedFrame] = deque()
+        for frame in frames:
+            held.append(frame)
+            while held and (held[0].pending is None or held[0].pending.task is not None
+                            and held[0].pending.task.done()):
+                yield self.settle(held.popleft())
+        while held:
+            yield self.settle(held.popleft())
+
+    def close(self) -> None:
+        if self._pool is not None:
+            self._pool.close()
