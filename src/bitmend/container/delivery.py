@@ -27,7 +27,6 @@ from __future__ import annotations
 
 from collections import OrderedDict, deque
 from dataclasses import dataclass, field, replace
-from typing import Iterator
 
 import numpy as np
 
