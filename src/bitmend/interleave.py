@@ -402,7 +402,7 @@ def _bit_stream(rows: np.ndarray, width: int, depth: int, nbytes: int, kernels) 
 
 def _encode_rows_segment(code: BlockCode, lay: SegmentLayout, message: bytes) -> bytes:
     if lay.symbol_bits == 8:
-        rows = np.zeros((lay.blocks, lay.n), dtype=np.uint8)
+        rows = np.empty((lay.blocks, lay.n), dtype=np.uint8)  # the kernel writes every parity symbol
         rows[:, : lay.k] = np.frombuffer(message.ljust(lay.blocks * lay.k, b"\0"), np.uint8).reshape(lay.blocks, lay.k)
         return _interleave_symbol_rows(code.encode_rows(rows), lay.depth)
     kernels = compiled_cyclic(lay.coded_bits)
