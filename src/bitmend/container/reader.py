@@ -36,7 +36,7 @@ V1_HEADER_BYTES = fmt.HEADER_LAYOUTS[1].coded_bytes  # the smallest header of an
 
 def block_counts(status: np.ndarray) -> tuple[int, int, int]:
     """(blocks corrected, symbols corrected, blocks failed) of a frame's block statuses."""
-    if not status.any():
+    if not np.count_nonzero(status):  # the clean frame, the common case: one pass, no more
         return 0, 0, 0
     failed = status == FAILED
     return (int(np.count_nonzero((status > 0) & ~failed)), int(status[~failed].sum(dtype=np.int64)),
@@ -60,20 +60,24 @@ class DecodedFrame:
     pending: object | None = field(default=None, repr=False, compare=False)  # its batch, until settled
 
     @cached_property
+    def _counts(self) -> tuple[int, int, int]:
+        return block_counts(self.block_status)  # once per frame: every count below reads it
+
+    @property
     def corrected_blocks(self) -> int:
-        return block_counts(self.block_status)[0]
+        return self._counts[0]
 
-    @cached_property
+    @property
     def corrected_symbols(self) -> int:
-        return block_counts(self.block_status)[1]
+        return self._counts[1]
 
-    @cached_property
+    @property
     def failed_count(self) -> int:
-        return block_counts(self.block_status)[2]
+        return self._counts[2]
 
     def set_counts(self, counts: tuple[int, int, int]) -> None:
         """Take block_counts(block_status) computed elsewhere (by a batch worker)."""
-        self.__dict__.update(zip(("corrected_blocks", "corrected_symbols", "failed_count"), counts))
+        self.__dict__["_counts"] = tuple(counts)
 
     @cached_property
     def failed_blocks(self) -> list[int]:
