@@ -17,7 +17,7 @@ import numpy as np
 
 from bitmend.container import format as fmt
 from bitmend.container.reader import DecodedFrame, block_counts, decode_payload
-from bitmend.container.workers import SlotPool, Task, shared_views
+from bitmend.container.workers import SlotBatch, SlotPool, shared_views
 from bitmend.kernels.status import FAILED
 
 # a frame's results in the output region: its payload, then one status byte per block;
@@ -66,13 +66,9 @@ def _decode_batch(token: int, slot: int, jobs: list[tuple[fmt.FrameHeader, CodeS
 
 
 @dataclass
-class _Batch:
-    slot: int
+class _Batch(SlotBatch):
     frames: list[tuple[DecodedFrame, bool]] = field(default_factory=list)  # (frame, code checked)
     jobs: list[tuple[fmt.FrameHeader, CodeSpec, int]] = field(default_factory=list)
-    input_bytes: int = 0
-    output_bytes: int = 0
-    task: Task | None = None
 
 
 class BatchDecoder:
@@ -101,8 +97,7 @@ class BatchDecoder:
         if len(coded) > self._pool.input_bytes or need_out > self._pool.output_bytes:
             return False
         batch = self._open
-        if batch is not None and (batch.input_bytes + len(coded) > self._pool.input_bytes
-                                  or batch.output_bytes + need_out > self._pool.output_bytes):
+        if batch is not None and not batch.has_room(self._pool, len(coded), need_out):
             self._dispatch()
             batch = None
         if batch is None:

@@ -14,7 +14,7 @@ from dataclasses import dataclass, field, replace
 from typing import BinaryIO
 
 from bitmend.container import format as fmt
-from bitmend.container.workers import SlotPool, Task, shared_views
+from bitmend.container.workers import SlotBatch, SlotPool, shared_views
 
 # sinks that copy (or write out) what they are given before write() returns, and for which
 # one write of many frames is the same as many writes (not a datagram socket): a slot's
@@ -70,12 +70,8 @@ def _encode_batch(token: int, slot: int, items: list[fmt.FrameHeader | Run]) -> 
 
 
 @dataclass
-class _Batch:
-    slot: int
+class _Batch(SlotBatch):
     headers: list[fmt.FrameHeader | Run] = field(default_factory=list)
-    input_bytes: int = 0
-    output_bytes: int = 0
-    task: Task | None = None
 
 
 class BatchEncoder:
@@ -113,8 +109,7 @@ class BatchEncoder:
             self._write_ready(wait=False)
             return
         batch = self._open
-        if batch is not None and (batch.input_bytes + len(payload) > self._pool.input_bytes
-                                  or batch.output_bytes + size > self._pool.output_bytes):
+        if batch is not None and not batch.has_room(self._pool, len(payload), size):
             self._dispatch()
             batch = None
         if batch is None:

@@ -25,6 +25,7 @@ import multiprocessing
 import os
 import signal
 from collections import deque
+from dataclasses import dataclass
 from typing import Any, Callable
 
 from bitmend.errors import ContainerError, SettingError
@@ -224,3 +225,20 @@ class SlotPool:
         for worker in workers:
             worker.stop()
         _SHARED.pop(self.token, None)
+
+
+@dataclass
+class SlotBatch:
+    """Frames gathered into one shared slot, then sent to a worker as one task: the slot's
+    input and output bytes used so far, and the task once sent. Encode and decode batches
+    add their own frame lists."""
+
+    slot: int
+    input_bytes: int = 0
+    output_bytes: int = 0
+    task: Task | None = None
+
+    def has_room(self, pool: SlotPool, input_bytes: int, output_bytes: int) -> bool:
+        """Whether one more frame of these sizes fits the slot's input and output."""
+        return (self.input_bytes + input_bytes <= pool.input_bytes
+                and self.output_bytes + output_bytes <= pool.output_bytes)
