@@ -218,12 +218,7 @@ def _check_encoder_settings(code, depth: int, frame_bytes: int, repair: Optional
 
     from bitmend.container.writer import FrameWriter
 
-    try:
-        FrameWriter(io.BytesIO(), code, depth, frame_bytes, repair=repair)
-    except BitmendError:
-        raise
-    except ValueError as exc:  # the writer's own limits (a code too long for the frame size, ...)
-        raise _usage(str(exc)) from None
+    FrameWriter(io.BytesIO(), code, depth, frame_bytes, repair=repair)  # its limits raise SettingError
     if output_udp is not None:
         from bitmend.datagrams import check_fits_datagram
         check_fits_datagram(code, depth, frame_bytes)
@@ -661,12 +656,7 @@ def _simulation_inputs(code: str, code_file: Optional[str], channel: list[str], 
     grid = sim.parse_sweep(sweep) if sweep else None
     if plot:
         from bitmend.plot import check_plot_path
-        try:
-            check_plot_path(plot)
-        except BitmendError:
-            raise
-        except ValueError as exc:  # a file type that is not drawn
-            raise _usage(str(exc)) from None
+        check_plot_path(plot)  # SettingError for a file type that is not drawn
     return custom, grid
 
 
