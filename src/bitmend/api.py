@@ -542,6 +542,34 @@ class Decoded:
     report: DecodeReport
 
 
+class _Pieces(io.RawIOBase):
+    """A write-only sink that keeps what it is given and joins it once at the end: one copy
+    of the container instead of a growing buffer's. Frame runs arrive as fresh arrays the
+    writer never touches again and are kept as they are; anything else is copied."""
+
+    whole_writes = True  # copies (or keeps) each write before returning; see batch_encode
+
+    def __init__(self) -> None:
+        super().__init__()
+        self._pieces: list[bytes | memoryview] = []
+
+    def writable(self) -> bool:
+        return True
+
+    def write(self, data) -> int:
+        if isinstance(data, bytes):
+            self._pieces.append(data)
+        elif type(data).__name__ == "ndarray" and data.flags.owndata:  # a frame run (format.encode_frames)
+            self._pieces.append(memoryview(data))
+        else:
+            data = bytes(data)
+            self._pieces.append(data)
+        return len(data)
+
+    def joined(self) -> bytes:
+        return b"".join(self._pieces)
+
+
 def encode_bytes(data: bytes, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
                  frame_bytes: int = DEFAULT_FRAME_BYTES, stream_id: int | None = None,
                  repair: str | tuple[int, int] | None = None, key: bytes | None = None, jobs: int = 1) -> bytes:
@@ -549,10 +577,10 @@ def encode_bytes(data: bytes, code: CodeChoice = DEFAULT_CODE, depth: int = DEFA
     for Encoder;
     stream_id is drawn at random unless given (give one only to make output reproducible);
     repair 'R/K' adds R repair frames after every K data frames."""
-    sink = io.BytesIO()
+    sink = _Pieces()
     with Encoder(sink, code, depth, frame_bytes, stream_id=stream_id, repair=repair, key=key, jobs=jobs) as enc:
         enc.write(data)
-    return sink.getvalue()
+    return sink.joined()
 
 
 def decode_bytes(container: bytes, on_error: str = "keep", key: bytes | None = None,

@@ -124,6 +124,39 @@ def _encode_words(code: BinaryLinearCode, lay: SegmentLayout, message: bytes) ->
     return bitfields.to_bytes(out, lay.coded_bytes)
 
 
+def encode_segments(code: BlockCode, depth: int, messages: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
+    """encode_segment of every row of messages (count, message_bytes uint8), as the rows of
+    out (a (count, coded_bytes) uint8 array or view, made when not given): the same bytes.
+
+    When a segment's message bits fill whole groups (8 * message_bytes a multiple of D*k
+    bits) and its coded bits whole bytes, the segments laid end to end are one segment of
+    count groups as many: one kernel call codes them all."""
+    count, message_bytes = messages.shape
+    lay = layout(code, depth, message_bytes)
+    if out is None:
+        out = np.empty((count, lay.coded_bytes), dtype=np.uint8)
+    if count == 0:
+        return out
+    exact = (8 * message_bytes) % (depth * lay.block_message_bits) == 0 and lay.coded_bits % 8 == 0
+    if exact:
+        out[:] = _segment_array(code, depth, np.ascontiguousarray(messages).reshape(-1)).reshape(count, -1)
+        return out
+    for i in range(count):
+        out[i] = _segment_array(code, depth, messages[i])
+    return out
+
+
+def _segment_array(code: BlockCode, depth: int, message: np.ndarray) -> np.ndarray:
+    """encode_segment as a uint8 array: for the fused kernels, a view of their output
+    buffer (no copy to bytes and back)."""
+    lay = layout(code, depth, len(message))
+    engine = code.generic_engine
+    if engine is not None and compiled(lay.coded_bits) is not None and _plan(engine, depth).encode_kind != "words" \
+            and (depth == 1 or depth % 8 == 0):
+        return _encode_fused_words(engine, lay, message).view(np.uint8)[: lay.coded_bytes]
+    return np.frombuffer(encode_segment(code, depth, message), dtype=np.uint8)
+
+
 def decode_segment(code: BlockCode, depth: int, coded: bytes | np.ndarray,
                    message_bytes: int) -> tuple[bytes, np.ndarray]:
     """De-interleave and correct a segment carrying message_bytes bytes.
@@ -313,11 +346,16 @@ def _native(nbits: int) -> np.ndarray:
 
 
 def _encode_fused(code: BinaryLinearCode, lay: SegmentLayout, message: bytes) -> bytes:
+    if _plan(code, lay.depth).encode_kind == "words":
+        return _encode_words(code, lay, message)
+    return memoryview(_encode_fused_words(code, lay, message)).cast("B")[: lay.coded_bytes].tobytes()
+
+
+def _encode_fused_words(code: BinaryLinearCode, lay: SegmentLayout, message: bytes | np.ndarray) -> np.ndarray:
+    """The fused kernels' native word buffer holding the coded segment (plans other than "words")."""
     fused = _fused()
     plan = _plan(code, lay.depth)
     k, n = code.k, code.n
-    if plan.encode_kind == "words":
-        return _encode_words(code, lay, message)
     if plan.encode_kind == "linear":
         m = _octets_per_step(code)
         steps = -(-lay.blocks // (8 * m))
@@ -332,7 +370,7 @@ def _encode_fused(code: BinaryLinearCode, lay: SegmentLayout, message: bytes) ->
         src = fused.native_words(message, lay.blocks * k)
         out = _native(lay.coded_bits)
         fused.encode_octets(src, lay.groups, lay.depth // 8, k, code.r, plan.encode_table, plan.chunk_bits, out)
-    return memoryview(out).cast("B")[: lay.coded_bytes].tobytes()
+    return out
 
 
 def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,

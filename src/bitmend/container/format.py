@@ -37,7 +37,7 @@ from bitmend.codes.base import FAILED, BlockCode
 from bitmend.codes.catalog import MAX_DEPTH, code_by_id, get_code
 from bitmend.codes.linear import MAX_MESSAGE_BITS, MAX_PARITY_BITS, BinaryLinearCode, CodeDefinitionError
 from bitmend.errors import ContainerError, SettingError
-from bitmend.interleave import decode_segment, encode_segment, layout, sized_layout
+from bitmend.interleave import decode_segment, encode_segment, encode_segments, layout, sized_layout
 
 FORMAT_VERSION = 2  # the version this bitmend writes; it reads every version in HEADER_LAYOUTS
 # 64-bit sync marker: 32 ones, no run longer than 4, and for every shift s the marker
@@ -423,3 +423,67 @@ def encode_frame(header: FrameHeader, payload: bytes, key: bytes | None = None) 
     definition = encode_definition(header.code, header.version) if header.code_id == CUSTOM_CODE_ID else b""
     return (MARKER_BYTES + coded_header + definition + encode_segment(header.code, header.depth, message)
             + definition + coded_header)
+
+
+def run_records(first: FrameHeader, count: int) -> np.ndarray:
+    """The header records of `count` full frames in a row, the first one's header `first`
+    and each next one `FrameHeader.next()` of the one before (sequence number + 1, position
+    + length, mod 2^32 and 2^48), as a (count, RECORD_BYTES) array: the fixed fields once,
+    the counters as columns, one CRC-32C per row. Version 2 headers only."""
+    if first.version != FORMAT_VERSION or first.last:
+        raise ValueError("a run of frames has version 2 headers and no closing flag")
+    records = np.tile(np.frombuffer(first.record(), dtype=np.uint8), (count, 1))
+    steps = np.arange(count, dtype=np.uint64)
+    seq = (np.uint64(first.seq) + steps) % np.uint64(SEQ_MODULUS)
+    position = (np.uint64(first.position) + steps * np.uint64(first.length)) % np.uint64(1 << POSITION_BITS)
+    records[:, 12:16] = seq.astype(">u4").view(np.uint8).reshape(count, 4)
+    records[:, 16:22] = position.astype(">u8").view(np.uint8).reshape(count, 8)[:, 2:]
+    body = RECORD_BYTES - CRC_BYTES
+    flat = records.tobytes()
+    checks = np.fromiter((crc32c(flat[i * RECORD_BYTES: i * RECORD_BYTES + body]) for i in range(count)),
+                         dtype=np.uint32, count=count)
+    records[:, body:] = checks.astype(">u4").view(np.uint8).reshape(count, 4)
+    return records
+
+
+def encode_frames(first: FrameHeader, payloads: bytes | memoryview | np.ndarray, key: bytes | None = None) -> np.ndarray:
+    """The frames of a run of full data frames (run_records), payloads back to back,
+    first.length bytes each, as one uint8 array: the bytes encode_frame would give frame
+    by frame, made with one header-coding call and one payload-coding plan for all."""
+    length = first.length
+    flat = np.frombuffer(payloads, dtype=np.uint8) if not isinstance(payloads, np.ndarray) else payloads
+    if length == 0 or len(flat) % length:
+        raise ValueError(f"a run holds whole payloads of {length} bytes, got {len(flat)} bytes")
+    if first.keyed and key is None:
+        raise ValueError("a keyed frame needs its key")
+    count = len(flat) // length
+    records = run_records(first, count)
+    # each record is exactly one header group (20 Golay messages), so the records end to end
+    # code as one segment whose groups are the frames' headers
+    headers = encode_segments(header_code(), first.layout.depth, records.reshape(1, -1)).reshape(count, -1)
+    messages = np.empty((count, first.message_bytes), dtype=np.uint8)
+    payload_rows = flat.reshape(count, length)
+    messages[:, :length] = payload_rows
+    checks = np.fromiter((crc32c(row) for row in payload_rows), dtype=np.uint32, count=count)
+    messages[:, length: length + CRC_BYTES] = checks.astype(">u4").view(np.uint8).reshape(count, 4)
+    if first.keyed:
+        body = RECORD_BYTES - CRC_BYTES
+        for i in range(count):
+            messages[i, length + CRC_BYTES:] = np.frombuffer(
+                hmac.new(key, records[i, :body].tobytes() + payload_rows[i].tobytes(), hashlib.sha256).digest()[:TAG_BYTES],
+                dtype=np.uint8)
+    definition = (np.frombuffer(encode_definition(first.code, first.version), dtype=np.uint8)
+                  if first.code_id == CUSTOM_CODE_ID else np.zeros(0, dtype=np.uint8))
+    header_bytes, definition_bytes = first.header_bytes, first.definition_bytes
+    run = np.empty(count * first.frame_bytes, dtype=np.uint8)
+    frames = run.reshape(count, first.frame_bytes)
+    frames[:, : len(MARKER_BYTES)] = np.frombuffer(MARKER_BYTES, dtype=np.uint8)
+    at = len(MARKER_BYTES)
+    coded_at = at + header_bytes + definition_bytes
+    encode_segments(first.code, first.depth, messages, out=frames[:, coded_at: coded_at + first.coded_bytes])
+    for part in (headers, definition, None, definition, headers):
+        width = first.coded_bytes if part is None else part.shape[-1]
+        if part is not None:
+            frames[:, at: at + width] = part
+        at += width
+    return run

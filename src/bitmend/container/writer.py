@@ -29,6 +29,10 @@ def resolve_code(code: str | BlockCode) -> tuple[int, BinaryLinearCode | None]:
     return fmt.CUSTOM_CODE_ID, definable_form(code)
 
 
+RUN_BYTES = 1 << 20  # payload bytes coded in one run of frames (bounds its arrays to a few times this)
+RUN_FRAMES = 4096  # and at most this many frames, however small
+
+
 class FrameWriter:
     """Frames bytes written to it onto sink, frame_bytes of payload per frame.
 
@@ -108,17 +112,26 @@ class FrameWriter:
         if self._group is not None and (self._group.add(header, payload) or last):
             self.end_group()
 
-    def _emit_run(self) -> int:
-        """With workers and no repair groups: every full frame pending but the one held back,
-        handed over in one piece (the same headers _emit would make, without a Python step
-        per frame here); the bytes handed over."""
+    def _emit_run(self, pending: memoryview) -> int:
+        """Without repair groups: every full frame pending but the one held back, coded in
+        runs (format.encode_frames: the same bytes _emit would make frame by frame, without
+        a Python step per frame) or handed to the workers in one piece; the bytes sent."""
         size = self._frame_bytes
-        count = (len(self._pending) - 1) // size  # keep one frame back
+        count = (len(pending) - 1) // size  # keep one frame back
         if count < 2:
             return 0
         first = self._header(size, False)
-        with memoryview(self._pending) as pending:
+        if self._batches is not None:
             self._batches.send_run(first, pending[: count * size])
+        else:
+            step = max(2, min(RUN_FRAMES, RUN_BYTES // size))  # bounds the run's arrays
+            for done in range(0, count, step):
+                take = min(step, count - done)
+                frames = fmt.encode_frames(first, pending[done * size: (done + take) * size], self._key)
+                self._sink.write(frames)
+                self._bytes_written += len(frames)
+                first = replace(first, seq=(first.seq + take) % fmt.SEQ_MODULUS,
+                                position=(first.position + take * size) % (1 << fmt.POSITION_BITS))
         self._seq = (self._seq + count) % fmt.SEQ_MODULUS
         self._position += count * size
         return count * size
@@ -149,12 +162,18 @@ class FrameWriter:
     def write(self, data: bytes) -> int:
         if self.closed:
             raise ValueError("write to a closed frame writer")
-        self._pending += data
-        self.bytes_in += len(data)
         size = self._frame_bytes
+        self.bytes_in += len(data)
+        if self._group is None and not self._pending and len(data) > 2 * size:
+            # code straight from the caller's buffer; only the tail is kept
+            with memoryview(data) as view, view.cast("B") as flat:
+                self._pending += flat[self._emit_run(flat):]
+            return len(data)
+        self._pending += data
         start = 0
-        if self._batches is not None and self._group is None:
-            start = self._emit_run()
+        if self._group is None:
+            with memoryview(self._pending) as pending:
+                start = self._emit_run(pending)
         while len(self._pending) - start > size:  # strictly more: keep one frame back
             self._emit(bytes(self._pending[start: start + size]), last=False)
             start += size

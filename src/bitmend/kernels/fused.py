@@ -307,7 +307,16 @@ def encode_linear(in8, length, octets, k, n, table, out):
     x1 = U64(0)
     x2 = U64(0)
     whole = min(octets, length // k)  # octets whose bytes are all present
-    for t in range(octets):
+    first = 0
+    if nw == 1:  # n <= 8 (hamming-7-4, secded-8-4): one word per step, no bounds checks
+        for t in range(whole):
+            base = t * k
+            x0 = table[0, in8[base], 0]
+            for pos in range(1, k):
+                x0 ^= table[pos, in8[base + pos], 0]
+            index, acc, held = put(out, index, acc, held, x0 >> U64(64 - nbits), nbits)
+        first = whole
+    for t in range(first, octets):
         base = t * k
         byte = in8[base] if t < whole or base < length else 0
         x0 = table[0, byte, 0]
