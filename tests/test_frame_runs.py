@@ -10,11 +10,13 @@ import os
 import numpy as np
 import pytest
 
+import bitmend
 from bitmend.codes.catalog import code_id, get_code
 from bitmend.codes.linear import BinaryLinearCode
 from bitmend.container import format as fmt
+from bitmend.container import reader
 from bitmend.container.writer import FrameWriter
-from bitmend.interleave import encode_segment, encode_segments
+from bitmend.interleave import decode_segment, decode_segments, encode_segment, encode_segments
 
 
 def frame_by_frame(first: fmt.FrameHeader, payloads: bytes, key: bytes | None = None) -> bytes:
@@ -86,3 +88,47 @@ def test_writer_runs_match_one_frame_at_a_time() -> None:
         one_by_one.write(data[start: start + 500])
     one_by_one.close()
     assert whole.getvalue() == pieces.getvalue()
+
+
+# ---- decoding in runs ---------------------------------------------------------------------
+
+@pytest.mark.parametrize("name, depth, message_bytes", [
+    ("hamming-7-4", 1, 16388), ("golay-24-12", 8, 16388), ("golay-24-12", 20, 30), ("bch-63-51", 3, 100)])
+def test_decoded_segments_are_segment_by_segment(name: str, depth: int, message_bytes: int) -> None:
+    code = get_code(name)
+    messages = np.frombuffer(os.urandom(4 * message_bytes), dtype=np.uint8).reshape(4, message_bytes)
+    coded = encode_segments(code, depth, messages).copy()
+    rng = np.random.default_rng(11)
+    flips = rng.random(coded.shape) < 0.01  # about 1% of bytes hit by one bit each: some blocks fail
+    coded[flips] ^= np.uint8(0x10)
+    got_messages, got_status = decode_segments(code, depth, coded, message_bytes)
+    for i in range(4):
+        want_message, want_status = decode_segment(code, depth, coded[i].tobytes(), message_bytes)
+        assert got_messages[i].tobytes() == want_message
+        assert np.array_equal(got_status[i], want_status)
+
+
+def _reports(container: bytes, key: bytes | None = None) -> tuple[bytes, str]:
+    out = bitmend.decode_bytes(container, key=key)
+    return out.data, out.report.to_jsonl()
+
+
+@pytest.mark.parametrize("name, depth", [("hamming-7-4", 1), ("golay-24-12", 8), ("secded-72-64", 8)])
+def test_runs_decode_as_frame_by_frame_on_a_damaged_stream(monkeypatch, name: str, depth: int) -> None:
+    # random bit errors everywhere, one frame's leading header wrecked (its copy is used),
+    # one frame cut out (lost) and some bytes slipped in: with runs on, the data, every
+    # frame report and the summary are those of the frame-by-frame path (runs off)
+    data = os.urandom(60_000)
+    key = b"river-gauge key for the run tests"
+    container = bytearray(bitmend.encode_bytes(data, code=name, depth=depth, frame_bytes=2000, stream_id=77, key=key))
+    size = len(container) // 31  # 30 full frames and a short closing one: close to a frame
+    rng = np.random.default_rng(5)
+    for bit in rng.choice(8 * len(container), size=len(container) // 400, replace=False):
+        container[bit // 8] ^= 1 << (bit % 8)
+    frame = len(bitmend.encode_bytes(bytes(2000), code=name, depth=depth, frame_bytes=2000, stream_id=77, key=key)) // 2
+    container[3 * frame + 8: 3 * frame + 40] = bytes(32)  # frame 3's leading header
+    del container[10 * frame: 11 * frame]  # frame 10 lost outright
+    container[20 * frame + 500: 20 * frame + 500] = b"\x55\xaa\x13"  # bytes slipped into frame 21
+    with_runs = _reports(bytes(container), key)
+    monkeypatch.setattr(reader, "RUN_FRAMES", 0)
+    assert with_runs == _reports(bytes(container), key)

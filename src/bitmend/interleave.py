@@ -172,6 +172,26 @@ def decode_segment(code: BlockCode, depth: int, coded: bytes | np.ndarray,
     return _decode_engine(engine, lay, raw, message_bytes)
 
 
+def decode_segments(code: BlockCode, depth: int, coded: np.ndarray,
+                    message_bytes: int) -> tuple[np.ndarray, np.ndarray]:
+    """decode_segment of every row of coded (count, coded_bytes uint8): (messages as a
+    (count, message_bytes) array, per-block status as a (count, blocks) array). Rows laid
+    end to end are decoded in one call when their groups fill whole bytes and carry no
+    padding (see encode_segments); otherwise row by row."""
+    count = coded.shape[0]
+    lay = layout(code, depth, message_bytes)
+    exact = (8 * message_bytes) % (depth * lay.block_message_bits) == 0 and lay.coded_bits % 8 == 0
+    if exact and count and coded.shape[1] == lay.coded_bytes:
+        message, status = decode_segment(code, depth, np.ascontiguousarray(coded).reshape(-1), count * message_bytes)
+        return np.frombuffer(message, dtype=np.uint8).reshape(count, message_bytes), status.reshape(count, -1)
+    messages = np.empty((count, message_bytes), dtype=np.uint8)
+    status = np.empty((count, lay.blocks), dtype=np.uint8)
+    for i in range(count):
+        message, status[i] = decode_segment(code, depth, coded[i], message_bytes)
+        messages[i] = np.frombuffer(message, dtype=np.uint8)
+    return messages, status
+
+
 def _decode_engine(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
                    message_bytes: int) -> tuple[bytes, np.ndarray]:
     """decode_segment for the generic engine: numpy twins for small work, else fused kernels."""

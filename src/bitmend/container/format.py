@@ -236,6 +236,22 @@ class FrameHeader:  # noqa: PLW1641 (cached_property needs __dict__; frozen stil
                     + (self.position % (1 << POSITION_BITS)).to_bytes(6, "big") + struct.pack(">I", length))
         return body + struct.pack(">I", crc32c(body))
 
+    def following(self, count: int) -> list["FrameHeader"]:
+        """next(), next().next(), ... count headers: made by copying this header's fields
+        (its sizes, computed once, come along) and setting the counters; a run of frames
+        needs one per frame and replace() costs more than the frame's other bookkeeping."""
+        fields = dict(self.__dict__)
+        fields["last"] = False
+        seq, position, length = self.seq, self.position, self.length
+        headers = []
+        for i in range(1, count + 1):
+            header = object.__new__(FrameHeader)
+            fields["seq"] = (seq + i) % SEQ_MODULUS
+            fields["position"] = (position + i * length) % (1 << POSITION_BITS)
+            header.__dict__.update(fields)
+            headers.append(header)
+        return headers
+
     def next(self) -> "FrameHeader":
         """The header a full frame after this one would carry (used to predict a lost header):
         same stream, code, depth and length, the next sequence number and stream position."""

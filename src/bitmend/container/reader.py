@@ -19,12 +19,14 @@ import numpy as np
 from bitarray import bitarray
 
 from bitmend.container import format as fmt
-from bitmend.interleave import decode_segment, decode_truncated
+from bitmend.interleave import decode_segment, decode_segments, decode_truncated
 from bitmend.kernels import small
 from bitmend.kernels.loader import compiled
 from bitmend.kernels.status import FAILED
 
 READ_CHUNK = 1 << 20
+RUN_FRAMES = 256  # frames at most decoded together in a run (see FrameScanner._run_at)
+MAX_RUN_BYTES = 2 << 20  # and at most this much of the window
 MAX_LISTED_FAILED = 4096  # failed block indexes listed per frame report
 SEARCH_PIECE = 1 << 16  # bytes scanned per marker-search step
 SMALL_SEARCH_PIECE = 1 << 11  # the same while the compiled kernels are not loaded
@@ -315,6 +317,54 @@ class FrameScanner:
         return DecodedFrame(header, bit >> 3, bit, payload, status, crc_ok, not complete, from_copy,
                             marker_distance, authentic)
 
+    def _run_at(self, bit: int, locked: fmt.FrameHeader) -> list[DecodedFrame]:
+        """While locked at a byte boundary: the frames that follow `locked` without a break,
+        from those already in the window, decoded together (header records in one call,
+        payloads with one code plan). A frame joins the run only if its header decodes with
+        no uncorrectable codeword to exactly the record its place predicts (locked.next(),
+        its next(), ...: same stream, code, depth, length and flags, the next sequence
+        number and position, no closing flag), so the run holds what the frame-by-frame
+        path would find; the first frame that differs ends the run and is left to it."""
+        if (bit & 7 or locked.last or locked.version != fmt.FORMAT_VERSION or locked.code_id == fmt.CUSTOM_CODE_ID
+                or not self._decode_payloads or self._batches is not None):
+            return []
+        size = locked.frame_bytes
+        start = (bit - self._base) >> 3
+        count = min(RUN_FRAMES, (len(self._buf) - start) // size, MAX_RUN_BYTES // size)
+        if count < 2:
+            return []
+        expected = locked.next()
+        grid = np.frombuffer(self._buf, dtype=np.uint8, count=count * size, offset=start).reshape(count, size)
+        header_bytes, record_bytes = expected.header_bytes, fmt.RECORD_BYTES
+        records, status = decode_segment(fmt.header_code(), expected.layout.depth,
+                                         np.ascontiguousarray(grid[:, 8: 8 + header_bytes]), count * record_bytes)
+        records = np.frombuffer(records, dtype=np.uint8).reshape(count, record_bytes)
+        matches = (records == fmt.run_records(expected, count)).all(axis=1)
+        matches &= (status.reshape(count, -1) != FAILED).all(axis=1)
+        count = int(np.argmin(matches)) if not matches.all() else count
+        if count < 2:
+            return []
+        grid = grid[:count]
+        coded_at = 8 + header_bytes
+        messages, block_status = decode_segments(expected.code, expected.depth,
+                                                 grid[:, coded_at: coded_at + expected.coded_bytes],
+                                                 expected.message_bytes)
+        marker_distance = np.unpackbits(grid[:, :8] ^ np.frombuffer(fmt.MARKER_BYTES, dtype=np.uint8),
+                                        axis=1).sum(axis=1)
+        length = expected.length
+        frames = []
+        for i, header in enumerate(locked.following(count)):
+            message = messages[i]
+            payload = message[:length].tobytes()
+            crc_ok = int.from_bytes(message[length: length + fmt.CRC_BYTES], "big") == fmt.crc32c(payload)
+            authentic: bool | None = None
+            if header.keyed and self._key is not None:
+                authentic = crc_ok and fmt.tag_matches(self._key, header, payload, message[length + fmt.CRC_BYTES:])
+            frame_bit = bit + 8 * size * i
+            frames.append(DecodedFrame(header, frame_bit >> 3, frame_bit, payload, block_status[i], crc_ok,
+                                       marker_distance=int(marker_distance[i]), authentic=authentic))
+        return frames
+
     def _damaged(self, frame: DecodedFrame | None) -> bool:
         if frame is None:
             return False
@@ -332,6 +382,17 @@ class FrameScanner:
         fallback_frame: DecodedFrame | None = None  # the frame that may be damaged
         at_start = True  # input should begin with a frame: try its header even if the marker is hit
         while True:
+            run = self._run_at(pos, locked) if locked is not None else []
+            if run:
+                for frame in run:
+                    yield frame
+                last = run[-1]
+                pos = covered = last.bit_offset + 8 * last.header.frame_bytes
+                locked = last.header
+                fallback = last.bit_offset + MARKER_BITS if not last.crc_ok else None
+                fallback_frame = last
+                self._drop_before(pos if fallback is None else fallback)
+                continue
             searched = locked is None and not at_start
             if searched:
                 found = self._search(pos)

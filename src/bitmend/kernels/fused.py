@@ -354,7 +354,24 @@ def decode_linear(in8, length, octets, k, n, code_k, r, table, syndrome_mask, le
     m2 = syndrome_mask[2]
     x1 = U64(0)
     x2 = U64(0)
-    for t in range(octets):
+    first = 0
+    if nw == 1:  # n <= 8 bytes a step (hamming-7-4, secded-8-4): one word, no bounds checks
+        for t in range(whole):
+            base = t * n
+            x0 = table[0, in8[base], 0]
+            for pos in range(1, n):
+                x0 ^= table[pos, in8[base + pos], 0]
+            if x0 & m0:
+                for q in range(per):
+                    s = vector_field(x0, x1, x2, 8 * k + q * r, r)
+                    if s != U64(0):
+                        w = leader_weight[s]
+                        if w != FAILED:
+                            x0, x1, x2 = vector_xor(x0, x1, x2, q * code_k, code_k, leader_message[s])
+                        status[per * t + q] = w
+            index, acc, held = put(out, index, acc, held, x0 >> U64(64 - 8 * k), 8 * k)
+        first = whole
+    for t in range(first, octets):
         base = t * n
         byte = in8[base] if t < whole or base < length else 0
         x0 = table[0, byte, 0]
