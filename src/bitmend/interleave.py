@@ -128,22 +128,36 @@ def encode_segments(code: BlockCode, depth: int, messages: np.ndarray, out: np.n
     """encode_segment of every row of messages (count, message_bytes uint8), as the rows of
     out (a (count, coded_bytes) uint8 array or view, made when not given): the same bytes.
 
-    When a segment's message bits fill whole groups (8 * message_bytes a multiple of D*k
-    bits) and its coded bits whole bytes, the segments laid end to end are one segment of
-    count groups as many: one kernel call codes them all."""
+    When a segment's groups fill whole bytes, both of message (padded with the zeros it is
+    padded with anyway) and of code, the segments laid end to end are one segment of count
+    times as many groups: one kernel call codes them all."""
     count, message_bytes = messages.shape
     lay = layout(code, depth, message_bytes)
     if out is None:
         out = np.empty((count, lay.coded_bytes), dtype=np.uint8)
     if count == 0:
         return out
-    exact = (8 * message_bytes) % (depth * lay.block_message_bits) == 0 and lay.coded_bits % 8 == 0
-    if exact:
+    padded = _padded_message_bytes(lay)
+    if padded is not None:
+        if padded != message_bytes:  # the zeros a segment is padded with anyway, made explicit
+            whole = np.zeros((count, padded), dtype=np.uint8)
+            whole[:, :message_bytes] = messages
+            messages = whole
         out[:] = _segment_array(code, depth, np.ascontiguousarray(messages).reshape(-1)).reshape(count, -1)
         return out
     for i in range(count):
         out[i] = _segment_array(code, depth, messages[i])
     return out
+
+
+def _padded_message_bytes(lay: SegmentLayout) -> int | None:
+    """Bytes of a segment's message padded to its whole groups, when both that and the
+    coded segment are whole bytes: segments of this layout then lie end to end as one
+    segment of as many more groups (each group codes alone), else None."""
+    message_bits = lay.groups * lay.depth * lay.block_message_bits
+    if message_bits % 8 or lay.coded_bits % 8:
+        return None
+    return message_bits // 8
 
 
 def _segment_array(code: BlockCode, depth: int, message: np.ndarray) -> np.ndarray:
@@ -176,14 +190,15 @@ def decode_segments(code: BlockCode, depth: int, coded: np.ndarray,
                     message_bytes: int) -> tuple[np.ndarray, np.ndarray]:
     """decode_segment of every row of coded (count, coded_bytes uint8): (messages as a
     (count, message_bytes) array, per-block status as a (count, blocks) array). Rows laid
-    end to end are decoded in one call when their groups fill whole bytes and carry no
-    padding (see encode_segments); otherwise row by row."""
+    end to end are decoded in one call when their groups fill whole bytes (see
+    encode_segments); otherwise row by row."""
     count = coded.shape[0]
     lay = layout(code, depth, message_bytes)
-    exact = (8 * message_bytes) % (depth * lay.block_message_bits) == 0 and lay.coded_bits % 8 == 0
-    if exact and count and coded.shape[1] == lay.coded_bytes:
-        message, status = decode_segment(code, depth, np.ascontiguousarray(coded).reshape(-1), count * message_bytes)
-        return np.frombuffer(message, dtype=np.uint8).reshape(count, message_bytes), status.reshape(count, -1)
+    padded = _padded_message_bytes(lay)
+    if padded is not None and count and coded.shape[1] == lay.coded_bytes:
+        message, status = decode_segment(code, depth, np.ascontiguousarray(coded).reshape(-1), count * padded)
+        messages = np.frombuffer(message, dtype=np.uint8).reshape(count, padded)[:, :message_bytes]
+        return messages, status.reshape(count, -1)
     messages = np.empty((count, message_bytes), dtype=np.uint8)
     status = np.empty((count, lay.blocks), dtype=np.uint8)
     for i in range(count):
