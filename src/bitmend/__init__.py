@@ -6,31 +6,49 @@
     result.data, result.report.summary.complete
 
 Every error bitmend raises on purpose derives from bitmend.BitmendError (see
-bitmend.errors for the groups). Errors of the planning, simulation, campaign, plotting and
-network parts are exported here too, but their modules load only when such a name is first
-used, so that `import bitmend` stays quick for a small encode.
+bitmend.errors for the groups). The public names below are loaded when first used (PEP 562):
+`import bitmend` itself imports only the error classes, so that the command line starts
+without numpy when a command does not need it (a small encode), and the planning,
+simulation, campaign, plotting and network parts load only when one of their names is used.
 """
 
 from __future__ import annotations
 
 from importlib import import_module
 
-from bitmend.api import (Decoded, Decoder, Encoder, decode_bytes, encode_bytes, load_code_file, load_key_file,
-                         open)
-from bitmend.codes.base import BlockCode
-from bitmend.codes.bch import BCHCode, BCHParameterError
-from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH, UnknownCodeError, code_names, get_code
-from bitmend.codes.linear import BinaryLinearCode, CodeDefinitionError
-from bitmend.codes.reed_solomon import ReedSolomonCode, ReedSolomonParameterError
-from bitmend.container.assembler import DamagedDataError, NotAContainerError
-from bitmend.container.format import HeaderError, UnsupportedVersionError
-from bitmend.container.repair import RepairSpecError
 from bitmend.errors import BitmendError, CodeError, ContainerError, SettingError
-from bitmend.keyfile import KeyFileError
-from bitmend.records import RecordError, decode_records, encode_records
 
-# name -> module that defines it, imported on first use (PEP 562)
+# name -> module that defines it, imported on first use
 _LAZY = {
+    "open": "bitmend.api",
+    "Encoder": "bitmend.api",
+    "Decoder": "bitmend.api",
+    "encode_bytes": "bitmend.api",
+    "decode_bytes": "bitmend.api",
+    "Decoded": "bitmend.api",
+    "load_code_file": "bitmend.api",
+    "load_key_file": "bitmend.keyfile",
+    "encode_records": "bitmend.records",
+    "decode_records": "bitmend.records",
+    "get_code": "bitmend.codes.catalog",
+    "code_names": "bitmend.codes.catalog",
+    "DEFAULT_CODE": "bitmend.codes.catalog",
+    "DEFAULT_DEPTH": "bitmend.codes.catalog",
+    "BlockCode": "bitmend.codes.base",
+    "BinaryLinearCode": "bitmend.codes.linear",
+    "BCHCode": "bitmend.codes.bch",
+    "ReedSolomonCode": "bitmend.codes.reed_solomon",
+    "UnknownCodeError": "bitmend.codes.catalog",
+    "CodeDefinitionError": "bitmend.codes.linear",
+    "BCHParameterError": "bitmend.codes.bch",
+    "ReedSolomonParameterError": "bitmend.codes.reed_solomon",
+    "HeaderError": "bitmend.container.format",
+    "UnsupportedVersionError": "bitmend.container.format",
+    "NotAContainerError": "bitmend.container.assembler",
+    "DamagedDataError": "bitmend.container.assembler",
+    "RepairSpecError": "bitmend.container.repair",
+    "KeyFileError": "bitmend.keyfile",
+    "RecordError": "bitmend.records",
     "ErasureCodeError": "bitmend.codes.erasure",
     "NotEnoughSymbolsError": "bitmend.codes.erasure",
     "SingularMatrixError": "bitmend.kernels.erasure_small",
@@ -44,25 +62,23 @@ _LAZY = {
     "WorkerStoppedError": "bitmend.container.workers",
 }
 
-__all__ = [
-    "open", "Encoder", "Decoder", "encode_bytes", "decode_bytes", "Decoded",
-    "encode_records", "decode_records", "load_code_file", "load_key_file",
-    "get_code", "code_names", "DEFAULT_CODE", "DEFAULT_DEPTH",
-    "BlockCode", "BinaryLinearCode", "BCHCode", "ReedSolomonCode",
-    "BitmendError", "CodeError", "ContainerError", "SettingError",
-    "UnknownCodeError", "CodeDefinitionError", "BCHParameterError", "ReedSolomonParameterError",
-    "HeaderError", "UnsupportedVersionError", "NotAContainerError", "DamagedDataError",
-    "RepairSpecError", "KeyFileError", "RecordError",
-    *_LAZY,
-]
+__all__ = ["BitmendError", "CodeError", "ContainerError", "SettingError", *_LAZY]
 __version__ = "0.1.0"
 
 
 def __getattr__(name: str):
-    """The exports of heavier modules, imported when first asked for."""
+    """A public name, imported from its module when first asked for; a submodule that was
+    not imported yet (`bitmend.api`), as when this package imported them all at once."""
     module = _LAZY.get(name)
     if module is None:
-        raise AttributeError(f"module 'bitmend' has no attribute {name!r}")
+        if name.startswith("_"):
+            raise AttributeError(f"module 'bitmend' has no attribute {name!r}")
+        try:
+            return import_module(f"{__name__}.{name}")
+        except ModuleNotFoundError as exc:
+            if exc.name != f"{__name__}.{name}":
+                raise
+            raise AttributeError(f"module 'bitmend' has no attribute {name!r}") from None
     value = getattr(import_module(module), name)
     globals()[name] = value  # later look-ups skip this function
     return value

@@ -17,21 +17,22 @@ from __future__ import annotations
 import io
 import os
 from dataclasses import dataclass
-from typing import BinaryIO, Callable, Iterator
+from typing import TYPE_CHECKING, BinaryIO, Callable, Iterator
 
 from bitmend.codes.base import BlockCode
 from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH, code_id
-from bitmend.codes.custom import MAX_DEFINITION_CHARS, parse_code_definition
 from bitmend.codes.linear import BinaryLinearCode, CodeDefinitionError
 from bitmend.container.assembler import (ON_ERROR_CHOICES, Assembler, AssemblerReadings, DamagedDataError,
                                         NotAContainerError)
 from bitmend.container.format import DEFAULT_FRAME_BYTES, check_depth, check_frame_bytes
 from bitmend.container.repair import parse_repair
 from bitmend.container.workers import resolve_jobs
-from bitmend.container.writer import FrameWriter
 from bitmend.errors import SettingError
 from bitmend.keyfile import MIN_KEY_BYTES, KeyFileError, load_key_file
 from bitmend.report import DecodeReport, FrameReport
+
+if TYPE_CHECKING:  # imported where used: a decoder needs neither the writer nor the definition parser
+    from bitmend.container.writer import FrameWriter
 
 __all__ = ["open", "Encoder", "Decoder", "encode_bytes", "decode_bytes", "Decoded", "load_code_file",
            "load_key_file", "KeyFileError", "NotAContainerError", "DamagedDataError"]
@@ -44,6 +45,8 @@ def load_code_file(path: str | os.PathLike) -> BinaryLinearCode:
     """A custom code from a text or JSON definition file (format in bitmend.codes.custom).
     Raises CodeDefinitionError (one line naming the file) for a malformed definition and
     OSError if the file cannot be read."""
+    from bitmend.codes.custom import MAX_DEFINITION_CHARS, parse_code_definition
+
     with io.open(path, "rb") as f:
         raw = f.read(MAX_DEFINITION_CHARS + 1)
     try:
@@ -117,6 +120,8 @@ class Encoder(io.BufferedIOBase):
         and a decoder with the same key delivers only frames whose tag matches."""
         super().__init__()
         _check_write_settings(code, depth, frame_bytes, repair)
+        from bitmend.container.writer import FrameWriter
+
         self._writer = FrameWriter(fileobj, code, depth, frame_bytes, stream_id, repair, _checked_key(key),
                                    resolve_jobs(jobs))
         self._fileobj = fileobj

@@ -6,7 +6,6 @@ exit codes. The rules for writing a file (temp file and rename, devices, FIFOs) 
 
 from __future__ import annotations
 
-import json
 import os
 import sys
 from contextlib import contextmanager
@@ -114,6 +113,8 @@ def report_end(reader, out, failure: Optional[BaseException]) -> Optional[str]:
     reason = stop_reason(failure)
     if reason is None:
         return reader.summary.to_json()
+    import json
+
     summary = json.loads(reader.summary.to_json())
     delivered = 0 if out is None or out.replaces_file else out.bytes_written
     summary.update(complete=False, stopped=reason, bytes_written=delivered)
@@ -130,6 +131,8 @@ def ledger_end(chain, failure: Optional[BaseException]) -> Optional[str]:
     reason = stop_reason(failure)
     if reason is None:
         return None
+    import json
+
     record = chain.ledger().to_dict()
     record["stopped"] = reason
     return json.dumps(record, indent=2)

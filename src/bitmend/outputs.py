@@ -33,10 +33,8 @@ import errno
 import os
 import re
 import signal
-import socket
 import stat
 import sys
-import tempfile
 from contextlib import contextmanager
 from typing import BinaryIO, Iterator, Mapping, Optional
 
@@ -325,6 +323,8 @@ def _open_direct(label: str, path: str, mode: int) -> Output:
     so that dropping it never has to push held bytes into a reader that has stalled."""
     try:
         if stat.S_ISSOCK(mode):
+            import socket  # here: most runs write no socket, and the import costs start-up time
+
             sock = socket.socket(socket.AF_UNIX, socket.SOCK_STREAM)
             try:
                 sock.connect(path)
@@ -340,6 +340,8 @@ def _open_direct(label: str, path: str, mode: int) -> Output:
 
 def _open_replacing(label: str, final: str, existing: Optional[os.stat_result]) -> Output:
     """A temp file beside `final`, with the mode (and owner) the finished file must have."""
+    import tempfile  # here: a run that writes stdout never needs it
+
     directory, name = os.path.split(final)
     with deferred_signals():  # the temp file is listed the moment it exists
         try:
