@@ -11,12 +11,14 @@ its --report or --ledger file still ends with its summary, marked "stopped".
 Options are checked by typer itself (ranges, choices, the callbacks of `bitmend.cli_options`);
 library errors become one line and an exit code in `_errors()`, in one place. Where and how
 outputs are written: bitmend.outputs. The library loads inside the commands that need it, so
-that a small encode or decode never imports planning, simulation, plotting or Dask.
+that a small encode or decode never imports planning, simulation, plotting or Dask, and a
+small file's encode (container/small_frames.py) not even numpy; only the command being run is
+built (`_app_for`).
 """
 
 from __future__ import annotations
 
-import json
+import os
 import sys
 from contextlib import contextmanager, nullcontext
 from typing import Iterator, Optional, Sequence
@@ -30,8 +32,10 @@ from bitmend.cli_io import (EXIT_BROKEN_PIPE, EXIT_DAMAGED, EXIT_OK, EXIT_UNREAD
 from bitmend.cli_options import (CODE_FILE_HELP, DECODE_JOBS_HELP, ENCODE_JOBS_HELP, KEY_FILE_HELP, Framing,
                                  OnError, Per, TextArgument, bit_flip_probability, command, positive_seconds,
                                  seconds_or_inf, simulated_bits, whole_number)
-from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH, MAX_DEPTH
-from bitmend.container.format import DEFAULT_FRAME_BYTES, MAX_PAYLOAD_BYTES
+# numpy-free copies of the catalog's and the format's defaults and limits (tests hold them equal):
+# importing codes.catalog or container.format here would load numpy for every command
+from bitmend.container.small_frames import (DEFAULT_CODE, DEFAULT_DEPTH, DEFAULT_FRAME_BYTES, MAX_DEPTH,
+                                            MAX_PAYLOAD_BYTES)
 from bitmend.errors import BitmendError, CodeError, ContainerError, SettingError
 from bitmend.live import DEFAULT_MAX_DELAY
 from bitmend.wording import counted
@@ -153,6 +157,8 @@ def codes(ctx: typer.Context, as_json: bool = typer.Option(False, "--json", help
     with _errors():
         facts = [_code_facts(name) for name in code_names()]
         if as_json:
+            import json
+
             typer.echo(json.dumps(facts, indent=2))
             return
         typer.echo(f"{'code':<15}{'n':>4}{'k':>4}{'rate':>8}{'d':>6}{'t':>4}{'detects':>9}  {'unit':<6}use")
@@ -192,6 +198,8 @@ def codes_show(name: Optional[str] = typer.Argument(None, metavar="[NAME]", clic
             raise _usage("name a catalog code (see `bitmend codes`) or give --code-file")
         profile = code_profile(_load_code(name, code_file), at=at)
         if as_json:
+            import json
+
             typer.echo(json.dumps(profile.to_dict(), indent=2))
             return
         for line in profile.render():
@@ -202,6 +210,8 @@ def codes_show(name: Optional[str] = typer.Argument(None, metavar="[NAME]", clic
 
 def _endpoint(name: Optional[str]):
     """The udp:HOST:PORT endpoint a name gives, or None for a file name."""
+    if not name or not name.startswith("udp:"):
+        return None  # as parse_endpoint says, without importing the network module for a file
     from bitmend.datagrams import parse_endpoint
 
     return parse_endpoint(name)
@@ -259,6 +269,11 @@ def encode(
     IN and -o may be udp:HOST:PORT: each datagram received is one record, sent as one frame;
     each frame sent to udp: is one datagram."""
     with _errors():
+        plain = (records is None and idle is None and repair is None and code_file is None and jobs <= 1
+                 and not source.startswith("udp:") and not (output or "").startswith("udp:"))
+        if plain and _small_input(source, code or DEFAULT_CODE):
+            _encode_small(source, output, code or DEFAULT_CODE, depth, frame_bytes, _load_key(key_file))
+            return
         source_udp, output_udp = _endpoint(source), _endpoint(output)
         _check_idle_input(idle, source_udp)
         if source_udp is not None and records is not None:
@@ -274,6 +289,34 @@ def encode(
                 _encode_datagrams(source_udp, output, output_udp, settings, idle, delay)
         else:
             _encode_stream(source, output, output_udp, settings, records, delay, jobs)
+
+
+def _small_input(source: str, code: str) -> bool:
+    """True when IN is a regular file (or stdin redirected from one) small enough for the
+    plain-Python frame writer with this code (container/small_frames.py), which then spares
+    the run numpy's import: the same container, in a fraction of the start-up time."""
+    import stat
+
+    from bitmend.container.small_frames import small_enough
+
+    try:
+        info = os.fstat(0) if source == "-" else os.stat(source)
+    except OSError:
+        return False  # the normal path reports it
+    return stat.S_ISREG(info.st_mode) and small_enough(code, info.st_size)
+
+
+def _encode_small(source: str, output: Optional[str], code: str, depth: int, frame_bytes: int,
+                  key: Optional[bytes]) -> None:
+    """encode a small regular file with the plain-Python writer. The whole file is there at
+    once, so every frame is full but the last, as the normal path would send them."""
+    from bitmend.container.small_frames import SmallFrameWriter
+
+    with open_input(source) as inp, open_data_output(output, None) as out:
+        writer = SmallFrameWriter(out, code, depth, frame_bytes, key=key)
+        while block := inp.read(COPY_CHUNK):
+            writer.write(block)
+        writer.close()
 
 
 def _check_jobs(jobs: int, record_mode: bool) -> None:
@@ -747,6 +790,8 @@ def plan(
         result = make_plan(channel, target, per.value, frame_bytes, max_overhead, extra, verify,
                            int(verify_bits) if verify_bits else None, seed, max_depth)
         if as_json:
+            import json
+
             typer.echo(json.dumps(result.to_dict(), indent=2))
         else:
             for line in result.render(show):
@@ -806,12 +851,39 @@ def _unexpected(exc: Exception) -> int:
     return EXIT_UNREADABLE
 
 
+def _one_command() -> None:
+    """The group callback of an app that holds one command (see _app_for); it does nothing."""
+
+
+def _app_for(args: Sequence[str]) -> typer.Typer:
+    """The app that runs `bitmend ARGS`: for one of the top-level commands, an app that holds
+    that command alone, because typer builds the options of every command it holds before it
+    parses anything (about 25 ms for them all, a seventh of a small encode's run). The command
+    runs, parses and prints its help and errors exactly as in the whole app, under the same
+    name. Anything else (no command, an option first, codes, a mistyped name) gets the whole
+    app, whose help lists every command and whose errors name the commands there are."""
+    if args:
+        for info in app.registered_commands:
+            name = info.name or typer.main.get_command_name(info.callback.__name__)
+            if name == args[0]:
+                single = typer.Typer(add_completion=False, pretty_exceptions_enable=False)
+                single.callback()(_one_command)  # a group, so that the command is named on the line
+                single.registered_commands = [info]
+                return single
+    return app
+
+
 def main() -> None:
     """Console entry point: usage errors become one line and exit 2; never a traceback.
     SIGINT, SIGTERM and SIGHUP stop a run cleanly (exit 128 + the signal's number)."""
+    # numpy's OpenBLAS starts a thread per core as numpy is imported. bitmend's array work is
+    # integer and table-driven (its only float products are of 2x2 and 3x3 chain matrices), so
+    # those threads buy nothing and cost start-up: a fifth of a small decode's wall time on two
+    # busy cores. Before anything imports numpy; a value the user set is kept.
+    os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
     outputs.install_signal_handlers()
     try:
-        code = app(standalone_mode=False)
+        code = _app_for(sys.argv[1:])(standalone_mode=False)
         outputs.raise_pending_signal()
         flush_stdout()
     except outputs.Stopped as exc:  # a signal outside a command's own error handling
