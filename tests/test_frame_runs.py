@@ -132,3 +132,50 @@ def test_runs_decode_as_frame_by_frame_on_a_damaged_stream(monkeypatch, name: st
     with_runs = _reports(bytes(container), key)
     monkeypatch.setattr(reader, "RUN_FRAMES", 0)
     assert with_runs == _reports(bytes(container), key)
+
+
+# ---- records given all at once ------------------------------------------------------------
+
+def _gauge_records(count: int, seed: int) -> list[bytes]:
+    """Invented river-gauge readings of several lengths, with an empty record among them."""
+    rng = np.random.default_rng(seed)
+    out = []
+    for i in range(count):
+        text = f"G{i % 7:02d} stage={rng.uniform(0.2, 4.0):.3f}m t={i}\n"
+        out.append(b"" if i == 5 else (text * int(rng.integers(1, 4))).encode())
+    return out
+
+
+@pytest.mark.parametrize("code, depth, keyed", [("golay-24-12", 8, False), ("hamming-7-4", 1, True),
+                                                 ("rs-255-223", 2, False)])
+def test_records_given_at_once_are_the_frames_sent_one_by_one(code: str, depth: int, keyed: bool) -> None:
+    records = _gauge_records(700, 1)  # more than one batch
+    key = b"river-gauge key for the run tests" if keyed else None
+    at_once = list(bitmend.encode_records(records, code=code, depth=depth, stream_id=11, key=key))
+    one_by_one = list(bitmend.encode_records(iter(records), code=code, depth=depth, stream_id=11, key=key))
+    assert at_once == one_by_one
+
+
+def test_blobs_given_at_once_decode_as_blobs_one_by_one() -> None:
+    # hit, cut, foreign, junk and repeated blobs among good ones: the same records and the
+    # same reports whether the blobs come as a list (batched) or one by one
+    key = b"river-gauge key for the run tests"
+    records = _gauge_records(300, 2)
+    blobs = list(bitmend.encode_records(records, code="golay-24-12", depth=8, stream_id=21, key=key))
+    other = list(bitmend.encode_records(records[:5], code="golay-24-12", depth=8, stream_id=22, key=key))
+    rng = np.random.default_rng(3)
+    for i in rng.choice(len(blobs) - 1, 40, replace=False):
+        blob = bytearray(blobs[i])
+        for bit in rng.choice(8 * len(blob), int(rng.integers(1, 60)), replace=False):
+            blob[bit // 8] ^= 1 << (bit % 8)
+        blobs[i] = bytes(blob)
+    blobs[7] = blobs[7][:-9]  # cut short
+    blobs[9] = blobs[9][:8] + bytes(60) + blobs[9][68:]  # leading header wiped: the copy serves
+    blobs[30:30] = [other[2], b"not a frame at all", blobs[40]]  # foreign, junk, a repeat
+    del blobs[100]  # lost
+
+    def decoded(source):
+        reader = bitmend.decode_records(source, on_error="keep", key=key)
+        return list(reader.with_reports()), reader.report.to_jsonl()
+
+    assert decoded(blobs) == decoded(iter(blobs))

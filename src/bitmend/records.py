@@ -24,7 +24,7 @@ from typing import BinaryIO, Callable, Iterable, Iterator
 from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH
 from bitmend.container.assembler import Assembler, AssemblerReadings, DamagedDataError
 from bitmend.container.format import DEFAULT_FRAME_BYTES, MAX_PAYLOAD_BYTES
-from bitmend.container.reader import FrameScanner, ScanStats
+from bitmend.container.reader import FrameScanner, ScanStats, single_frames
 from bitmend.container.writer import FrameWriter
 from bitmend.errors import SettingError
 from bitmend.report import CLEAN, CORRECTED, DAMAGED, REBUILT, DecodeReport, FrameReport
@@ -32,6 +32,8 @@ from bitmend.report import CLEAN, CORRECTED, DAMAGED, REBUILT, DecodeReport, Fra
 FRAMINGS = ("line", "u16", "u32")
 RECORD_ON_ERROR = ("drop", "keep", "fail")  # zero-filling a record would invent one
 _PREFIX = {"u16": struct.Struct(">H"), "u32": struct.Struct(">I")}
+BLOB_BATCH = 512  # blobs given all at once are checked and decoded this many at a time
+RECORD_BATCH = 512  # records given all at once are coded this many at a time
 MAX_HELD_LINE = MAX_PAYLOAD_BYTES  # a line longer than the largest frame is refused, not buffered
 
 
@@ -114,7 +116,7 @@ class _FrameCollector:
         self.frames: list[bytes] = []
 
     def write(self, frame: bytes) -> int:
-        self.frames.append(bytes(frame))
+        self.frames.append(frame if isinstance(frame, bytes) else bytes(frame))
         return len(frame)
 
     def flush(self) -> None:
@@ -134,9 +136,14 @@ def encode_records(records: Iterable[bytes], code=DEFAULT_CODE, depth: int = DEF
     `decode_records` gives the records back."""
     collector = _FrameCollector()
     writer = FrameWriter(collector, code, depth, frame_bytes, stream_id, repair, key)
-    for record in records:
-        writer.send_record(record)
-        yield from collector.take()
+    if isinstance(records, (list, tuple)):  # all here already: code them in batches
+        for start in range(0, len(records), RECORD_BATCH):
+            writer.send_records(records[start: start + RECORD_BATCH])
+            yield from collector.take()
+    else:
+        for record in records:  # as they come: each at once
+            writer.send_record(record)
+            yield from collector.take()
     writer.close()
     yield from collector.take()
 
@@ -155,19 +162,34 @@ class BlobScanner:
         self.blobs = 0
 
     def frames(self):
-        for blob in self._blobs:
-            self.blobs += 1
-            self.bytes_read += len(blob)
-            scanner = FrameScanner(io.BytesIO(blob), key=self._key)
-            found = False
-            for frame in scanner.frames():
-                found = True
-                yield frame
-            self.stats.skipped_bytes += scanner.stats.skipped_bytes
-            if len(self.stats.header_errors) < 100:
-                self.stats.header_errors.extend(scanner.stats.header_errors[:10])
-            if not found and self._on_blob is not None:
-                self._on_blob(len(blob))
+        if isinstance(self._blobs, (list, tuple)):  # all here already: take them in batches
+            for start in range(0, len(self._blobs), BLOB_BATCH):
+                batch = self._blobs[start: start + BLOB_BATCH]
+                for blob, frame in zip(batch, single_frames(batch, self._key)):
+                    if frame is None:
+                        yield from self._scan(blob)
+                    else:
+                        self.blobs += 1
+                        self.bytes_read += len(blob)
+                        yield frame
+            return
+        for blob in self._blobs:  # as they come: each at once
+            yield from self._scan(blob)
+
+    def _scan(self, blob: bytes):
+        """The frames found in one blob, searched on its own."""
+        self.blobs += 1
+        self.bytes_read += len(blob)
+        scanner = FrameScanner(io.BytesIO(blob), key=self._key)
+        found = False
+        for frame in scanner.frames():
+            found = True
+            yield frame
+        self.stats.skipped_bytes += scanner.stats.skipped_bytes
+        if len(self.stats.header_errors) < 100:
+            self.stats.header_errors.extend(scanner.stats.header_errors[:10])
+        if not found and self._on_blob is not None:
+            self._on_blob(len(blob))
 
 
 class RecordReader(AssemblerReadings):

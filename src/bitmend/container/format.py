@@ -27,7 +27,7 @@ import hashlib
 import hmac
 import struct
 from dataclasses import dataclass, field, replace
-from functools import cached_property, lru_cache
+from functools import lru_cache
 from typing import NamedTuple
 
 import crcmod.predefined
@@ -38,6 +38,7 @@ from bitmend.codes.catalog import MAX_DEPTH, code_by_id, get_code
 from bitmend.codes.linear import MAX_MESSAGE_BITS, MAX_PARITY_BITS, BinaryLinearCode, CodeDefinitionError
 from bitmend.errors import ContainerError, SettingError
 from bitmend.interleave import decode_segment, encode_segment, encode_segments, layout, sized_layout
+from bitmend.once import once
 
 FORMAT_VERSION = 2  # the version this bitmend writes; it reads every version in HEADER_LAYOUTS
 # 64-bit sync marker: 32 ones, no run longer than 4, and for every shift s the marker
@@ -130,7 +131,7 @@ class UnsupportedVersionError(HeaderError):
 
 
 @dataclass(frozen=True)
-class FrameHeader:  # noqa: PLW1641 (cached_property needs __dict__; frozen still blocks assignment)
+class FrameHeader:  # noqa: PLW1641 (`once` needs __dict__; frozen still blocks assignment)
     """The fields of one frame header.
 
     For code id 0 (CUSTOM_CODE_ID) `shape` = (k, n - k) comes from the record and fixes
@@ -188,14 +189,14 @@ class FrameHeader:  # noqa: PLW1641 (cached_property needs __dict__; frozen stil
             return f"custom-{k + r}-{k}"
         return self.code.name
 
-    @cached_property
+    @once
     def definition_bytes(self) -> int:
         """Size of one code-definition block (0 for catalog codes)."""
         if self.code_id != CUSTOM_CODE_ID:
             return 0
         return definition_coded_bytes(*self._shape(), version=self.version)
 
-    @cached_property
+    @once
     def coded_bytes(self) -> int:
         if self.code_id == CUSTOM_CODE_ID:
             k, r = self._shape()
@@ -207,7 +208,7 @@ class FrameHeader:  # noqa: PLW1641 (cached_property needs __dict__; frozen stil
         """Bytes of the coded message: payload, its CRC-32C, and the tag of a keyed frame."""
         return self.length + CRC_BYTES + (TAG_BYTES if self.keyed else 0)
 
-    @cached_property
+    @once
     def frame_bytes(self) -> int:
         """Whole frame size on the wire."""
         return len(MARKER_BYTES) + 2 * self.header_bytes + 2 * self.definition_bytes + self.coded_bytes
@@ -295,6 +296,31 @@ def decode_header(coded: bytes) -> FrameHeader | None:
         if body is not None:
             return _parse_record(body, layout_)
     return None
+
+
+def decode_headers(coded: np.ndarray) -> list[FrameHeader | None]:
+    """decode_header for many version 2 headers at once: coded holds one coded header per
+    row (HEADER_BYTES each), decoded in one call. A row whose Golay decoding fails, whose
+    record fails its CRC-32C or holds values this reader cannot use gives None; the caller
+    reads that one alone (decode_header), which also names what is wrong."""
+    count = coded.shape[0]
+    if count == 0:
+        return []
+    layout_ = HEADER_LAYOUTS[FORMAT_VERSION]
+    records, status = decode_segment(header_code(), layout_.depth, np.ascontiguousarray(coded).reshape(-1),
+                                     count * layout_.record_bytes)
+    usable = (status.reshape(count, -1) != FAILED).all(axis=1)
+    headers: list[FrameHeader | None] = [None] * count
+    size, body = layout_.record_bytes, layout_.record_bytes - CRC_BYTES
+    for i in np.flatnonzero(usable):
+        record = records[i * size: (i + 1) * size]
+        if crc32c(record[:body]) != int.from_bytes(record[body:], "big"):
+            continue
+        try:
+            headers[i] = _parse_record(record[:body], layout_)
+        except HeaderError:
+            continue
+    return headers
 
 
 def _parse_record(body: bytes, layout_: HeaderLayout) -> FrameHeader:
@@ -441,17 +467,25 @@ def encode_frame(header: FrameHeader, payload: bytes, key: bytes | None = None) 
             + definition + coded_header)
 
 
-def run_records(first: FrameHeader, count: int) -> np.ndarray:
-    """The header records of `count` full frames in a row, the first one's header `first`
-    and each next one `FrameHeader.next()` of the one before (sequence number + 1, position
-    + length, mod 2^32 and 2^48), as a (count, RECORD_BYTES) array: the fixed fields once,
-    the counters as columns, one CRC-32C per row. Version 2 headers only."""
+def run_records(first: FrameHeader, count: int, lengths: np.ndarray | None = None) -> np.ndarray:
+    """The header records of `count` frames in a row, the first one's header `first` and
+    each next one `FrameHeader.next()` of the one before (sequence number + 1, position +
+    length, mod 2^32 and 2^48), as a (count, RECORD_BYTES) array: the fixed fields once,
+    the counters as columns, one CRC-32C per row. lengths: each frame's payload length
+    (records of any size, catalog codes only), else all first.length. Version 2 headers only."""
     if first.version != FORMAT_VERSION or first.last:
         raise ValueError("a run of frames has version 2 headers and no closing flag")
     records = np.tile(np.frombuffer(first.record(), dtype=np.uint8), (count, 1))
     steps = np.arange(count, dtype=np.uint64)
     seq = (np.uint64(first.seq) + steps) % np.uint64(SEQ_MODULUS)
-    position = (np.uint64(first.position) + steps * np.uint64(first.length)) % np.uint64(1 << POSITION_BITS)
+    if lengths is None:
+        offsets = steps * np.uint64(first.length)
+    else:
+        if first.code_id == CUSTOM_CODE_ID:
+            raise ValueError("frames of a code defined in the stream carry its shape in the length field")
+        offsets = np.concatenate([[0], np.cumsum(lengths[:-1], dtype=np.uint64)]).astype(np.uint64)
+        records[:, 22:26] = lengths.astype(">u4").view(np.uint8).reshape(count, 4)
+    position = (np.uint64(first.position) + offsets) % np.uint64(1 << POSITION_BITS)
     records[:, 12:16] = seq.astype(">u4").view(np.uint8).reshape(count, 4)
     records[:, 16:22] = position.astype(">u8").view(np.uint8).reshape(count, 8)[:, 2:]
     body = RECORD_BYTES - CRC_BYTES
@@ -503,3 +537,40 @@ def encode_frames(first: FrameHeader, payloads: bytes | memoryview | np.ndarray,
             frames[:, at: at + width] = part
         at += width
     return run
+
+
+def encode_record_frames(first: FrameHeader, payloads: list[bytes], key: bytes | None = None) -> list[bytes]:
+    """One frame per payload, of its own length: the frames encode_frame would give for
+    `first` and the headers after it (FrameHeader.next(), each with its payload's length
+    and the stream position after the one before). Headers are coded in one call, the
+    payloads of each length with one code plan. Catalog codes, version 2."""
+    count = len(payloads)
+    if count == 0:
+        return []
+    if first.keyed and key is None:
+        raise ValueError("a keyed frame needs its key")
+    lengths = np.fromiter((len(p) for p in payloads), dtype=np.uint64, count=count)
+    if int(lengths.max()) > MAX_PAYLOAD_BYTES:
+        raise ValueError(f"a frame carries at most {MAX_PAYLOAD_BYTES} bytes")
+    records = run_records(first, count, lengths)
+    headers = encode_segments(header_code(), first.layout.depth, records.reshape(1, -1)).reshape(count, -1).tobytes()
+    header_bytes = first.header_bytes
+    extra = CRC_BYTES + (TAG_BYTES if first.keyed else 0)
+    by_length: dict[int, list[int]] = {}
+    for i, payload in enumerate(payloads):
+        by_length.setdefault(len(payload), []).append(i)
+    frames: list[bytes] = [b""] * count
+    body = RECORD_BYTES - CRC_BYTES
+    for length, members in by_length.items():
+        messages = np.empty((len(members), length + extra), dtype=np.uint8)
+        for row, i in enumerate(members):
+            payload = bytes(payloads[i])
+            message = payload + crc32c(payload).to_bytes(CRC_BYTES, "big")
+            if first.keyed:
+                message += hmac.new(key, records[i, :body].tobytes() + payload, hashlib.sha256).digest()[:TAG_BYTES]
+            messages[row] = np.frombuffer(message, dtype=np.uint8)
+        coded = encode_segments(first.code, first.depth, messages)
+        for row, i in enumerate(members):
+            header = headers[i * header_bytes: (i + 1) * header_bytes]
+            frames[i] = b"".join((MARKER_BYTES, header, coded[row].tobytes(), header))
+    return frames

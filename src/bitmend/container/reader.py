@@ -12,7 +12,6 @@ from __future__ import annotations
 
 import struct
 from dataclasses import dataclass, field, replace
-from functools import cached_property
 from typing import BinaryIO, Iterator
 
 import numpy as np
@@ -23,6 +22,7 @@ from bitmend.interleave import decode_segment, decode_segments, decode_truncated
 from bitmend.kernels import small
 from bitmend.kernels.loader import compiled
 from bitmend.kernels.status import FAILED
+from bitmend.once import once
 
 READ_CHUNK = 1 << 20
 RUN_FRAMES = 256  # frames at most decoded together in a run (see FrameScanner._run_at)
@@ -61,7 +61,7 @@ class DecodedFrame:
     authentic: bool | None = None  # keyed frame: its tag matched the reader's key (None: not checked)
     pending: object | None = field(default=None, repr=False, compare=False)  # its batch, until settled
 
-    @cached_property
+    @once
     def _counts(self) -> tuple[int, int, int]:
         return block_counts(self.block_status)  # once per frame: every count below reads it
 
@@ -81,7 +81,7 @@ class DecodedFrame:
         """Take block_counts(block_status) computed elsewhere (by a batch worker)."""
         self.__dict__["_counts"] = tuple(counts)
 
-    @cached_property
+    @once
     def failed_blocks(self) -> list[int]:
         """Indexes of uncorrectable blocks, the first MAX_LISTED_FAILED of them (a report
         line stays small however badly a frame is hit; failed_count has the total)."""
@@ -104,6 +104,41 @@ def decode_payload(code, header: fmt.FrameHeader, coded: bytes,
     if header.keyed and key is not None and crc_ok:
         authentic = fmt.tag_matches(key, header, bytes(payload), message[header.length + fmt.CRC_BYTES:])
     return payload, status, crc_ok, authentic
+
+
+def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedFrame | None]:
+    """The frame of each blob that is exactly one frame with an intact version 2 header of
+    a catalog code, decoded many at a time (headers in one call, payloads of a shape in
+    one call): what FrameScanner would find in that blob alone. None for any other blob
+    (a hit header, another size, a custom code, junk), which the caller scans on its own."""
+    found: list[DecodedFrame | None] = [None] * len(blobs)
+    start, size = len(fmt.MARKER_BYTES), fmt.HEADER_BYTES
+    places = [i for i, blob in enumerate(blobs) if len(blob) >= start + size]
+    if not places:
+        return found
+    coded = np.frombuffer(b"".join(blobs[i][start: start + size] for i in places), dtype=np.uint8)
+    shapes: dict[tuple, list[tuple[int, fmt.FrameHeader]]] = {}
+    for i, header in zip(places, fmt.decode_headers(coded.reshape(len(places), size))):
+        if header is not None and header.code_id != fmt.CUSTOM_CODE_ID and header.frame_bytes == len(blobs[i]):
+            shapes.setdefault((header.code_id, header.depth, header.length, header.keyed), []).append((i, header))
+    payload_at = start + size
+    for members in shapes.values():
+        first = members[0][1]
+        coded = np.frombuffer(b"".join(blobs[i][payload_at: payload_at + first.coded_bytes] for i, _ in members),
+                              dtype=np.uint8).reshape(len(members), first.coded_bytes)
+        messages, status = decode_segments(first.code, first.depth, coded, first.message_bytes)
+        length = first.length
+        for row, (i, header) in enumerate(members):
+            message = messages[row]
+            payload = message[:length].tobytes()
+            crc_ok = int.from_bytes(message[length: length + fmt.CRC_BYTES], "big") == fmt.crc32c(payload)
+            authentic: bool | None = None
+            if header.keyed and key is not None:
+                authentic = crc_ok and fmt.tag_matches(key, header, payload, message[length + fmt.CRC_BYTES:])
+            marker_distance = (int.from_bytes(blobs[i][:start], "big") ^ fmt.MARKER).bit_count()
+            found[i] = DecodedFrame(header, 0, 0, payload, status[row], crc_ok, marker_distance=marker_distance,
+                                    authentic=authentic)
+    return found
 
 
 @dataclass

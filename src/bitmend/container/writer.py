@@ -214,6 +214,30 @@ class FrameWriter:
         self._emit(bytes(record), last=False)
         self.flush_sink()
 
+    def send_records(self, records: list[bytes]) -> None:
+        """send_record for each record, coded together (format.encode_record_frames) when the
+        stream has no repair frames, no workers and a catalog code: the same frames."""
+        if self._group is not None or self._batches is not None or self._defined_code is not None or len(records) < 2:
+            for record in records:
+                self.send_record(record)
+            return
+        if self.closed:
+            raise ValueError("record sent to a closed frame writer")
+        if self._pending:
+            raise ValueError("records and a byte stream cannot be mixed in one frame writer")
+        for record in records:
+            if len(record) > self._frame_bytes:
+                raise SettingError(f"a record of {len(record)} bytes does not fit a frame of {self._frame_bytes} bytes")
+        first = self._header(len(records[0]), False)
+        for frame in fmt.encode_record_frames(first, records, self._key):
+            self._sink.write(frame)
+            self._bytes_written += len(frame)
+        total = sum(len(record) for record in records)
+        self.bytes_in += total
+        self._seq = (self._seq + len(records)) % fmt.SEQ_MODULUS
+        self._position += total
+        self.flush_sink()
+
     def close(self) -> None:
         """Send the closing frame (the held data, possibly empty). After abandon(), only
         writes the frames already queued and stops the workers."""
