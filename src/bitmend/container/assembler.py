@@ -99,6 +99,7 @@ class Assembler:
         self._streams_ended = 0
         self._stream_names: dict[int, str | None] = {}
         self._symbol_bits: set[int] = set()  # symbol sizes of the codes seen (1 binary, 8 RS)
+        self._codes_seen: set[int] = set()  # code ids whose symbol size is in _symbol_bits
 
     def _note(self, text: str) -> None:
         if len(self._notes) < MAX_NOTES:  # damage must not grow the summary without bound
@@ -122,8 +123,10 @@ class Assembler:
     def _delivered(self, event: Delivered) -> Iterator[tuple[bytes, FrameReport | None]]:
         frame = event.frame
         header = frame.header
-        self._stream_names[event.stream_index] = _stream_name(header)
-        self._symbol_bits.add(_symbol_bits(header))
+        stream_name = self._stream_names[event.stream_index] = _stream_name(header)
+        if header.code_id not in self._codes_seen:
+            self._codes_seen.add(header.code_id)
+            self._symbol_bits.add(_symbol_bits(header))
         status = REBUILT if event.rebuilt else self._status(frame)
         data = frame.payload
         if status == DAMAGED:
@@ -134,7 +137,7 @@ class Assembler:
         report = FrameReport(header.seq, None if event.rebuilt else frame.offset, status, len(frame.block_status),
                              frame.corrected_blocks, frame.corrected_symbols, frame.failed_blocks,
                              frame.crc_ok, self._counts.bytes_out, len(data), frame.truncated,
-                             frame.failed_count, stream=_stream_name(header), stream_index=event.stream_index,
+                             frame.failed_count, stream=stream_name, stream_index=event.stream_index,
                              reordered=event.reordered, closing=header.last)
         self._record(report)
         yield data, report

@@ -201,7 +201,7 @@ class FrameHeader:  # noqa: PLW1641 (`once` needs __dict__; frozen still blocks 
         if self.code_id == CUSTOM_CODE_ID:
             k, r = self._shape()
             return sized_layout(k + r, k, 1, self.depth, self.message_bytes).coded_bytes
-        return layout(self.code, self.depth, self.message_bytes).coded_bytes
+        return _catalog_coded_bytes(self.code_id, self.depth, self.message_bytes)
 
     @property
     def message_bytes(self) -> int:
@@ -258,6 +258,12 @@ class FrameHeader:  # noqa: PLW1641 (`once` needs __dict__; frozen still blocks 
         same stream, code, depth and length, the next sequence number and stream position."""
         return replace(self, seq=(self.seq + 1) % SEQ_MODULUS, last=False,
                        position=(self.position + self.length) % (1 << POSITION_BITS))
+
+
+@lru_cache(maxsize=1024)
+def _catalog_coded_bytes(code_id: int, depth: int, message_bytes: int) -> int:
+    """Coded payload size of a catalog code's frame (asked once per frame read: cached)."""
+    return layout(code_by_id(code_id), depth, message_bytes).coded_bytes
 
 
 @lru_cache(maxsize=1)

@@ -36,10 +36,13 @@ MAX_HEADER_BITS = 8 * fmt.MAX_HEADER_BYTES  # a header of any version fits in th
 V1_HEADER_BYTES = fmt.HEADER_LAYOUTS[1].coded_bytes  # the smallest header of any version
 
 
+CLEAN_COUNTS = (0, 0, 0)
+
+
 def block_counts(status: np.ndarray) -> tuple[int, int, int]:
     """(blocks corrected, symbols corrected, blocks failed) of a frame's block statuses."""
     if not np.count_nonzero(status):  # the clean frame, the common case: one pass, no more
-        return 0, 0, 0
+        return CLEAN_COUNTS
     failed = status == FAILED
     return (int(np.count_nonzero((status > 0) & ~failed)), int(status[~failed].sum(dtype=np.int64)),
             int(np.count_nonzero(failed)))
@@ -78,7 +81,8 @@ class DecodedFrame:
         return self._counts[2]
 
     def set_counts(self, counts: tuple[int, int, int]) -> None:
-        """Take block_counts(block_status) computed elsewhere (by a batch worker)."""
+        """Take block_counts(block_status) computed elsewhere (by a batch worker, or for a
+        whole run of frames at once)."""
         self.__dict__["_counts"] = tuple(counts)
 
     @once
@@ -127,6 +131,7 @@ def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedF
         coded = np.frombuffer(b"".join(blobs[i][payload_at: payload_at + first.coded_bytes] for i, _ in members),
                               dtype=np.uint8).reshape(len(members), first.coded_bytes)
         messages, status = decode_segments(first.code, first.depth, coded, first.message_bytes)
+        hit = status.any(axis=1)  # blocks corrected or failed, per frame
         length = first.length
         for row, (i, header) in enumerate(members):
             message = messages[row]
@@ -138,6 +143,8 @@ def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedF
             marker_distance = (int.from_bytes(blobs[i][:start], "big") ^ fmt.MARKER).bit_count()
             found[i] = DecodedFrame(header, 0, 0, payload, status[row], crc_ok, marker_distance=marker_distance,
                                     authentic=authentic)
+            if not hit[row]:
+                found[i].set_counts(CLEAN_COUNTS)
     return found
 
 
@@ -386,6 +393,7 @@ class FrameScanner:
                                                  expected.message_bytes)
         marker_distance = np.unpackbits(grid[:, :8] ^ np.frombuffer(fmt.MARKER_BYTES, dtype=np.uint8),
                                         axis=1).sum(axis=1)
+        hit = block_status.any(axis=1)  # blocks corrected or failed, per frame
         length = expected.length
         frames = []
         for i, header in enumerate(locked.following(count)):
@@ -398,6 +406,8 @@ class FrameScanner:
             frame_bit = bit + 8 * size * i
             frames.append(DecodedFrame(header, frame_bit >> 3, frame_bit, payload, block_status[i], crc_ok,
                                        marker_distance=int(marker_distance[i]), authentic=authentic))
+            if not hit[i]:
+                frames[-1].set_counts(CLEAN_COUNTS)
         return frames
 
     def _damaged(self, frame: DecodedFrame | None) -> bool:
