@@ -56,10 +56,17 @@ def _encode_batch(token: int, slot: int, items: list[fmt.FrameHeader | Run]) -> 
     inputs, outputs, context = shared_views(token, slot)
     sizes = []
     read = written = 0
-    headers = [header for item in items for header in (item.headers() if isinstance(item, Run) else [item])]
-    for header in headers:
+    for item in items:
+        header = item.first if isinstance(item, Run) else item
         if header.code_id == fmt.CUSTOM_CODE_ID:
             header = replace(header, defined_code=context.defined_code)
+        if isinstance(item, Run) and item.count > 1:  # coded as a run: the same bytes, fewer steps
+            frames = fmt.encode_frames(header, inputs[read: read + item.count * header.length], context.key)
+            read += item.count * header.length
+            outputs[written: written + len(frames)] = frames
+            written += len(frames)
+            sizes += [len(frames) // item.count] * item.count
+            continue
         payload = bytes(inputs[read: read + header.length])
         read += header.length
         frame = fmt.encode_frame(header, payload, context.key)
