@@ -396,7 +396,7 @@ def _encode_fused_words(code: BinaryLinearCode, lay: SegmentLayout, message: byt
         steps = -(-lay.blocks // (8 * m))
         out = _native(steps * 8 * m * n)
         raw = np.frombuffer(message, dtype=np.uint8) if not isinstance(message, np.ndarray) else message
-        fused.encode_linear(raw, len(raw), steps, m * k, m * n, plan.encode_table, out)
+        fused.encode_linear(raw, len(raw), steps, m * k, m * n, plan.encode_table, out.view(np.uint8))
     elif plan.encode_kind == "depth1":
         src = fused.native_words(message, lay.blocks * k)
         out = _native(lay.coded_bits)
@@ -421,7 +421,7 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
         status = np.zeros(steps * 8 * m, dtype=np.uint8)
         out = _native(steps * 8 * m * k)
         fused.decode_linear(raw, min(len(raw), lay.coded_bytes), steps, m * k, m * n, k, code.r, plan.decode_table,
-                            plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, out)
+                            plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, out.view(np.uint8))
         status = status[: lay.blocks]
     else:  # depth1
         status = np.zeros(lay.blocks, dtype=np.uint8)

@@ -28,7 +28,9 @@ from __future__ import annotations
 import sys
 
 import numpy as np
-from numba import njit
+from llvmlite import ir
+from numba import njit, types
+from numba.extending import intrinsic
 
 from bitmend.kernels.blockcode import codeword_words, transpose8  # shared with the word-buffer kernels
 from bitmend.kernels.status import FAILED
@@ -65,6 +67,77 @@ def swap(x):
         x = ((x & U64(0x0000FFFF0000FFFF)) << U64(16)) | ((x >> U64(16)) & U64(0x0000FFFF0000FFFF))
         x = (x << U64(32)) | (x >> U64(32))
     return x
+
+
+# ---- unaligned big-endian words of a byte buffer -----------------------------------------------
+
+def _byte_pointer(context, builder, signature, args):
+    """Pointer to arr[index] as an i64*, for the two intrinsics below."""
+    ary = context.make_array(signature.args[0])(context, builder, args[0])
+    index = context.cast(builder, args[1], signature.args[1], types.intp)
+    return builder.bitcast(builder.gep(ary.data, [index]), ir.IntType(64).as_pointer())
+
+
+def _to_big_endian(builder, value):
+    if not LITTLE_ENDIAN:
+        return value
+    return builder.call(builder.module.declare_intrinsic("llvm.bswap", [ir.IntType(64)]), [value])
+
+
+@intrinsic
+def load_be64(typingctx, arr, index):
+    """The 8 bytes arr[index .. index+7] as a big-endian integer (first byte most
+    significant): one unaligned load and a bswap. The caller keeps index + 8 <= arr.size."""
+    if not (isinstance(arr, types.Array) and arr.dtype == types.uint8 and isinstance(index, types.Integer)):
+        return None
+
+    def codegen(context, builder, signature, args):
+        return _to_big_endian(builder, builder.load(_byte_pointer(context, builder, signature, args), align=1))
+
+    return types.uint64(arr, index), codegen
+
+
+@intrinsic
+def store_be64(typingctx, arr, index, value):
+    """arr[index .. index+7] = the 8 bytes of value, most significant first (one unaligned
+    store). The caller keeps index + 8 <= arr.size."""
+    if not (isinstance(arr, types.Array) and arr.dtype == types.uint8 and isinstance(index, types.Integer)
+            and isinstance(value, types.Integer)):
+        return None
+
+    def codegen(context, builder, signature, args):
+        value = context.cast(builder, args[2], signature.args[2], types.uint64)
+        builder.store(_to_big_endian(builder, value), _byte_pointer(context, builder, signature, args), align=1)
+        return context.get_dummy_value()
+
+    return types.void(arr, index, value), codegen
+
+
+@njit(cache=True, inline="always")
+def read_bits(in8, length, bit, width):
+    """Stream field of 1..57 bits at bit, first bit most significant, from the `length`
+    bytes of in8 (bytes past them read as zero): one load when 8 bytes are there."""
+    at = bit >> 3
+    if at + 8 <= length:
+        x = load_be64(in8, at)
+    else:
+        x = U64(0)
+        for b in range(8):
+            if at + b < length:
+                x |= U64(in8[at + b]) << U64(56 - 8 * b)
+    return (x << U64(bit & 7)) >> U64(64 - width)
+
+
+@njit(cache=True, inline="always")
+def emit(out8, at, acc, held, value, width):
+    """Branch-free sequential writer of 1..56-bit values (no stray high bits): acc holds
+    held < 8 pending bits at its top, at is the byte they belong to. Every call stores
+    the whole word at `at` (later calls rewrite its tail), so out8 needs 8 spare bytes."""
+    total = held + width
+    acc |= value << U64(64 - total)
+    store_be64(out8, at, acc)
+    whole = total >> 3
+    return at + whole, acc << U64(8 * whole), total & 7
 
 
 @njit(cache=True, inline="always")
@@ -294,105 +367,110 @@ def vector_xor(x0, x1, x2, pos, width, value):
     return x0, x1, x2 ^ a
 
 
+@njit(cache=True, inline="always")
+def _linear_step(in8, length, base, count, table, safe):
+    """XOR over count input bytes from base of table[pos, byte] (its three words; words
+    the table does not have are zero). Bytes past length read as zero unless safe."""
+    nw = table.shape[2]
+    byte = in8[base] if safe or base < length else 0
+    x0 = table[0, byte, 0]
+    x1 = table[0, byte, 1] if nw > 1 else U64(0)
+    x2 = table[0, byte, 2] if nw > 2 else U64(0)
+    for pos in range(1, count):
+        byte = in8[base + pos] if safe or base + pos < length else 0
+        x0 ^= table[pos, byte, 0]
+        if nw > 1:
+            x1 ^= table[pos, byte, 1]
+        if nw > 2:
+            x2 ^= table[pos, byte, 2]
+    return x0, x1, x2
+
+
+@njit(cache=True, inline="always")
+def _store_vector(out8, at, x0, x1, x2, nbytes):
+    """The first nbytes (<= 24) bytes of the bit vector x0, x1, x2 to out8[at ..], as
+    whole-word stores: bytes past nbytes are written too (the next step rewrites them),
+    so out8 needs 8 spare bytes."""
+    store_be64(out8, at, x0)
+    if nbytes > 8:
+        store_be64(out8, at + 8, x1)
+    if nbytes > 16:
+        store_be64(out8, at + 16, x2)
+
+
 @njit(cache=True)
-def encode_linear(in8, length, octets, k, n, table, out):
+def encode_linear(in8, length, octets, k, n, table, out8):
     """Short codes, a step of whole octets at a time: step t (8m codewords, k = 8m k_code
     bits of message in k bytes, n coded bytes out) is the XOR over its k message bytes of
     table[pos, byte] (its n stream bytes as table.shape[2] <= 3 words): parity, the
     codeword layout and interleaving are all linear in the message bits, so one table
-    does them at once. in8 holds `length` message bytes; bytes past them read as zero."""
-    index, acc, held = 0, U64(0), 0
-    nbits = 8 * n
-    nw = table.shape[2]
-    x1 = U64(0)
-    x2 = U64(0)
-    whole = min(octets, length // k)  # octets whose bytes are all present
-    first = 0
-    if nw == 1:  # n <= 8 (hamming-7-4, secded-8-4): one word per step, no bounds checks
+    does them at once. in8 holds `length` message bytes; bytes past them read as zero.
+    out8 is a byte view of a native word buffer with 8 spare bytes."""
+    whole = min(octets, length // k)  # steps whose bytes are all present
+    if table.shape[2] == 1:  # n <= 8 (hamming-7-4, secded-8-4): one word per step
         for t in range(whole):
             base = t * k
             x0 = table[0, in8[base], 0]
             for pos in range(1, k):
                 x0 ^= table[pos, in8[base + pos], 0]
-            index, acc, held = put(out, index, acc, held, x0 >> U64(64 - nbits), nbits)
-        first = whole
-    for t in range(first, octets):
-        base = t * k
-        byte = in8[base] if t < whole or base < length else 0
-        x0 = table[0, byte, 0]
-        if nw > 1:
-            x1 = table[0, byte, 1]
-        if nw > 2:
-            x2 = table[0, byte, 2]
-        for pos in range(1, k):
-            byte = in8[base + pos] if t < whole or base + pos < length else 0
-            x0 ^= table[pos, byte, 0]
-            if nw > 1:
-                x1 ^= table[pos, byte, 1]
-            if nw > 2:
-                x2 ^= table[pos, byte, 2]
-        index, acc, held = put_vector(out, index, acc, held, x0, x1, x2, nbits)
-    finish(out, index, acc, held)
+            store_be64(out8, t * n, x0)
+    else:
+        for t in range(whole):
+            x0, x1, x2 = _linear_step(in8, length, t * k, k, table, True)
+            _store_vector(out8, t * n, x0, x1, x2, n)
+    for t in range(whole, octets):
+        x0, x1, x2 = _linear_step(in8, length, t * k, k, table, False)
+        _store_vector(out8, t * n, x0, x1, x2, n)
+
+
+@njit(cache=True, inline="always")
+def _correct_step(x0, x1, x2, t, per, k, code_k, r, leader_message, leader_weight, status):
+    """Correct the per codewords of a decoded step by their syndromes (bits 8k + q r ..)."""
+    for q in range(per):
+        s = vector_field(x0, x1, x2, 8 * k + q * r, r)
+        if s != U64(0):
+            w = leader_weight[s]
+            if w != FAILED:
+                x0, x1, x2 = vector_xor(x0, x1, x2, q * code_k, code_k, leader_message[s])
+            status[per * t + q] = w
+    return x0, x1, x2
 
 
 @njit(cache=True)
 def decode_linear(in8, length, octets, k, n, code_k, r, table, syndrome_mask, leader_message, leader_weight,
-                  status, out):
+                  status, out8):
     """Short codes decoded a step of whole octets at a time (n received bytes, k message
     bytes, per = 8k / code_k codewords): XOR over the n received bytes of table[pos, byte]
     gives the per received messages (bits 0 .. 8k-1, concatenated) and their syndromes
     (r bits each, concatenated from bit 8k). All-zero syndromes: the messages go out as
     they are; otherwise each codeword with s != 0 is corrected by its coset leader
     (status w) or left as received (status FAILED). status must be zeroed. in8 holds
-    `length` received bytes; bytes past them read as zero."""
+    `length` received bytes; bytes past them read as zero. out8 is a byte view of a
+    native word buffer with 8 spare bytes."""
     per = 8 * k // code_k
     whole = min(octets, length // n)
-    index, acc, held = 0, U64(0), 0
-    nw = table.shape[2]
     m0 = syndrome_mask[0]
     m1 = syndrome_mask[1]
     m2 = syndrome_mask[2]
-    x1 = U64(0)
-    x2 = U64(0)
-    first = 0
-    if nw == 1:  # n <= 8 bytes a step (hamming-7-4, secded-8-4): one word, no bounds checks
+    if table.shape[2] == 1:  # n <= 8 bytes a step (hamming-7-4, secded-8-4): one word
+        x1 = U64(0)
+        x2 = U64(0)
         for t in range(whole):
             base = t * n
             x0 = table[0, in8[base], 0]
             for pos in range(1, n):
                 x0 ^= table[pos, in8[base + pos], 0]
             if x0 & m0:
-                for q in range(per):
-                    s = vector_field(x0, x1, x2, 8 * k + q * r, r)
-                    if s != U64(0):
-                        w = leader_weight[s]
-                        if w != FAILED:
-                            x0, x1, x2 = vector_xor(x0, x1, x2, q * code_k, code_k, leader_message[s])
-                        status[per * t + q] = w
-            index, acc, held = put(out, index, acc, held, x0 >> U64(64 - 8 * k), 8 * k)
-        first = whole
-    for t in range(first, octets):
-        base = t * n
-        byte = in8[base] if t < whole or base < length else 0
-        x0 = table[0, byte, 0]
-        if nw > 1:
-            x1 = table[0, byte, 1]
-        if nw > 2:
-            x2 = table[0, byte, 2]
-        for pos in range(1, n):
-            byte = in8[base + pos] if t < whole or base + pos < length else 0
-            x0 ^= table[pos, byte, 0]
-            if nw > 1:
-                x1 ^= table[pos, byte, 1]
-            if nw > 2:
-                x2 ^= table[pos, byte, 2]
+                x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, leader_message, leader_weight, status)
+            store_be64(out8, t * k, x0)
+    else:
+        for t in range(whole):
+            x0, x1, x2 = _linear_step(in8, length, t * n, n, table, True)
+            if (x0 & m0) | (x1 & m1) | (x2 & m2):
+                x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, leader_message, leader_weight, status)
+            _store_vector(out8, t * k, x0, x1, x2, k)
+    for t in range(whole, octets):
+        x0, x1, x2 = _linear_step(in8, length, t * n, n, table, False)
         if (x0 & m0) | (x1 & m1) | (x2 & m2):
-            for q in range(per):
-                s = vector_field(x0, x1, x2, 8 * k + q * r, r)
-                if s != U64(0):
-                    w = leader_weight[s]
-                    if w != FAILED:
-                        x0, x1, x2 = vector_xor(x0, x1, x2, q * code_k, code_k, leader_message[s])
-                    status[per * t + q] = w
-        index, acc, held = put_vector(out, index, acc, held, x0, x1, x2, 8 * k)
-    finish(out, index, acc, held)
+            x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, leader_message, leader_weight, status)
+        _store_vector(out8, t * k, x0, x1, x2, k)
