@@ -108,8 +108,8 @@ def test_decoded_segments_are_segment_by_segment(name: str, depth: int, message_
         assert np.array_equal(got_status[i], want_status)
 
 
-def _reports(container: bytes, key: bytes | None = None) -> tuple[bytes, str]:
-    out = bitmend.decode_bytes(container, key=key)
+def _reports(container: bytes, key: bytes | None = None, jobs: int = 1) -> tuple[bytes, str]:
+    out = bitmend.decode_bytes(container, key=key, jobs=jobs)
     return out.data, out.report.to_jsonl()
 
 
@@ -130,8 +130,10 @@ def test_runs_decode_as_frame_by_frame_on_a_damaged_stream(monkeypatch, name: st
     del container[10 * frame: 11 * frame]  # frame 10 lost outright
     container[20 * frame + 500: 20 * frame + 500] = b"\x55\xaa\x13"  # bytes slipped into frame 21
     with_runs = _reports(bytes(container), key)
+    with_workers = _reports(bytes(container), key, jobs=2) if name == "golay-24-12" else with_runs
     monkeypatch.setattr(reader, "RUN_FRAMES", 0)
     assert with_runs == _reports(bytes(container), key)
+    assert with_workers == with_runs
 
 
 # ---- records given all at once ------------------------------------------------------------

@@ -368,7 +368,7 @@ class FrameScanner:
         number and position, no closing flag), so the run holds what the frame-by-frame
         path would find; the first frame that differs ends the run and is left to it."""
         if (bit & 7 or locked.last or locked.version != fmt.FORMAT_VERSION or locked.code_id == fmt.CUSTOM_CODE_ID
-                or not self._decode_payloads or self._batches is not None):
+                or not self._decode_payloads):
             return []
         size = locked.frame_bytes
         start = (bit - self._base) >> 3
@@ -388,11 +388,14 @@ class FrameScanner:
             return []
         grid = grid[:count]
         coded_at = 8 + header_bytes
+        marker_distance = np.unpackbits(grid[:, :8] ^ np.frombuffer(fmt.MARKER_BYTES, dtype=np.uint8),
+                                        axis=1).sum(axis=1)
+        if self._batches is not None:
+            return self._submitted_run(bit, locked, grid[:, coded_at: coded_at + expected.coded_bytes],
+                                       marker_distance)
         messages, block_status = decode_segments(expected.code, expected.depth,
                                                  grid[:, coded_at: coded_at + expected.coded_bytes],
                                                  expected.message_bytes)
-        marker_distance = np.unpackbits(grid[:, :8] ^ np.frombuffer(fmt.MARKER_BYTES, dtype=np.uint8),
-                                        axis=1).sum(axis=1)
         hit = block_status.any(axis=1)  # blocks corrected or failed, per frame
         length = expected.length
         frames = []
@@ -408,6 +411,25 @@ class FrameScanner:
                                        marker_distance=int(marker_distance[i]), authentic=authentic))
             if not hit[i]:
                 frames[-1].set_counts(CLEAN_COUNTS)
+        return frames
+
+    def _submitted_run(self, bit: int, locked: fmt.FrameHeader, coded: np.ndarray,
+                       marker_distance: np.ndarray) -> list[DecodedFrame]:
+        """A run's frames with their payloads handed to the batch workers (each filled when
+        settled), or decoded here when the workers do not take them."""
+        size = locked.frame_bytes
+        frames = []
+        for i, header in enumerate(locked.following(coded.shape[0])):
+            frame_bit = bit + 8 * size * i
+            authentic: bool | None = False if header.keyed and self._key is not None else None
+            frame = DecodedFrame(header, frame_bit >> 3, frame_bit, b"", np.zeros(0, np.uint8), False,
+                                 marker_distance=int(marker_distance[i]), authentic=authentic)
+            row = coded[i].tobytes()
+            if not self._batches.submit(frame, header.code, True, row):
+                payload, status, crc_ok, authentic = decode_payload(header.code, header, row, self._key)
+                frame = DecodedFrame(header, frame_bit >> 3, frame_bit, payload, status, crc_ok,
+                                     marker_distance=int(marker_distance[i]), authentic=authentic)
+            frames.append(frame)
         return frames
 
     def _damaged(self, frame: DecodedFrame | None) -> bool:
@@ -434,7 +456,8 @@ class FrameScanner:
                 last = run[-1]
                 pos = covered = last.bit_offset + 8 * last.header.frame_bytes
                 locked = last.header
-                fallback = last.bit_offset + MARKER_BITS if not last.crc_ok else None
+                maybe_damaged = self._batches is not None or not last.crc_ok  # as for one frame, below
+                fallback = last.bit_offset + MARKER_BITS if maybe_damaged else None
                 fallback_frame = last
                 self._drop_before(pos if fallback is None else fallback)
                 continue
