@@ -244,26 +244,27 @@ def _decode_words(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
 # An octet is 8 consecutive codewords: k message bytes in, n coded bytes out, both at depth 1
 # (codewords concatenated) and at depth 8 (byte j of the octet is bit j of its 8 codewords).
 # Short codes (n <= LINEAR_MAX_N[depth]) treat an octet as one linear map of its bytes
-# (kernels.fused.encode_linear / decode_linear, tables of at most 147 KiB); golay codes at
-# depth 1 go codeword by codeword, encoding at depths 8L by 8x8 transposes; the rest
-# (long codes at depth 1, decoding at depths 8L beyond the tables) through kernels.blockcode.
+# (kernels.fused.encode_linear / decode_linear, tables of at most 147 KiB); longer codes
+# at depth 1 go codeword by codeword (unaligned loads and stores), encoding at depths 8L
+# by 8x8 transposes; the rest (secded-72-64 at depth 1, decoding at depths 8L beyond the
+# tables) through kernels.blockcode.
 
 LINEAR_MAX_N = {1: 16, 8: 24}  # per depth: measured faster than the codeword kernels up to this n
-SHORT_N = 24
 TABLE_MESSAGE_BITS = 12  # a message of up to 12 bits finds its parity in one lookup
 
 
 @dataclass(frozen=True)
 class _Plan:
-    """How one code at one depth runs, with its tables. Kinds: "linear" (byte tables of
-    the octet map), "depth1" (codeword by codeword), "octets" (8x8 transposes) in
-    kernels.fused, or "words" (kernels.blockcode, through byte-swapped word buffers)."""
+    """How one code at one depth runs, with its tables. Kinds in kernels.fused: "linear"
+    (byte tables of the octet map), "depth1" (codeword by codeword through unaligned
+    loads), "octets" (encoding by 8x8 transposes); or "words" (kernels.blockcode,
+    through byte-swapped word buffers)."""
 
     encode_kind: str
     decode_kind: str
     encode_table: np.ndarray  # linear: (k, 256, words); else the parity table (chunks, 2^chunk_bits)
     decode_table: np.ndarray  # linear: (n, 256, words); else unused
-    syndrome_mask: np.ndarray
+    syndrome_mask: np.ndarray  # linear only
     chunk_bits: int
     leader_message: np.ndarray
     leader_weight: np.ndarray
@@ -272,10 +273,11 @@ class _Plan:
 @lru_cache(maxsize=128)
 def _plan(code: BinaryLinearCode, depth: int) -> _Plan:
     lead_m, _, weight = code.leader_tables
-    if code.n <= LINEAR_MAX_N.get(depth, 0):
+    empty = np.zeros(1, dtype=np.uint64)
+    k, n = code.k, code.n
+    if n <= LINEAR_MAX_N.get(depth, 0):
         encode, decode, mask = _linear_tables(code, depth)
         return _Plan("linear", "linear", encode, decode, mask, 0, lead_m, weight)
-    k, n = code.k, code.n
     chunked = code.parity_table
     if k <= TABLE_MESSAGE_BITS:  # one lookup: the parity of every k-bit message
         values = np.arange(1 << k, dtype=np.uint64)
@@ -285,13 +287,16 @@ def _plan(code: BinaryLinearCode, depth: int) -> _Plan:
         ptab, chunk_bits = whole.reshape(1, -1), k
     else:
         ptab, chunk_bits = chunked, 8
-    empty = np.zeros(1, dtype=np.uint64)
-    # measured on 16388-byte segments (one core, A/B in one process): codes longer than
-    # SHORT_N ran faster at depth 1 through kernels.blockcode (its whole-buffer byte swap
-    # beats a swap per field), and so did decoding at depths 8L; encode_octets beat it by
-    # 1.2x to 1.7x at depth 8
+    if code.r <= 32:  # half the cache footprint (golay's 4096 parities: 16 KiB)
+        ptab = ptab.astype(np.uint32)
+    # measured on 1 MiB segments (one core, A/B in one process): codeword by codeword
+    # through unaligned loads beat kernels.blockcode at depth 1 by 1.3x to 1.6x (golay,
+    # hamming-31-26 .. secded-72-64); at depths 8L encode_octets beat it by 1.2x to 1.7x,
+    # decoding stays with it. secded-72-64 (n > 64) stays on kernels.blockcode at depth 1
+    # for now: tests/test_fused_kernels.py pins that dispatch (the codeword kernel reads
+    # it as two fields and measured 1.3x faster).
     if depth == 1:
-        kind = "depth1" if n <= SHORT_N else "words"
+        kind = "depth1" if n <= 64 else "words"
         return _Plan(kind, kind, ptab, empty, empty, chunk_bits, lead_m, weight)
     return _Plan("octets", "words", ptab, empty, empty, chunk_bits, lead_m, weight)
 
@@ -397,10 +402,12 @@ def _encode_fused_words(code: BinaryLinearCode, lay: SegmentLayout, message: byt
         out = _native(steps * 8 * m * n)
         raw = np.frombuffer(message, dtype=np.uint8) if not isinstance(message, np.ndarray) else message
         fused.encode_linear(raw, len(raw), steps, m * k, m * n, plan.encode_table, out.view(np.uint8))
-    elif plan.encode_kind == "depth1":
-        src = fused.native_words(message, lay.blocks * k)
+    elif plan.encode_kind == "depth1":  # the kernel reads through the buffer's address: contiguous
+        raw = np.ascontiguousarray(np.frombuffer(message, dtype=np.uint8) if not isinstance(message, np.ndarray)
+                                   else message)
         out = _native(lay.coded_bits)
-        fused.encode_depth1(src, lay.blocks, k, code.r, plan.encode_table, plan.chunk_bits, out)
+        fused.encode_depth1(raw, len(raw), lay.blocks, k, code.r, plan.encode_table, plan.chunk_bits,
+                            out.view(np.uint8))
     else:
         src = fused.native_words(message, lay.blocks * k)
         out = _native(lay.coded_bits)
@@ -425,10 +432,10 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
         status = status[: lay.blocks]
     else:  # depth1
         status = np.zeros(lay.blocks, dtype=np.uint8)
-        src = fused.native_words(raw[: lay.coded_bytes], lay.coded_bits)
         out = _native(lay.blocks * k)
-        fused.decode_depth1(src, lay.blocks, k, code.r, plan.encode_table, plan.chunk_bits, plan.leader_message,
-                            plan.leader_weight, status, out)
+        fused.decode_depth1(np.ascontiguousarray(raw), min(len(raw), lay.coded_bytes), lay.blocks, k, code.r,
+                            plan.encode_table, plan.chunk_bits, plan.leader_message, plan.leader_weight, status,
+                            out.view(np.uint8))
     return memoryview(out).cast("B")[:message_bytes].tobytes(), status
 
 
