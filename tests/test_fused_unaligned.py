@@ -1,7 +1,7 @@
-"""The unaligned-load kernels of kernels.fused (depth-1 codeword kernels, linear kernels
-with whole-word stores, and the load/store primitives under them) against the numpy twins
-in kernels.small, bit for bit: coded bytes, decoded bytes and every block status (0 clean,
-w corrected, FAILED), on random data and random error patterns."""
+"""The unaligned-load kernels of kernels.fused (depth-1 codeword kernels, depth-8 octet
+kernels, linear kernels with whole-word stores, and the load/store primitives under them)
+against the numpy twins in kernels.small, bit for bit: coded bytes, decoded bytes and
+every block status (0 clean, w corrected, FAILED), on random data and random errors."""
 
 from __future__ import annotations
 
@@ -39,8 +39,15 @@ def _twin(code, depth: int, message: bytes, coded: bytes) -> tuple[bytes, bytes,
     return small.encode(message, code.P, depth, lay.groups), out, status
 
 
+OCTET8_CODES = tuple(name for name in ALL_CODES if _plan(get_code(name), 8).decode_kind == "octets")
+
+
 def test_the_depth1_codeword_kernels_serve_every_engine_code_longer_than_the_linear_tables():
     assert set(DEPTH1_CODES) == {"hamming-31-26", "hamming-63-57", "secded-39-32", "golay-23-12", "golay-24-12"}
+
+
+def test_the_depth8_octet_decoder_serves_every_code_of_25_to_64_bits():
+    assert set(OCTET8_CODES) == {"hamming-31-26", "hamming-63-57", "secded-39-32"}
 
 
 @settings(max_examples=40, deadline=None)
@@ -61,21 +68,23 @@ def test_unaligned_kernels_match_the_numpy_twin_bit_for_bit_with_statuses(name, 
     assert np.array_equal(status, twin_status)
 
 
-@pytest.mark.parametrize("name", DEPTH1_CODES)
-def test_depth1_kernels_report_clean_corrected_and_failed_blocks_like_the_twin(name):
+@pytest.mark.parametrize(("name", "depth"), [(name, 1) for name in DEPTH1_CODES] + [(name, 8) for name in OCTET8_CODES])
+def test_codeword_and_octet_kernels_report_clean_corrected_and_failed_blocks_like_the_twin(name, depth):
     code = get_code(name)
     rng = np.random.default_rng(code.n)
     message = rng.integers(0, 256, size=5000, dtype=np.uint8).tobytes()
-    coded = encode_segment(code, 1, message)
-    lay = layout(code, 1, len(message))
-    # block b gets (b mod (t + 3)) errors: clean, correctable and beyond t all occur
+    coded = encode_segment(code, depth, message)
+    lay = layout(code, depth, len(message))
+    # block b gets (b mod (t + 3)) errors: clean, correctable and beyond t all occur;
+    # bit j of codeword i of group g is stream bit g D n + j D + i
     flips = []
     for block in range(lay.blocks):
-        count = block % (code.t + 3)
-        flips += (block * code.n + rng.choice(code.n, size=count, replace=False)).tolist()
+        group, i = divmod(block, depth)
+        bits = rng.choice(code.n, size=block % (code.t + 3), replace=False)
+        flips += (group * depth * code.n + bits * depth + i).tolist()
     noisy = flip_bits(coded, flips)
-    out, status = decode_segment(code, 1, noisy, len(message))
-    _, twin_out, twin_status = _twin(code, 1, message, noisy)
+    out, status = decode_segment(code, depth, noisy, len(message))
+    _, twin_out, twin_status = _twin(code, depth, message, noisy)
     assert out == twin_out and np.array_equal(status, twin_status)
     assert {0, 1, FAILED} <= set(status.tolist()) or code.d % 2 == 1  # odd d: beyond t may miscorrect, not fail
 

@@ -245,9 +245,10 @@ def _decode_words(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
 # (codewords concatenated) and at depth 8 (byte j of the octet is bit j of its 8 codewords).
 # Short codes (n <= LINEAR_MAX_N[depth]) treat an octet as one linear map of its bytes
 # (kernels.fused.encode_linear / decode_linear, tables of at most 147 KiB); longer codes
-# at depth 1 go codeword by codeword (unaligned loads and stores), encoding at depths 8L
-# by 8x8 transposes; the rest (secded-72-64 at depth 1, decoding at depths 8L beyond the
-# tables) through kernels.blockcode.
+# at depth 1 go codeword by codeword (unaligned loads and stores); at depths 8L they encode
+# by 8x8 transposes, and at depth 8 with n <= 64 decode that way too; the rest
+# (secded-72-64 at depth 1, decoding at depths 16, 24, ... and of n > 64) through
+# kernels.blockcode.
 
 LINEAR_MAX_N = {1: 16, 8: 24}  # per depth: measured faster than the codeword kernels up to this n
 TABLE_MESSAGE_BITS = 12  # a message of up to 12 bits finds its parity in one lookup
@@ -291,14 +292,16 @@ def _plan(code: BinaryLinearCode, depth: int) -> _Plan:
         ptab = ptab.astype(np.uint32)
     # measured on 1 MiB segments (one core, A/B in one process): codeword by codeword
     # through unaligned loads beat kernels.blockcode at depth 1 by 1.3x to 1.6x (golay,
-    # hamming-31-26 .. secded-72-64); at depths 8L encode_octets beat it by 1.2x to 1.7x,
-    # decoding stays with it. secded-72-64 (n > 64) stays on kernels.blockcode at depth 1
+    # hamming-31-26 .. secded-72-64); at depths 8L encode_octets beat it by 1.2x to 1.7x
+    # (encode_octet8 at depth 8 by another 1.3x to 1.8x), and decode_octet8 beat it by
+    # 1.4x to 1.6x at depth 8 (the linear tables still beat both up to n = 24). secded-72-64 (n > 64) stays on kernels.blockcode at depth 1
     # for now: tests/test_fused_kernels.py pins that dispatch (the codeword kernel reads
     # it as two fields and measured 1.3x faster).
     if depth == 1:
         kind = "depth1" if n <= 64 else "words"
         return _Plan(kind, kind, ptab, empty, empty, chunk_bits, lead_m, weight)
-    return _Plan("octets", "words", ptab, empty, empty, chunk_bits, lead_m, weight)
+    decode = "octets" if depth == 8 and n <= 64 else "words"  # decode_octet8: depth 8, a codeword per word
+    return _Plan("octets", decode, ptab, empty, empty, chunk_bits, lead_m, weight)
 
 
 def _octet_position(q: int, j: int, n: int, depth: int) -> int:
@@ -408,6 +411,12 @@ def _encode_fused_words(code: BinaryLinearCode, lay: SegmentLayout, message: byt
         out = _native(lay.coded_bits)
         fused.encode_depth1(raw, len(raw), lay.blocks, k, code.r, plan.encode_table, plan.chunk_bits,
                             out.view(np.uint8))
+    elif lay.depth == 8:  # one octet per group, its bytes consecutive: whole-word stores
+        raw = np.ascontiguousarray(np.frombuffer(message, dtype=np.uint8) if not isinstance(message, np.ndarray)
+                                   else message)
+        out = _native(lay.coded_bits)
+        fused.encode_octet8(raw, len(raw), lay.groups, k, code.r, plan.encode_table, plan.chunk_bits,
+                            out.view(np.uint8))
     else:
         src = fused.native_words(message, lay.blocks * k)
         out = _native(lay.coded_bits)
@@ -430,6 +439,12 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
         fused.decode_linear(raw, min(len(raw), lay.coded_bytes), steps, m * k, m * n, k, code.r, plan.decode_table,
                             plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, out.view(np.uint8))
         status = status[: lay.blocks]
+    elif plan.decode_kind == "octets":
+        status = np.zeros(lay.blocks, dtype=np.uint8)
+        out = _native(lay.blocks * k)
+        fused.decode_octet8(np.ascontiguousarray(raw), min(len(raw), lay.coded_bytes), lay.groups, k, code.r,
+                            plan.encode_table, plan.chunk_bits, plan.leader_message, plan.leader_weight, status,
+                            out.view(np.uint8))
     else:  # depth1
         status = np.zeros(lay.blocks, dtype=np.uint8)
         out = _native(lay.blocks * k)

@@ -497,3 +497,105 @@ def decode_depth1(in8, length, blocks, k, r, ptab, chunk_bits, leader_message, l
                 m ^= leader_message[s]
             status[i] = w
         at, acc, held = emit_wide(out_address, at, acc, held, m, k)
+
+
+# ---- depth 8 exactly, through unaligned loads and stores ---------------------------------------
+
+@njit(cache=True, inline="always")
+def _word_at(address, length, at):
+    """The 8 bytes at address + at as a big-endian word, bytes past length as zero."""
+    if at + 8 <= length:
+        return load_be64(address, at)
+    x = U64(0)
+    for b in range(max(0, min(8, length - at))):
+        x |= load_u8(address, at + b) << U64(56 - 8 * b)
+    return x
+
+
+@njit(cache=True, inline="always")
+def _read_codeword(address, length, bit, k, r, ptab, chunk_bits):
+    m = read_wide(address, length, bit, k)
+    return codeword_words(m, U64(parity(m, ptab, chunk_bits)), k, r)
+
+
+@njit(cache=True)
+def encode_octet8(in8, length, octets, k, r, ptab, chunk_bits, out8):
+    """encode_octets at depth 8 (one octet per group, its n bytes consecutive): the 8
+    codewords left-aligned in words (two when n > 64), an 8x8 byte transpose, one 8x8 bit
+    transpose per byte slice, each slice one whole-word store at byte 8c of the octet
+    (bytes past n are zeros that the next octet rewrites; out8 needs 8 spare bytes)."""
+    n = k + r
+    slices = (n + 7) // 8
+    ia, oa = in8.ctypes.data, out8.ctypes.data  # once: see load_be64
+    for t in range(octets):
+        bit = t * 8 * k
+        c0, d0 = _read_codeword(ia, length, bit, k, r, ptab, chunk_bits)
+        c1, d1 = _read_codeword(ia, length, bit + k, k, r, ptab, chunk_bits)
+        c2, d2 = _read_codeword(ia, length, bit + 2 * k, k, r, ptab, chunk_bits)
+        c3, d3 = _read_codeword(ia, length, bit + 3 * k, k, r, ptab, chunk_bits)
+        c4, d4 = _read_codeword(ia, length, bit + 4 * k, k, r, ptab, chunk_bits)
+        c5, d5 = _read_codeword(ia, length, bit + 5 * k, k, r, ptab, chunk_bits)
+        c6, d6 = _read_codeword(ia, length, bit + 6 * k, k, r, ptab, chunk_bits)
+        c7, d7 = _read_codeword(ia, length, bit + 7 * k, k, r, ptab, chunk_bits)
+        b0, b1, b2, b3, b4, b5, b6, b7 = byte_transpose(c0, c1, c2, c3, c4, c5, c6, c7)
+        base = t * n
+        store_be64(oa, base, transpose8(b0))
+        if slices > 1:
+            store_be64(oa, base + 8, transpose8(b1))
+        if slices > 2:
+            store_be64(oa, base + 16, transpose8(b2))
+        if slices > 3:
+            store_be64(oa, base + 24, transpose8(b3))
+        if slices > 4:
+            store_be64(oa, base + 32, transpose8(b4))
+        if slices > 5:
+            store_be64(oa, base + 40, transpose8(b5))
+        if slices > 6:
+            store_be64(oa, base + 48, transpose8(b6))
+        if slices > 7:
+            store_be64(oa, base + 56, transpose8(b7))
+        if slices > 8:
+            e0, e1, e2, _, _, _, _, _ = byte_transpose(d0, d1, d2, d3, d4, d5, d6, d7)
+            store_be64(oa, base + 64, transpose8(e0))
+            if slices > 9:
+                store_be64(oa, base + 72, transpose8(e1))
+            if slices > 10:
+                store_be64(oa, base + 80, transpose8(e2))
+
+
+@njit(cache=True)
+def decode_octet8(in8, length, octets, k, r, ptab, chunk_bits, leader_message, leader_weight, status, out8):
+    """Depth 8, n <= 64: octet t is the n received bytes from byte t n; slice c (bytes
+    8c .. 8c+7, bit j of the 8 codewords per byte) is one load and one 8x8 bit transpose
+    (its byte q: codeword q's bits 8c .. 8c+7), and an 8x8 byte transpose of the slices
+    gives each codeword left-aligned in a word (bits past n, from the next octet, are
+    shifted out). Then bounded-distance decoding by syndrome, messages written in
+    order. in8 holds `length` bytes (zeros past them); status must be zeroed; out8
+    needs 8 spare bytes."""
+    n = k + r
+    slices = (n + 7) // 8
+    parity_mask = (U64(1) << U64(r)) - U64(1)
+    ia, oa = in8.ctypes.data, out8.ctypes.data  # once: see load_be64
+    at, acc, held = 0, U64(0), 0
+    zero = U64(0)
+    for t in range(octets):
+        base = t * n
+        s0 = transpose8(_word_at(ia, length, base))
+        s1 = transpose8(_word_at(ia, length, base + 8)) if slices > 1 else zero
+        s2 = transpose8(_word_at(ia, length, base + 16)) if slices > 2 else zero
+        s3 = transpose8(_word_at(ia, length, base + 24)) if slices > 3 else zero
+        s4 = transpose8(_word_at(ia, length, base + 32)) if slices > 4 else zero
+        s5 = transpose8(_word_at(ia, length, base + 40)) if slices > 5 else zero
+        s6 = transpose8(_word_at(ia, length, base + 48)) if slices > 6 else zero
+        s7 = transpose8(_word_at(ia, length, base + 56)) if slices > 7 else zero
+        rows = byte_transpose(s0, s1, s2, s3, s4, s5, s6, s7)
+        for q in range(8):  # written out here: a helper taking the leader arrays ran 4x slower
+            word = rows[q] >> U64(64 - n)
+            m = word >> U64(r)
+            s = (word & parity_mask) ^ U64(parity(m, ptab, chunk_bits))
+            if s != U64(0):
+                w = leader_weight[s]
+                if w != FAILED:
+                    m ^= leader_message[s]
+                status[8 * t + q] = w
+            at, acc, held = emit_wide(oa, at, acc, held, m, k)
