@@ -181,3 +181,16 @@ def test_blobs_given_at_once_decode_as_blobs_one_by_one() -> None:
         return list(reader.with_reports()), reader.report.to_jsonl()
 
     assert decoded(blobs) == decoded(iter(blobs))
+
+
+def test_a_runs_block_counts_are_each_frames() -> None:
+    # the run's counts (compiled when the kernels are loaded, numpy otherwise) are
+    # block_counts row by row: corrected blocks, their corrected symbols, failed blocks
+    rng = np.random.default_rng(9)
+    status = rng.choice(np.array([0, 0, 0, 0, 1, 2, 3, fmt.FAILED], dtype=np.uint8), size=(7, 999))
+    status[2] = 0  # a clean frame among them
+    want = [reader.block_counts(row) for row in status]
+    assert reader.run_block_counts(status) == want
+    import bitmend.kernels.blockcode  # noqa: F401  (loads the compiled kernels: the compiled count)
+    assert reader.run_block_counts(status) == want
+    assert reader.run_block_counts(status[:0]) == []

@@ -20,7 +20,7 @@ from bitarray import bitarray
 from bitmend.container import format as fmt
 from bitmend.interleave import decode_segment, decode_segments, decode_truncated
 from bitmend.kernels import small
-from bitmend.kernels.loader import compiled
+from bitmend.kernels.loader import compiled, compiled_loaded
 from bitmend.kernels.status import FAILED
 from bitmend.once import once
 
@@ -46,6 +46,28 @@ def block_counts(status: np.ndarray) -> tuple[int, int, int]:
     failed = status == FAILED
     return (int(np.count_nonzero((status > 0) & ~failed)), int(status[~failed].sum(dtype=np.int64)),
             int(np.count_nonzero(failed)))
+
+
+def _counts_of_run(status: np.ndarray) -> list[tuple[int, int, int]]:
+    """block_counts per row: clean rows found in one test, the others by run_block_counts."""
+    hit = np.flatnonzero(status.any(axis=1))
+    counts = [CLEAN_COUNTS] * status.shape[0]
+    for row, value in zip(hit.tolist(), run_block_counts(status[hit])):
+        counts[row] = value
+    return counts
+
+
+def run_block_counts(status: np.ndarray) -> list[tuple[int, int, int]]:
+    """block_counts of every row of a run's (frames, blocks) statuses, a few whole-array
+    passes for all rows: a failed block's status is FAILED, a corrected one's its count."""
+    if compiled_loaded():  # one compiled pass (the kernels are loaded for any sizeable run)
+        from bitmend.kernels.tally import status_counts
+
+        return [tuple(row) for row in status_counts(np.ascontiguousarray(status)).tolist()]
+    failed = np.count_nonzero(status == FAILED, axis=1)
+    blocks = np.count_nonzero(status, axis=1) - failed
+    symbols = status.sum(axis=1, dtype=np.int64) - FAILED * failed
+    return list(zip(blocks.tolist(), symbols.tolist(), failed.tolist()))
 
 
 @dataclass
@@ -131,7 +153,7 @@ def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedF
         coded = np.frombuffer(b"".join(blobs[i][payload_at: payload_at + first.coded_bytes] for i, _ in members),
                               dtype=np.uint8).reshape(len(members), first.coded_bytes)
         messages, status = decode_segments(first.code, first.depth, coded, first.message_bytes)
-        hit = status.any(axis=1)  # blocks corrected or failed, per frame
+        counts = _counts_of_run(status)
         length = first.length
         for row, (i, header) in enumerate(members):
             message = messages[row]
@@ -143,8 +165,7 @@ def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedF
             marker_distance = (int.from_bytes(blobs[i][:start], "big") ^ fmt.MARKER).bit_count()
             found[i] = DecodedFrame(header, 0, 0, payload, status[row], crc_ok, marker_distance=marker_distance,
                                     authentic=authentic)
-            if not hit[row]:
-                found[i].set_counts(CLEAN_COUNTS)
+            found[i].set_counts(counts[row])
     return found
 
 
@@ -396,7 +417,7 @@ class FrameScanner:
         messages, block_status = decode_segments(expected.code, expected.depth,
                                                  grid[:, coded_at: coded_at + expected.coded_bytes],
                                                  expected.message_bytes)
-        hit = block_status.any(axis=1)  # blocks corrected or failed, per frame
+        counts = _counts_of_run(block_status)
         length = expected.length
         frames = []
         for i, header in enumerate(locked.following(count)):
@@ -409,8 +430,7 @@ class FrameScanner:
             frame_bit = bit + 8 * size * i
             frames.append(DecodedFrame(header, frame_bit >> 3, frame_bit, payload, block_status[i], crc_ok,
                                        marker_distance=int(marker_distance[i]), authentic=authentic))
-            if not hit[i]:
-                frames[-1].set_counts(CLEAN_COUNTS)
+            frames[-1].set_counts(counts[i])
         return frames
 
     def _submitted_run(self, bit: int, locked: fmt.FrameHeader, coded: np.ndarray,
