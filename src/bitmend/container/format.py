@@ -318,14 +318,24 @@ def decode_headers(coded: np.ndarray) -> list[FrameHeader | None]:
     usable = (status.reshape(count, -1) != FAILED).all(axis=1)
     headers: list[FrameHeader | None] = [None] * count
     size, body = layout_.record_bytes, layout_.record_bytes - CRC_BYTES
-    for i in np.flatnonzero(usable):
+    parsed: dict[bytes, FrameHeader | None] = {}  # by the fields other than sequence and position
+    for i in np.flatnonzero(usable).tolist():
         record = records[i * size: (i + 1) * size]
         if crc32c(record[:body]) != int.from_bytes(record[body:], "big"):
             continue
-        try:
-            headers[i] = _parse_record(record[:body], layout_)
-        except HeaderError:
-            continue
+        fields = record[:12] + record[22:body]  # version .. stream id, length
+        if fields not in parsed:
+            try:
+                parsed[fields] = _parse_record(record[:body], layout_)
+            except HeaderError:
+                parsed[fields] = None
+        model = parsed[fields]
+        if model is not None:  # the same fields with this record's counters (FrameHeader.following)
+            header = object.__new__(FrameHeader)
+            header.__dict__.update(model.__dict__)
+            header.__dict__["seq"] = int.from_bytes(record[12:16], "big")
+            header.__dict__["position"] = int.from_bytes(record[16:22], "big")
+            headers[i] = header
     return headers
 
 
