@@ -326,7 +326,9 @@ def decode_headers(coded: np.ndarray) -> list[FrameHeader | None]:
         fields = record[:12] + record[22:body]  # version .. stream id, length
         if fields not in parsed:
             try:
-                parsed[fields] = _parse_record(record[:body], layout_)
+                parsed[fields] = model = _parse_record(record[:body], layout_)
+                if model.code_id != CUSTOM_CODE_ID:
+                    model.frame_bytes  # noqa: B018 (computed once here, so every copy carries it)
             except HeaderError:
                 parsed[fields] = None
         model = parsed[fields]
