@@ -321,10 +321,11 @@ def _vector_words(bits: list[int], nbits: int = 192) -> np.ndarray:
 
 def _byte_tables(units: np.ndarray, words: int) -> np.ndarray:
     """(8 * count, 3) unit vectors, one per input bit (first bit of each byte most
-    significant) -> (count, 256, words) tables: the XOR of the units of the bits set in a
-    byte value, first `words` words."""
+    significant) -> (4 * ceil(count / 4), 256, words) tables: the XOR of the units of the
+    bits set in a byte value, first `words` words; rows past count are zero, so the
+    kernels may look up whole quads of bytes."""
     count = units.shape[0] // 8
-    table = np.zeros((count, 256, 3), dtype=np.uint64)
+    table = np.zeros((-(-count // 4) * 4, 256, 3), dtype=np.uint64)
     values = np.arange(256)
     for pos in range(count):
         for b in range(8):

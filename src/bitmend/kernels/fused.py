@@ -132,6 +132,53 @@ def load_u8(typingctx, address, index):
     return types.uint64(address, index), codegen
 
 
+@intrinsic
+def load_u64(typingctx, address, index):
+    """The native uint64 at address + 8 * index (an aligned table entry)."""
+    if not (isinstance(address, types.Integer) and isinstance(index, types.Integer)):
+        return None
+
+    def codegen(context, builder, signature, args):
+        address = context.cast(builder, args[0], signature.args[0], types.intp)
+        index = context.cast(builder, args[1], signature.args[1], types.intp)
+        pointer = builder.inttoptr(address, ir.IntType(64).as_pointer())
+        return builder.load(builder.gep(pointer, [index]))
+
+    return types.uint64(address, index), codegen
+
+
+@intrinsic
+def store_u8(typingctx, address, index, value):
+    """The byte at address + index = value (its low 8 bits)."""
+    if not all(isinstance(x, types.Integer) for x in (address, index, value)):
+        return None
+
+    def codegen(context, builder, signature, args):
+        address = context.cast(builder, args[0], signature.args[0], types.intp)
+        index = context.cast(builder, args[1], signature.args[1], types.intp)
+        value = context.cast(builder, args[2], signature.args[2], types.uint64)
+        pointer = builder.inttoptr(builder.add(address, index), ir.IntType(8).as_pointer())
+        builder.store(builder.trunc(value, ir.IntType(8)), pointer)
+        return context.get_dummy_value()
+
+    return types.void(address, index, value), codegen
+
+
+@intrinsic
+def leading_zeros(typingctx, value):
+    """Count of leading zero bits of a uint64 (64 for zero): one lzcnt."""
+    if not isinstance(value, types.Integer):
+        return None
+
+    def codegen(context, builder, signature, args):
+        value = context.cast(builder, args[0], signature.args[0], types.uint64)
+        i64 = ir.IntType(64)
+        ctlz = builder.module.declare_intrinsic("llvm.ctlz", [i64], ir.FunctionType(i64, [i64, ir.IntType(1)]))
+        return builder.call(ctlz, [value, ir.Constant(ir.IntType(1), 0)])
+
+    return types.uint64(value), codegen
+
+
 @njit(cache=True, inline="always")
 def read_bits(address, length, bit, width):
     """Stream field of 1..57 bits at bit, first bit most significant, from the `length`
@@ -357,6 +404,52 @@ def _store_vector(address, at, x0, x1, x2, nbytes):
         store_be64(address, at + 16, x2)
 
 
+@njit(cache=True, inline="always")
+def _quad(ta, ia, b, row, nw, w):
+    """XOR of table[row + i, in[b + i], w] for i = 0..3: the table (rows of 256 entries
+    of nw words) at address ta, the input bytes at address ia. Addresses and constants
+    only, so that the four lookups compile straight-line (see load_be64)."""
+    return (load_u64(ta, ((row << 8) + load_u8(ia, b)) * nw + w)
+            ^ load_u64(ta, (((row + 1) << 8) + load_u8(ia, b + 1)) * nw + w)
+            ^ load_u64(ta, (((row + 2) << 8) + load_u8(ia, b + 2)) * nw + w)
+            ^ load_u64(ta, (((row + 3) << 8) + load_u8(ia, b + 3)) * nw + w))
+
+
+@njit(cache=True, inline="always")
+def _quads(ta, ia, b, quads, nw, w):
+    """Word w of the XOR over 4 * quads (<= 24) input bytes from b of their table rows."""
+    x = _quad(ta, ia, b, 0, nw, w)
+    if quads > 1:
+        x ^= _quad(ta, ia, b + 4, 4, nw, w)
+    if quads > 2:
+        x ^= _quad(ta, ia, b + 8, 8, nw, w)
+    if quads > 3:
+        x ^= _quad(ta, ia, b + 12, 12, nw, w)
+    if quads > 4:
+        x ^= _quad(ta, ia, b + 16, 16, nw, w)
+    if quads > 5:
+        x ^= _quad(ta, ia, b + 20, 20, nw, w)
+    return x
+
+
+@njit(cache=True, inline="always")
+def _unrolled_step(ta, ia, b, quads, nw):
+    """_linear_step over 4 * quads bytes for literal quads and nw (rows past the step's
+    bytes are zero in the table, so the bytes they read add nothing)."""
+    x0 = _quads(ta, ia, b, quads, nw, 0)
+    x1 = _quads(ta, ia, b, quads, nw, 1) if nw > 1 else U64(0)
+    x2 = _quads(ta, ia, b, quads, nw, 2) if nw > 2 else U64(0)
+    return x0, x1, x2
+
+
+@njit(cache=True, inline="always")
+def _whole_steps(length, steps, size, quads):
+    """Steps t < steps whose 4 * quads bytes from t * size all lie within length."""
+    if length < 4 * quads:
+        return 0
+    return min(steps, (length - 4 * quads) // size + 1)
+
+
 @njit(cache=True)
 def encode_linear(in8, length, octets, k, n, table, out8):
     """Short codes, a step of whole octets at a time: step t (8m codewords, k = 8m k_code
@@ -364,35 +457,63 @@ def encode_linear(in8, length, octets, k, n, table, out8):
     table[pos, byte] (its n stream bytes as table.shape[2] <= 3 words): parity, the
     codeword layout and interleaving are all linear in the message bits, so one table
     does them at once. in8 holds `length` message bytes; bytes past them read as zero.
-    out8 is a byte view of a native word buffer with 8 spare bytes."""
-    out_address = out8.ctypes.data  # once: see load_be64
-    whole = min(octets, length // k)  # steps whose bytes are all present
-    if table.shape[2] == 1:  # n <= 8 (hamming-7-4, secded-8-4): one word per step
-        for t in range(whole):
-            base = t * k
-            x0 = table[0, in8[base], 0]
-            for pos in range(1, k):
-                x0 ^= table[pos, in8[base + pos], 0]
-            store_be64(out_address, t * n, x0)
-    else:
-        for t in range(whole):
-            x0, x1, x2 = _linear_step(in8, length, t * k, k, table, True)
+    The table has 4 * ceil(k / 4) rows (zeros past k). out8 is a byte view of a native
+    word buffer with 8 spare bytes.
+
+    The catalog's step shapes (quads of lookups, words) get loops of their own with the
+    lookups written out: measured 1.5x to 3x faster than a loop over the bytes."""
+    nw = table.shape[2]
+    quads = (k + 3) // 4
+    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data  # once: see load_be64
+    fast = _whole_steps(length, octets, k, quads)
+    if quads == 1 and nw == 1:  # hamming-7-4, secded-8-4
+        for t in range(fast):
+            store_be64(out_address, t * n, _quads(ta, ia, t * k, 1, 1, 0))
+    elif quads == 3 and nw == 2:  # hamming-15-11, secded-16-11
+        for t in range(fast):
+            x0, x1, x2 = _unrolled_step(ta, ia, t * k, 3, 2)
             _store_vector(out_address, t * n, x0, x1, x2, n)
-    for t in range(whole, octets):
+    elif quads == 2 and nw == 3:  # rep-3 (8 bytes to 24)
+        for t in range(fast):
+            x0, x1, x2 = _unrolled_step(ta, ia, t * k, 2, 3)
+            _store_vector(out_address, t * n, x0, x1, x2, n)
+    elif quads == 3 and nw == 3:  # golay at depth 8
+        for t in range(fast):
+            x0, x1, x2 = _unrolled_step(ta, ia, t * k, 3, 3)
+            _store_vector(out_address, t * n, x0, x1, x2, n)
+    else:
+        fast = 0
+    for t in range(fast, octets):
         x0, x1, x2 = _linear_step(in8, length, t * k, k, table, False)
         _store_vector(out_address, t * n, x0, x1, x2, n)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True, no_cpython_wrapper=True)
 def _correct_step(x0, x1, x2, t, per, k, code_k, r, leader_message, leader_weight, status):
-    """Correct the per codewords of a decoded step by their syndromes (bits 8k + q r ..)."""
-    for q in range(per):
-        s = vector_field(x0, x1, x2, 8 * k + q * r, r)
-        if s != U64(0):
-            w = leader_weight[s]
-            if w != FAILED:
-                x0, x1, x2 = vector_xor(x0, x1, x2, q * code_k, code_k, leader_message[s])
-            status[per * t + q] = w
+    """Correct the per codewords of a decoded step by their syndromes (r bits each from
+    bit 8k), visiting only the non-zero ones: the next set syndrome bit is found by a
+    leading-zero count, so a step with one bad codeword of 64 costs one correction.
+    leader_message, leader_weight and status are the addresses of the uint64, uint8 and
+    uint8 arrays (see load_be64: no arrays through helpers in hot loops). Not inlined:
+    it runs only for damaged steps, and inlined it slowed the clean ones by a third."""
+    start = 8 * k
+    end = start + per * r
+    pos = start
+    while pos < end:
+        w = pos >> 6
+        word = (x0 if w == 0 else (x1 if w == 1 else x2)) & (~U64(0) >> U64(pos & 63))
+        if word == U64(0):
+            pos = (w + 1) << 6
+            continue
+        q = ((w << 6) + int(leading_zeros(word)) - start) // r
+        if q >= per:
+            break
+        s = vector_field(x0, x1, x2, start + q * r, r)
+        weight = load_u8(leader_weight, s)
+        if weight != FAILED:
+            x0, x1, x2 = vector_xor(x0, x1, x2, q * code_k, code_k, load_u64(leader_message, s))
+        store_u8(status, per * t + q, weight)
+        pos = start + (q + 1) * r
     return x0, x1, x2
 
 
@@ -405,35 +526,43 @@ def decode_linear(in8, length, octets, k, n, code_k, r, table, syndrome_mask, le
     (r bits each, concatenated from bit 8k). All-zero syndromes: the messages go out as
     they are; otherwise each codeword with s != 0 is corrected by its coset leader
     (status w) or left as received (status FAILED). status must be zeroed. in8 holds
-    `length` received bytes; bytes past them read as zero. out8 is a byte view of a
-    native word buffer with 8 spare bytes."""
-    out_address = out8.ctypes.data  # once: see load_be64
+    `length` received bytes; bytes past them read as zero. The table has 4 * ceil(n / 4)
+    rows (zeros past n). out8 is a byte view of a native word buffer with 8 spare bytes;
+    the catalog's step shapes get unrolled loops as in encode_linear."""
     per = 8 * k // code_k
-    whole = min(octets, length // n)
     m0 = syndrome_mask[0]
     m1 = syndrome_mask[1]
     m2 = syndrome_mask[2]
-    if table.shape[2] == 1:  # n <= 8 bytes a step (hamming-7-4, secded-8-4): one word
-        x1 = U64(0)
-        x2 = U64(0)
-        for t in range(whole):
-            base = t * n
-            x0 = table[0, in8[base], 0]
-            for pos in range(1, n):
-                x0 ^= table[pos, in8[base + pos], 0]
+    nw = table.shape[2]
+    quads = (n + 3) // 4
+    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data  # once: see load_be64
+    lm, lw, st = leader_message.ctypes.data, leader_weight.ctypes.data, status.ctypes.data
+    fast = _whole_steps(length, octets, n, quads)
+    if quads == 2 and nw == 1:  # hamming-7-4, secded-8-4
+        zero = U64(0)
+        for t in range(fast):
+            x0 = _quads(ta, ia, t * n, 2, 1, 0)
             if x0 & m0:
-                x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, leader_message, leader_weight, status)
+                x0, _, _ = _correct_step(x0, zero, zero, t, per, k, code_k, r, lm, lw, st)
             store_be64(out_address, t * k, x0)
-    else:
-        for t in range(whole):
-            x0, x1, x2 = _linear_step(in8, length, t * n, n, table, True)
-            if (x0 & m0) | (x1 & m1) | (x2 & m2):
-                x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, leader_message, leader_weight, status)
+    elif quads == 4 and nw == 2:  # hamming-15-11, secded-16-11
+        for t in range(fast):
+            x0, x1, x2 = _unrolled_step(ta, ia, t * n, 4, 2)
+            if (x0 & m0) | (x1 & m1):
+                x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st)
             _store_vector(out_address, t * k, x0, x1, x2, k)
-    for t in range(whole, octets):
+    elif quads == 6 and nw == 3:  # rep-3, golay at depth 8
+        for t in range(fast):
+            x0, x1, x2 = _unrolled_step(ta, ia, t * n, 6, 3)
+            if (x0 & m0) | (x1 & m1) | (x2 & m2):
+                x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st)
+            _store_vector(out_address, t * k, x0, x1, x2, k)
+    else:
+        fast = 0
+    for t in range(fast, octets):
         x0, x1, x2 = _linear_step(in8, length, t * n, n, table, False)
         if (x0 & m0) | (x1 & m1) | (x2 & m2):
-            x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, leader_message, leader_weight, status)
+            x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st)
         _store_vector(out_address, t * k, x0, x1, x2, k)
 
 
