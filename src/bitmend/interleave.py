@@ -291,12 +291,13 @@ def _plan(code: BinaryLinearCode, depth: int) -> _Plan:
     if code.r <= 32:  # half the cache footprint (golay's 4096 parities: 16 KiB)
         ptab = ptab.astype(np.uint32)
     # measured on 1 MiB segments (one core, A/B in one process): codeword by codeword
-    # through unaligned loads beat kernels.blockcode at depth 1 by 1.3x to 1.6x (golay,
-    # hamming-31-26 .. secded-72-64); at depths 8L encode_octets beat it by 1.2x to 1.7x
-    # (encode_octet8 at depth 8 by another 1.3x to 1.8x), and decode_octet8 beat it by
-    # 1.4x to 1.6x at depth 8 (the linear tables still beat both up to n = 24). secded-72-64 (n > 64) stays on kernels.blockcode at depth 1
-    # for now: tests/test_fused_kernels.py pins that dispatch (the codeword kernel reads
-    # it as two fields and measured 1.3x faster).
+    # through unaligned loads beat kernels.blockcode at depth 1 by 1.3x to 1.5x (golay,
+    # hamming-31-26, secded-39-32; hamming-63-57 about even); at depths 8L encode_octets
+    # beat it by 1.2x to 1.7x (encode_octet8 at depth 8 by another 1.3x to 1.6x), and
+    # decode_octet8 beat it by 1.4x to 1.6x at depth 8 (the linear tables still beat both
+    # up to n = 24). secded-72-64 (n > 64) stays on kernels.blockcode at depth 1: the
+    # codeword kernel reads it as two fields and was no faster in the runs made, and
+    # tests/test_fused_kernels.py pins that dispatch.
     if depth == 1:
         kind = "depth1" if n <= 64 else "words"
         return _Plan(kind, kind, ptab, empty, empty, chunk_bits, lead_m, weight)

@@ -12,6 +12,14 @@ bytes in order (the array is a view of the bytes, no byte swap on the way in or 
 a kernel reads stream word w as bswap(words[w]) on a little-endian machine. Callers make
 them with native_words / read them with stream_bytes; both are one copy at most.
 
+Byte buffers and unaligned words. The newer kernels (encode_linear, decode_linear, the
+depth-1 codeword kernels, encode_octet8, decode_octet8) take the stream as plain bytes and
+move it in whole 64-bit words at any byte offset (load_be64, store_be64: one unaligned
+load or store and a bswap), writing each step's bytes with a full-word store whose tail
+the next step rewrites; their output buffers keep 8 spare bytes. Inside hot loops they
+pass buffers to helpers by address (arr.ctypes.data taken once), never as arrays: numba
+counts references on every array handed to a helper, two atomic operations per call.
+
 Parity by table: p = XOR_c ptab[c, chunk_c(m)] with chunks of `chunk_bits` bits (the whole
 message in one lookup when k <= 12, else bytes).
 
