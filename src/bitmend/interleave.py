@@ -292,14 +292,14 @@ def _plan(code: BinaryLinearCode, depth: int) -> _Plan:
         ptab = ptab.astype(np.uint32)
     # measured on 1 MiB segments (one core, A/B in one process): codeword by codeword
     # through unaligned loads beat kernels.blockcode at depth 1 by 1.3x to 1.5x (golay,
-    # hamming-31-26, secded-39-32; hamming-63-57 about even); at depths 8L encode_octets
-    # beat it by 1.2x to 1.7x (encode_octet8 at depth 8 by another 1.3x to 1.6x), and
+    # hamming-31-26, secded-39-32: a codeword is one load, n <= 57); at depths 8L
+    # encode_octets beat it by 1.2x to 1.7x (encode_octet8 at depth 8 by another 1.3x to 1.6x), and
     # decode_octet8 beat it by 1.4x to 1.6x at depth 8 (the linear tables still beat both
-    # up to n = 24). secded-72-64 (n > 64) stays on kernels.blockcode at depth 1: the
-    # codeword kernel reads it as two fields and was no faster in the runs made, and
-    # tests/test_fused_kernels.py pins that dispatch.
+    # up to n = 24). Longer codes stay on kernels.blockcode at depth 1: the codeword
+    # kernel reads them as two fields and ran 0.9x to 1.0x of it (hamming-63-57,
+    # secded-72-64; tests/test_fused_kernels.py also pins secded-72-64's dispatch).
     if depth == 1:
-        kind = "depth1" if n <= 64 else "words"
+        kind = "depth1" if n <= 57 else "words"
         return _Plan(kind, kind, ptab, empty, empty, chunk_bits, lead_m, weight)
     decode = "octets" if depth == 8 and n <= 64 else "words"  # decode_octet8: depth 8, a codeword per word
     return _Plan("octets", decode, ptab, empty, empty, chunk_bits, lead_m, weight)
