@@ -406,7 +406,8 @@ def _encode_fused_words(code: BinaryLinearCode, lay: SegmentLayout, message: byt
         steps = -(-lay.blocks // (8 * m))
         out = _native(steps * 8 * m * n)
         raw = np.frombuffer(message, dtype=np.uint8) if not isinstance(message, np.ndarray) else message
-        fused.encode_linear(raw, len(raw), steps, m * k, m * n, plan.encode_table, out.view(np.uint8))
+        encode = fused.linear_encoder(m * k, plan.encode_table.shape[2])
+        encode(raw, len(raw), steps, m * k, m * n, plan.encode_table, out.view(np.uint8))
     elif plan.encode_kind == "depth1":  # the kernel reads through the buffer's address: contiguous
         raw = np.ascontiguousarray(np.frombuffer(message, dtype=np.uint8) if not isinstance(message, np.ndarray)
                                    else message)
@@ -438,8 +439,9 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
         steps = -(-lay.blocks // (8 * m))
         status = np.zeros(steps * 8 * m, dtype=np.uint8)
         out = _native(steps * 8 * m * k)
-        fused.decode_linear(raw, min(len(raw), lay.coded_bytes), steps, m * k, m * n, k, code.r, plan.decode_table,
-                            plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, out.view(np.uint8))
+        decode = fused.linear_decoder(m * n, plan.decode_table.shape[2])
+        decode(raw, min(len(raw), lay.coded_bytes), steps, m * k, m * n, k, code.r, plan.decode_table,
+               plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, out.view(np.uint8))
         status = status[: lay.blocks]
     elif plan.decode_kind == "octets":
         status = np.zeros(lay.blocks, dtype=np.uint8)

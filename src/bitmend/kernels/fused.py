@@ -412,7 +412,7 @@ def _store_vector(address, at, x0, x1, x2, nbytes):
         store_be64(address, at + 16, x2)
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _quad(ta, ia, b, row, nw, w):
     """XOR of table[row + i, in[b + i], w] for i = 0..3: the table (rows of 256 entries
     of nw words) at address ta, the input bytes at address ia. Addresses and constants
@@ -468,32 +468,71 @@ def encode_linear(in8, length, octets, k, n, table, out8):
     The table has 4 * ceil(k / 4) rows (zeros past k). out8 is a byte view of a native
     word buffer with 8 spare bytes.
 
-    The catalog's step shapes (quads of lookups, words) get loops of their own with the
-    lookups written out: measured 1.5x to 3x faster than a loop over the bytes."""
-    nw = table.shape[2]
-    quads = (k + 3) // 4
-    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data  # once: see load_be64
-    fast = _whole_steps(length, octets, k, quads)
-    if quads == 1 and nw == 1:  # hamming-7-4, secded-8-4
-        for t in range(fast):
-            store_be64(out_address, t * n, _quads(ta, ia, t * k, 1, 1, 0))
-    elif quads == 3 and nw == 2:  # hamming-15-11, secded-16-11
-        for t in range(fast):
-            x0, x1, x2 = _unrolled_step(ta, ia, t * k, 3, 2)
-            _store_vector(out_address, t * n, x0, x1, x2, n)
-    elif quads == 2 and nw == 3:  # rep-3 (8 bytes to 24)
-        for t in range(fast):
-            x0, x1, x2 = _unrolled_step(ta, ia, t * k, 2, 3)
-            _store_vector(out_address, t * n, x0, x1, x2, n)
-    elif quads == 3 and nw == 3:  # golay at depth 8
-        for t in range(fast):
-            x0, x1, x2 = _unrolled_step(ta, ia, t * k, 3, 3)
-            _store_vector(out_address, t * n, x0, x1, x2, n)
-    else:
-        fast = 0
-    for t in range(fast, octets):
+    This is the loop for any step shape; the catalog's shapes have loops of their own with
+    the lookups written out (linear_encoder), measured 1.5x to 3x faster. Each is its own
+    compiled function, so that a code compiles only its own on first use."""
+    _encode_linear_steps(in8, length, 0, octets, k, n, table, out8.ctypes.data)
+
+
+@njit(cache=True)
+def _encode_linear_steps(in8, length, first, octets, k, n, table, out_address):
+    """Steps first .. octets-1 of encode_linear, bytes past length read as zero."""
+    for t in range(first, octets):
         x0, x1, x2 = _linear_step(in8, length, t * k, k, table, False)
         _store_vector(out_address, t * n, x0, x1, x2, n)
+
+
+@njit(cache=True)
+def encode_linear_1x1(in8, length, octets, k, n, table, out8):
+    """encode_linear for steps of one quad of lookups into one word (hamming-7-4, secded-8-4)."""
+    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data  # once: see load_be64
+    fast = _whole_steps(length, octets, k, 1)
+    for t in range(fast):
+        store_be64(out_address, t * n, _quads(ta, ia, t * k, 1, 1, 0))
+    _encode_linear_steps(in8, length, fast, octets, k, n, table, out_address)
+
+
+@njit(cache=True)
+def encode_linear_3x2(in8, length, octets, k, n, table, out8):
+    """encode_linear for steps of three quads into two words (hamming-15-11, secded-16-11)."""
+    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data
+    fast = _whole_steps(length, octets, k, 3)
+    for t in range(fast):
+        x0, x1, x2 = _unrolled_step(ta, ia, t * k, 3, 2)
+        _store_vector(out_address, t * n, x0, x1, x2, n)
+    _encode_linear_steps(in8, length, fast, octets, k, n, table, out_address)
+
+
+@njit(cache=True)
+def encode_linear_2x3(in8, length, octets, k, n, table, out8):
+    """encode_linear for steps of two quads into three words (rep-3: 8 bytes to 24)."""
+    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data
+    fast = _whole_steps(length, octets, k, 2)
+    for t in range(fast):
+        x0, x1, x2 = _unrolled_step(ta, ia, t * k, 2, 3)
+        _store_vector(out_address, t * n, x0, x1, x2, n)
+    _encode_linear_steps(in8, length, fast, octets, k, n, table, out_address)
+
+
+@njit(cache=True)
+def encode_linear_3x3(in8, length, octets, k, n, table, out8):
+    """encode_linear for steps of three quads into three words (golay codes at depth 8)."""
+    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data
+    fast = _whole_steps(length, octets, k, 3)
+    for t in range(fast):
+        x0, x1, x2 = _unrolled_step(ta, ia, t * k, 3, 3)
+        _store_vector(out_address, t * n, x0, x1, x2, n)
+    _encode_linear_steps(in8, length, fast, octets, k, n, table, out_address)
+
+
+ENCODE_SHAPES = {(1, 1): encode_linear_1x1, (3, 2): encode_linear_3x2, (2, 3): encode_linear_2x3,
+                 (3, 3): encode_linear_3x3}
+
+
+def linear_encoder(k: int, nw: int):
+    """The encode_linear loop for steps of k message bytes into nw words: its own unrolled
+    loop for a catalog shape (quads of lookups, words), else the general one."""
+    return ENCODE_SHAPES.get(((k + 3) // 4, nw), encode_linear)
 
 
 @njit(cache=True, no_cpython_wrapper=True)
@@ -535,43 +574,88 @@ def decode_linear(in8, length, octets, k, n, code_k, r, table, syndrome_mask, le
     they are; otherwise each codeword with s != 0 is corrected by its coset leader
     (status w) or left as received (status FAILED). status must be zeroed. in8 holds
     `length` received bytes; bytes past them read as zero. The table has 4 * ceil(n / 4)
-    rows (zeros past n). out8 is a byte view of a native word buffer with 8 spare bytes;
-    the catalog's step shapes get unrolled loops as in encode_linear."""
+    rows (zeros past n). out8 is a byte view of a native word buffer with 8 spare bytes.
+    This is the loop for any step shape; the catalog's shapes have their own unrolled
+    loops, each its own compiled function (linear_decoder), as for encode_linear."""
+    _decode_linear_steps(in8, length, 0, octets, k, n, code_k, r, table, syndrome_mask, leader_message,
+                         leader_weight, status, out8.ctypes.data)
+
+
+@njit(cache=True)
+def _decode_linear_steps(in8, length, first, octets, k, n, code_k, r, table, syndrome_mask, leader_message,
+                         leader_weight, status, out_address):
+    """Steps first .. octets-1 of decode_linear, bytes past length read as zero."""
     per = 8 * k // code_k
-    m0 = syndrome_mask[0]
-    m1 = syndrome_mask[1]
-    m2 = syndrome_mask[2]
-    nw = table.shape[2]
-    quads = (n + 3) // 4
-    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data  # once: see load_be64
+    m0, m1, m2 = syndrome_mask[0], syndrome_mask[1], syndrome_mask[2]
     lm, lw, st = leader_message.ctypes.data, leader_weight.ctypes.data, status.ctypes.data
-    fast = _whole_steps(length, octets, n, quads)
-    if quads == 2 and nw == 1:  # hamming-7-4, secded-8-4
-        zero = U64(0)
-        for t in range(fast):
-            x0 = _quads(ta, ia, t * n, 2, 1, 0)
-            if x0 & m0:
-                x0, _, _ = _correct_step(x0, zero, zero, t, per, k, code_k, r, lm, lw, st)
-            store_be64(out_address, t * k, x0)
-    elif quads == 4 and nw == 2:  # hamming-15-11, secded-16-11
-        for t in range(fast):
-            x0, x1, x2 = _unrolled_step(ta, ia, t * n, 4, 2)
-            if (x0 & m0) | (x1 & m1):
-                x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st)
-            _store_vector(out_address, t * k, x0, x1, x2, k)
-    elif quads == 6 and nw == 3:  # rep-3, golay at depth 8
-        for t in range(fast):
-            x0, x1, x2 = _unrolled_step(ta, ia, t * n, 6, 3)
-            if (x0 & m0) | (x1 & m1) | (x2 & m2):
-                x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st)
-            _store_vector(out_address, t * k, x0, x1, x2, k)
-    else:
-        fast = 0
-    for t in range(fast, octets):
+    for t in range(first, octets):
         x0, x1, x2 = _linear_step(in8, length, t * n, n, table, False)
         if (x0 & m0) | (x1 & m1) | (x2 & m2):
             x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st)
         _store_vector(out_address, t * k, x0, x1, x2, k)
+
+
+@njit(cache=True)
+def decode_linear_2x1(in8, length, octets, k, n, code_k, r, table, syndrome_mask, leader_message, leader_weight,
+                      status, out8):
+    """decode_linear for steps of two quads of lookups into one word (hamming-7-4, secded-8-4)."""
+    per = 8 * k // code_k
+    m0 = syndrome_mask[0]
+    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data  # once: see load_be64
+    lm, lw, st = leader_message.ctypes.data, leader_weight.ctypes.data, status.ctypes.data
+    fast = _whole_steps(length, octets, n, 2)
+    zero = U64(0)
+    for t in range(fast):
+        x0 = _quads(ta, ia, t * n, 2, 1, 0)
+        if x0 & m0:
+            x0, _, _ = _correct_step(x0, zero, zero, t, per, k, code_k, r, lm, lw, st)
+        store_be64(out_address, t * k, x0)
+    _decode_linear_steps(in8, length, fast, octets, k, n, code_k, r, table, syndrome_mask, leader_message,
+                         leader_weight, status, out_address)
+
+
+@njit(cache=True)
+def decode_linear_4x2(in8, length, octets, k, n, code_k, r, table, syndrome_mask, leader_message, leader_weight,
+                      status, out8):
+    """decode_linear for steps of four quads into two words (hamming-15-11, secded-16-11)."""
+    per = 8 * k // code_k
+    m0, m1 = syndrome_mask[0], syndrome_mask[1]
+    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data
+    lm, lw, st = leader_message.ctypes.data, leader_weight.ctypes.data, status.ctypes.data
+    fast = _whole_steps(length, octets, n, 4)
+    for t in range(fast):
+        x0, x1, x2 = _unrolled_step(ta, ia, t * n, 4, 2)
+        if (x0 & m0) | (x1 & m1):
+            x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st)
+        _store_vector(out_address, t * k, x0, x1, x2, k)
+    _decode_linear_steps(in8, length, fast, octets, k, n, code_k, r, table, syndrome_mask, leader_message,
+                         leader_weight, status, out_address)
+
+
+@njit(cache=True)
+def decode_linear_6x3(in8, length, octets, k, n, code_k, r, table, syndrome_mask, leader_message, leader_weight,
+                      status, out8):
+    """decode_linear for steps of six quads into three words (rep-3, golay codes at depth 8)."""
+    per = 8 * k // code_k
+    m0, m1, m2 = syndrome_mask[0], syndrome_mask[1], syndrome_mask[2]
+    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data
+    lm, lw, st = leader_message.ctypes.data, leader_weight.ctypes.data, status.ctypes.data
+    fast = _whole_steps(length, octets, n, 6)
+    for t in range(fast):
+        x0, x1, x2 = _unrolled_step(ta, ia, t * n, 6, 3)
+        if (x0 & m0) | (x1 & m1) | (x2 & m2):
+            x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st)
+        _store_vector(out_address, t * k, x0, x1, x2, k)
+    _decode_linear_steps(in8, length, fast, octets, k, n, code_k, r, table, syndrome_mask, leader_message,
+                         leader_weight, status, out_address)
+
+
+DECODE_SHAPES = {(2, 1): decode_linear_2x1, (4, 2): decode_linear_4x2, (6, 3): decode_linear_6x3}
+
+
+def linear_decoder(n: int, nw: int):
+    """The decode_linear loop for steps of n received bytes into nw words (see linear_encoder)."""
+    return DECODE_SHAPES.get(((n + 3) // 4, nw), decode_linear)
 
 
 # ---- depth 1, codeword by codeword through unaligned loads ---------------------------------------
