@@ -194,3 +194,18 @@ def test_a_runs_block_counts_are_each_frames() -> None:
     import bitmend.kernels.blockcode  # noqa: F401  (loads the compiled kernels: the compiled count)
     assert reader.run_block_counts(status) == want
     assert reader.run_block_counts(status[:0]) == []
+
+
+def test_a_frames_quick_report_is_the_constructors() -> None:
+    # FrameReport.of_frame skips the frozen constructor's per-field setattr; it must make
+    # the same record, every field included (a field added later fails here until added there)
+    from dataclasses import fields
+
+    from bitmend.report import FrameReport
+
+    made = FrameReport(7, 1234, "corrected", 99, 2, 3, [4, 5], True, 500, 600, False, 2,
+                       stream="00000000000000ab", stream_index=1, reordered=True, closing=True)
+    quick = FrameReport.of_frame(7, 1234, "corrected", 99, 2, 3, [4, 5], True, 500, 600, False, 2,
+                                 "00000000000000ab", 1, True, True)
+    assert quick == made and quick.to_json() == made.to_json()
+    assert list(vars(quick)) == [f.name for f in fields(FrameReport)]

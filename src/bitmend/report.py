@@ -48,6 +48,24 @@ class FrameReport:
     reordered: bool = False  # arrived after a frame numbered later; put back in place
     closing: bool = False  # the stream's closing frame
 
+    @classmethod
+    def of_frame(cls, seq: int, offset: int | None, status: str, blocks: int, corrected_blocks: int,
+                 corrected_symbols: int, failed_blocks: list[int], crc_ok: bool, out_offset: int, bytes: int,
+                 truncated: bool, failed_count: int, stream: str | None, stream_index: int, reordered: bool,
+                 closing: bool) -> "FrameReport":
+        """The report of a frame that arrived (no lost-run fields), equal to the one the
+        constructor makes, made without the frozen constructor's per-field setattr: the
+        decoder makes one per frame, and that constructor cost more than the rest of the
+        frame's delivery."""
+        report = object.__new__(cls)
+        report.__dict__.update({
+            "seq": seq, "offset": offset, "status": status, "blocks": blocks, "corrected_blocks": corrected_blocks,
+            "corrected_symbols": corrected_symbols, "failed_blocks": failed_blocks, "crc_ok": crc_ok,
+            "out_offset": out_offset, "bytes": bytes, "truncated": truncated, "failed_count": failed_count,
+            "missing_bytes": None, "gap_frames": None, "gap_bytes": None, "stream": stream,
+            "stream_index": stream_index, "reordered": reordered, "closing": closing})
+        return report
+
     def to_json(self) -> str:
         return json.dumps({"type": "frame", **asdict(self)}, separators=(",", ":"))
 

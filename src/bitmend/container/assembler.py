@@ -54,6 +54,9 @@ def _symbol_bits(header: fmt.FrameHeader) -> int:
         return 1
 
 
+_UNNAMED = object()  # a stream index not yet given its name in _stream_names
+
+
 def _stream_name(header: fmt.FrameHeader) -> str | None:
     return f"{header.stream_id:016x}" if header.identified else None
 
@@ -123,7 +126,9 @@ class Assembler:
     def _delivered(self, event: Delivered) -> Iterator[tuple[bytes, FrameReport | None]]:
         frame = event.frame
         header = frame.header
-        stream_name = self._stream_names[event.stream_index] = _stream_name(header)
+        stream_name = self._stream_names.get(event.stream_index, _UNNAMED)
+        if stream_name is _UNNAMED:  # a stream index is one stream: its name is made once
+            stream_name = self._stream_names[event.stream_index] = _stream_name(header)
         if header.code_id not in self._codes_seen:
             self._codes_seen.add(header.code_id)
             self._symbol_bits.add(_symbol_bits(header))
@@ -134,11 +139,11 @@ class Assembler:
                 data = bytes(len(frame.payload))
             elif self.on_error in ("drop", "fail"):
                 data = b""
-        report = FrameReport(header.seq, None if event.rebuilt else frame.offset, status, len(frame.block_status),
-                             frame.corrected_blocks, frame.corrected_symbols, frame.failed_blocks,
-                             frame.crc_ok, self._counts.bytes_out, len(data), frame.truncated,
-                             frame.failed_count, stream=stream_name, stream_index=event.stream_index,
-                             reordered=event.reordered, closing=header.last)
+        report = FrameReport.of_frame(header.seq, None if event.rebuilt else frame.offset, status,
+                                      len(frame.block_status), frame.corrected_blocks, frame.corrected_symbols,
+                                      frame.failed_blocks, frame.crc_ok, self._counts.bytes_out, len(data),
+                                      frame.truncated, frame.failed_count, stream_name, event.stream_index,
+                                      event.reordered, header.last)
         self._record(report)
         yield data, report
         self._truncated = self._truncated or frame.truncated
