@@ -16,8 +16,9 @@ from typing import Iterable, Iterator
 import numpy as np
 
 from bitmend.container import format as fmt
-from bitmend.container.reader import DecodedFrame, block_counts, decode_payload
+from bitmend.container.reader import DecodedFrame, block_counts, decode_payload, run_block_counts
 from bitmend.container.workers import SlotBatch, SlotPool, shared_views
+from bitmend.interleave import decode_segments
 from bitmend.kernels.status import FAILED
 
 # a frame's results in the output region: its payload, then one status byte per block;
@@ -44,14 +45,52 @@ def _code_of(header: fmt.FrameHeader, spec: CodeSpec):
     return fmt.code_from_definition_body(spec[1])
 
 
-def _decode_batch(token: int, slot: int, jobs: list[tuple[fmt.FrameHeader, CodeSpec, int]]) -> list[tuple]:
+@dataclass(frozen=True)
+class RunJob:
+    """`count` frames of a run (reader.FrameScanner._run_at): catalog code, the same
+    shape, headers first.following(count); their coded payloads back to back."""
+
+    first: fmt.FrameHeader  # the header before the run's first frame
+    count: int
+
+
+def _decode_run(run: RunJob, inputs: memoryview, read: int, outputs: memoryview, written: int,
+                key: bytes | None, results: list[tuple]) -> tuple[int, int]:
+    """In a worker: a run's payloads decoded in one call (interleave.decode_segments); each
+    frame's payload and statuses written as _decode_batch writes them. (read, written) after."""
+    headers = run.first.following(run.count)
+    first = headers[0]
+    size = first.coded_bytes
+    coded = np.frombuffer(inputs[read: read + run.count * size], dtype=np.uint8).reshape(run.count, size)
+    messages, statuses = decode_segments(first.code, first.depth, coded, first.message_bytes)
+    length = first.length
+    counts = run_block_counts(statuses)
+    for header, message, status, count in zip(headers, messages, statuses, counts):
+        payload = message[:length].tobytes()
+        crc_ok = int.from_bytes(message[length: length + fmt.CRC_BYTES], "big") == fmt.crc32c(payload)
+        authentic: bool | None = False if header.keyed and key is not None else None
+        if header.keyed and key is not None and crc_ok:
+            authentic = fmt.tag_matches(key, header, payload, message[length + fmt.CRC_BYTES:])
+        outputs[written: written + length] = payload
+        written += length
+        outputs[written: written + len(status)] = status.tobytes()
+        written += len(status)
+        results.append((len(status), crc_ok, authentic, count))
+    return read + run.count * size, written
+
+
+def _decode_batch(token: int, slot: int, jobs: list) -> list[tuple]:
     """In a worker: decode each frame's coded payload (back to back in the slot's input);
     write its payload and block statuses to the slot's output; (blocks, crc_ok, authentic)
-    per frame."""
+    per frame. A RunJob stands for the frames of a run, decoded together."""
     inputs, outputs, key = shared_views(token, slot)
-    results = []
+    results: list[tuple] = []
     read = written = 0
-    for header, spec, coded_len in jobs:
+    for job in jobs:
+        if isinstance(job, RunJob):
+            read, written = _decode_run(job, inputs, read, outputs, written, key, results)
+            continue
+        header, spec, coded_len = job
         coded = bytes(inputs[read: read + coded_len])
         read += coded_len
         payload, status, crc_ok, authentic = decode_payload(_code_of(header, spec), header, coded, key)
@@ -112,6 +151,45 @@ class BatchDecoder:
         batch.output_bytes += need_out
         frame.pending = batch
         return True
+
+    def submit_run(self, frames: list[DecodedFrame], first: fmt.FrameHeader, coded: np.ndarray) -> int:
+        """Queue the payloads of a run's frames (catalog code, one shape; `first` the header
+        before them, coded their coded payloads as rows) as few tasks, one copy into a slot
+        each; how many were queued from the start (0: decode them here; the first payloads
+        are, so the workers forked next inherit the kernels, as with submit)."""
+        if self._pool is None:
+            if not self._warmed:
+                self._warmed = True
+                return 0
+            self._pool = SlotPool(self._jobs, self._key)
+        count, size = coded.shape
+        header = frames[0].header
+        need_out = header.length + BLOCKS_PER_CODED_BYTE * size
+        if size > self._pool.input_bytes or need_out > self._pool.output_bytes:
+            return 0
+        done = 0
+        while done < count:
+            batch = self._open
+            room = 0 if batch is None else min((self._pool.input_bytes - batch.input_bytes) // size,
+                                               (self._pool.output_bytes - batch.output_bytes) // need_out)
+            if room == 0:
+                self._dispatch()
+                while not self._pool.has_free_slot:
+                    self._settle_batch(self._in_flight[0])
+                batch = self._open = _Batch(self._pool.take_slot())
+                room = min(self._pool.input_bytes // size, self._pool.output_bytes // need_out)
+            take = min(room, count - done)
+            start = batch.input_bytes
+            self._pool.input_view(batch.slot)[start: start + take * size] = coded[done: done + take].reshape(-1)
+            before = first if done == 0 else frames[done - 1].header
+            batch.jobs.append(RunJob(before, take))
+            for frame in frames[done: done + take]:
+                batch.frames.append((frame, True))
+                frame.pending = batch
+            batch.input_bytes += take * size
+            batch.output_bytes += take * need_out
+            done += take
+        return count
 
     def _dispatch(self) -> None:
         batch, self._open = self._open, None

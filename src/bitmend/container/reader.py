@@ -442,14 +442,14 @@ class FrameScanner:
         for i, header in enumerate(locked.following(coded.shape[0])):
             frame_bit = bit + 8 * size * i
             authentic: bool | None = False if header.keyed and self._key is not None else None
-            frame = DecodedFrame(header, frame_bit >> 3, frame_bit, b"", np.zeros(0, np.uint8), False,
-                                 marker_distance=int(marker_distance[i]), authentic=authentic)
-            row = coded[i].tobytes()
-            if not self._batches.submit(frame, header.code, True, row):
-                payload, status, crc_ok, authentic = decode_payload(header.code, header, row, self._key)
-                frame = DecodedFrame(header, frame_bit >> 3, frame_bit, payload, status, crc_ok,
-                                     marker_distance=int(marker_distance[i]), authentic=authentic)
-            frames.append(frame)
+            frames.append(DecodedFrame(header, frame_bit >> 3, frame_bit, b"", np.zeros(0, np.uint8), False,
+                                       marker_distance=int(marker_distance[i]), authentic=authentic))
+        if self._batches.submit_run(frames, locked, coded):
+            return frames  # their payload fields are filled when they are settled
+        for i, frame in enumerate(frames):  # decoded here (the first run, before the workers start)
+            header = frame.header
+            frame.payload, frame.block_status, frame.crc_ok, frame.authentic = decode_payload(
+                header.code, header, coded[i].tobytes(), self._key)
         return frames
 
     def _damaged(self, frame: DecodedFrame | None) -> bool:
