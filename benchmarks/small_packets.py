@@ -48,9 +48,15 @@ def main() -> None:
           f"cpus {sorted(os.sched_getaffinity(0))}")
     print(f"{'given':<12}{'encode frames/s':>18}{'decode frames/s':>18}")
     for label, wrap in (("at once", list), ("one by one", iter)):
-        encode_rate, blobs = best_rate(lambda: list(bitmend.encode_records(wrap(records), **options)),
-                                       args.records, args.repeat)
-        decode_rate, back = best_rate(lambda: list(bitmend.decode_records(wrap(blobs))), args.records, args.repeat)
+        def encode(wrap=wrap):
+            return list(bitmend.encode_records(wrap(records), **options))
+
+        encode_rate, blobs = best_rate(encode, args.records, args.repeat)
+
+        def decode(wrap=wrap, blobs=blobs):
+            return list(bitmend.decode_records(wrap(blobs)))
+
+        decode_rate, back = best_rate(decode, args.records, args.repeat)
         assert back == records
         print(f"{label:<12}{encode_rate:>18,.0f}{decode_rate:>18,.0f}", flush=True)
 

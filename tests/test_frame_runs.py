@@ -121,7 +121,6 @@ def test_runs_decode_as_frame_by_frame_on_a_damaged_stream(monkeypatch, name: st
     data = os.urandom(60_000)
     key = b"river-gauge key for the run tests"
     container = bytearray(bitmend.encode_bytes(data, code=name, depth=depth, frame_bytes=2000, stream_id=77, key=key))
-    size = len(container) // 31  # 30 full frames and a short closing one: close to a frame
     rng = np.random.default_rng(5)
     for bit in rng.choice(8 * len(container), size=len(container) // 400, replace=False):
         container[bit // 8] ^= 1 << (bit % 8)

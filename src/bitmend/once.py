@@ -2,12 +2,13 @@
 
 from __future__ import annotations
 
-from typing import Any, Callable, Generic, TypeVar
+from collections.abc import Callable
+from typing import Any, Generic, TypeVar
 
 T = TypeVar("T")
 
 
-class once(Generic[T]):  # noqa: N801 (used like the decorator it replaces)
+class once(Generic[T]):  # lower case: used like the decorator it replaces
     """Like functools.cached_property: computed on first access, then kept in the
     instance's __dict__ (so later reads never reach this descriptor). Python 3.11's
     cached_property takes a lock on that first access, which costs more than the sizes it
