@@ -25,6 +25,7 @@ from bitmend.codes.linear import BinaryLinearCode
 from bitmend.kernels import cyclic_small, small
 from bitmend.kernels.loader import compiled, compiled_cyclic
 from bitmend.kernels.status import FAILED
+from bitmend.once import once
 
 
 @dataclass(frozen=True)
@@ -54,11 +55,11 @@ class SegmentLayout:
     def group_bits(self) -> int:
         return self.depth * self.block_bits
 
-    @property
+    @once
     def coded_bits(self) -> int:
         return self.blocks * self.block_bits
 
-    @property
+    @once
     def coded_bytes(self) -> int:
         return (self.coded_bits + 7) // 8
 

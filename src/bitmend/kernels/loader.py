@@ -20,6 +20,7 @@ SMALL_WORK_TOTAL_BITS = 1 << 21  # small work adding up to this loads numba too
 
 class _Tally:
     small_bits = 0  # work done in the numpy twins so far in this process
+    modules: tuple[ModuleType, ModuleType] | None = None  # (bitfields, blockcode) once loaded
 
 
 def _worth_loading(work_bits: int) -> bool:
@@ -35,10 +36,13 @@ def compiled_loaded() -> bool:
 
 def compiled(work_bits: int) -> tuple[ModuleType, ModuleType] | None:
     """(bitfields, blockcode) when already loaded or when work_bits is large, else None."""
+    if _Tally.modules is not None:  # asked for every segment: answered without an import statement
+        return _Tally.modules
     if compiled_loaded() or _worth_loading(work_bits):
         from bitmend.kernels import bitfields, blockcode
 
-        return bitfields, blockcode
+        _Tally.modules = (bitfields, blockcode)
+        return _Tally.modules
     return None
 
 
