@@ -208,3 +208,19 @@ def test_a_frames_quick_report_is_the_constructors() -> None:
                                  "00000000000000ab", 1, True, True)
     assert quick == made and quick.to_json() == made.to_json()
     assert list(vars(quick)) == [f.name for f in fields(FrameReport)]
+
+
+def test_a_record_too_long_stops_records_at_once_where_it_stops_them_one_by_one() -> None:
+    from bitmend.errors import SettingError
+
+    records = [b"G01 stage=1.40m\n", b"G02 stage=1.41m\n", bytes(300), b"G03 stage=1.42m\n"]
+
+    def sent(source) -> tuple[list[bytes], str]:
+        blobs = []
+        with pytest.raises(SettingError) as raised:
+            for blob in bitmend.encode_records(source, code="hamming-7-4", depth=1, frame_bytes=100, stream_id=4):
+                blobs.append(blob)
+        return blobs, str(raised.value)
+
+    at_once, one_by_one = sent(records), sent(iter(records))
+    assert at_once == one_by_one and len(at_once[0]) == 2

@@ -138,7 +138,11 @@ def encode_records(records: Iterable[bytes], code=DEFAULT_CODE, depth: int = DEF
     writer = FrameWriter(collector, code, depth, frame_bytes, stream_id, repair, key)
     if isinstance(records, (list, tuple)):  # all here already: code them in batches
         for start in range(0, len(records), RECORD_BATCH):
-            writer.send_records(records[start: start + RECORD_BATCH])
+            try:
+                writer.send_records(records[start: start + RECORD_BATCH])
+            except SettingError:  # a record too long: the ones before it were sent, and leave first
+                yield from collector.take()
+                raise
             yield from collector.take()
     else:
         for record in records:  # as they come: each at once

@@ -216,7 +216,8 @@ class FrameWriter:
 
     def send_records(self, records: list[bytes]) -> None:
         """send_record for each record, coded together (format.encode_record_frames) when the
-        stream has no repair frames, no workers and a catalog code: the same frames."""
+        stream has no repair frames, no workers and a catalog code: the same frames. A record
+        too long for a frame raises SettingError after the records before it were sent."""
         if self._group is not None or self._batches is not None or self._defined_code is not None or len(records) < 2:
             for record in records:
                 self.send_record(record)
@@ -225,9 +226,10 @@ class FrameWriter:
             raise ValueError("record sent to a closed frame writer")
         if self._pending:
             raise ValueError("records and a byte stream cannot be mixed in one frame writer")
-        for record in records:
-            if len(record) > self._frame_bytes:
-                raise SettingError(f"a record of {len(record)} bytes does not fit a frame of {self._frame_bytes} bytes")
+        too_long = next((i for i, record in enumerate(records) if len(record) > self._frame_bytes), None)
+        if too_long is not None:  # the records before it still go, as they would one by one
+            self.send_records(records[:too_long])
+            self.send_record(records[too_long])  # raises SettingError
         first = self._header(len(records[0]), False)
         for frame in fmt.encode_record_frames(first, records, self._key):
             self._sink.write(frame)
