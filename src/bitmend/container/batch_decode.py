@@ -16,7 +16,7 @@ from typing import Iterable, Iterator
 import numpy as np
 
 from bitmend.container import format as fmt
-from bitmend.container.reader import DecodedFrame, block_counts, decode_payload, run_block_counts
+from bitmend.container.reader import DecodedFrame, block_counts, checked_message, decode_payload, run_block_counts
 from bitmend.container.workers import SlotBatch, SlotPool, shared_views
 from bitmend.interleave import decode_segments
 from bitmend.kernels.status import FAILED
@@ -63,16 +63,11 @@ def _decode_run(run: RunJob, inputs: memoryview, read: int, outputs: memoryview,
     size = first.coded_bytes
     coded = np.frombuffer(inputs[read: read + run.count * size], dtype=np.uint8).reshape(run.count, size)
     messages, statuses = decode_segments(first.code, first.depth, coded, first.message_bytes)
-    length = first.length
     counts = run_block_counts(statuses)
     for header, message, status, count in zip(headers, messages, statuses, counts):
-        payload = message[:length].tobytes()
-        crc_ok = int.from_bytes(message[length: length + fmt.CRC_BYTES], "big") == fmt.crc32c(payload)
-        authentic: bool | None = False if header.keyed and key is not None else None
-        if header.keyed and key is not None and crc_ok:
-            authentic = fmt.tag_matches(key, header, payload, message[length + fmt.CRC_BYTES:])
-        outputs[written: written + length] = payload
-        written += length
+        payload, crc_ok, authentic = checked_message(header, message, key)
+        outputs[written: written + len(payload)] = payload
+        written += len(payload)
         outputs[written: written + len(status)] = status.tobytes()
         written += len(status)
         results.append((len(status), crc_ok, authentic, count))

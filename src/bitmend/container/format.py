@@ -241,17 +241,19 @@ class FrameHeader:  # noqa: PLW1641 (`once` needs __dict__; frozen still blocks 
         """next(), next().next(), ... count headers: made by copying this header's fields
         (its sizes, computed once, come along) and setting the counters; a run of frames
         needs one per frame and replace() costs more than the frame's other bookkeeping."""
-        fields = dict(self.__dict__)
-        fields["last"] = False
         seq, position, length = self.seq, self.position, self.length
-        headers = []
-        for i in range(1, count + 1):
-            header = object.__new__(FrameHeader)
-            fields["seq"] = (seq + i) % SEQ_MODULUS
-            fields["position"] = (position + i * length) % (1 << POSITION_BITS)
-            header.__dict__.update(fields)
-            headers.append(header)
-        return headers
+        return [self._copied(seq=(seq + i) % SEQ_MODULUS, position=(position + i * length) % (1 << POSITION_BITS),
+                             last=False)
+                for i in range(1, count + 1)]
+
+    def _copied(self, **fields: object) -> "FrameHeader":
+        """This header with `fields` changed, its computed sizes kept (they do not depend
+        on the counters or flags changed here): what replace() gives, at a fraction of
+        its cost."""
+        header = object.__new__(FrameHeader)
+        header.__dict__.update(self.__dict__)
+        header.__dict__.update(fields)
+        return header
 
     def next(self) -> "FrameHeader":
         """The header a full frame after this one would carry (used to predict a lost header):
@@ -332,12 +334,9 @@ def decode_headers(coded: np.ndarray) -> list[FrameHeader | None]:
             except HeaderError:
                 parsed[fields] = None
         model = parsed[fields]
-        if model is not None:  # the same fields with this record's counters (FrameHeader.following)
-            header = object.__new__(FrameHeader)
-            header.__dict__.update(model.__dict__)
-            header.__dict__["seq"] = int.from_bytes(record[12:16], "big")
-            header.__dict__["position"] = int.from_bytes(record[16:22], "big")
-            headers[i] = header
+        if model is not None:  # the same fields with this record's counters
+            headers[i] = model._copied(seq=int.from_bytes(record[12:16], "big"),
+                                       position=int.from_bytes(record[16:22], "big"))
     return headers
 
 
@@ -461,7 +460,12 @@ def frame_tag(key: bytes, header: FrameHeader, payload: bytes) -> bytes:
     """The tag of a keyed frame: HMAC-SHA-256 under the shared key, truncated to its first
     16 bytes, over the header record without its CRC (version, flags, code id, depth,
     stream identity, sequence number, position, length) followed by the payload."""
-    return hmac.new(key, header.record()[:-CRC_BYTES] + payload, hashlib.sha256).digest()[:TAG_BYTES]
+    return record_tag(key, header.record()[:-CRC_BYTES], payload)
+
+
+def record_tag(key: bytes, record_body: bytes, payload: bytes) -> bytes:
+    """frame_tag from the header record without its CRC, when that is at hand already."""
+    return hmac.new(key, record_body + payload, hashlib.sha256).digest()[:TAG_BYTES]
 
 
 def tag_matches(key: bytes, header: FrameHeader, payload: bytes, tag: bytes) -> bool:
@@ -538,8 +542,7 @@ def encode_frames(first: FrameHeader, payloads: bytes | memoryview | np.ndarray,
         body = RECORD_BYTES - CRC_BYTES
         for i in range(count):
             messages[i, length + CRC_BYTES:] = np.frombuffer(
-                hmac.new(key, records[i, :body].tobytes() + payload_rows[i].tobytes(), hashlib.sha256).digest()[:TAG_BYTES],
-                dtype=np.uint8)
+                record_tag(key, records[i, :body].tobytes(), payload_rows[i].tobytes()), dtype=np.uint8)
     definition = (np.frombuffer(encode_definition(first.code, first.version), dtype=np.uint8)
                   if first.code_id == CUSTOM_CODE_ID else np.zeros(0, dtype=np.uint8))
     header_bytes, definition_bytes = first.header_bytes, first.definition_bytes
@@ -585,7 +588,7 @@ def encode_record_frames(first: FrameHeader, payloads: list[bytes], key: bytes |
             payload = bytes(payloads[i])
             message = payload + crc32c(payload).to_bytes(CRC_BYTES, "big")
             if first.keyed:
-                message += hmac.new(key, records[i, :body].tobytes() + payload, hashlib.sha256).digest()[:TAG_BYTES]
+                message += record_tag(key, records[i, :body].tobytes(), payload)
             messages[row] = np.frombuffer(message, dtype=np.uint8)
         coded = encode_segments(first.code, first.depth, messages)
         for row, i in enumerate(members):

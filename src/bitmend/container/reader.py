@@ -10,7 +10,6 @@ they touch and the scanner resumes at the next marker.
 
 from __future__ import annotations
 
-import struct
 from dataclasses import dataclass, field, replace
 from typing import BinaryIO, Iterator
 
@@ -123,13 +122,22 @@ def decode_payload(code, header: fmt.FrameHeader, coded: bytes,
     with a key, None without). The one place a whole payload is decoded, in this process or
     in a worker (container/batch_decode.py)."""
     message, status = decode_segment(code, header.depth, coded, header.message_bytes)
-    payload = message[: header.length]
-    check = message[header.length: header.length + fmt.CRC_BYTES]
-    crc_ok = struct.unpack(">I", check)[0] == fmt.crc32c(payload)
+    payload, crc_ok, authentic = checked_message(header, message, key)
+    return payload, status, crc_ok, authentic
+
+
+def checked_message(header: fmt.FrameHeader, message: bytes | np.ndarray,
+                    key: bytes | None) -> tuple[bytes, bool, bool | None]:
+    """(payload, CRC-32C matches, tag matches) of a decoded message: payload, its CRC-32C,
+    then a keyed frame's tag. The tag is checked only for a keyed frame, a key and a good
+    CRC (else False with a key, None without)."""
+    length = header.length
+    payload = bytes(message[:length])
+    crc_ok = int.from_bytes(message[length: length + fmt.CRC_BYTES], "big") == fmt.crc32c(payload)
     authentic: bool | None = False if header.keyed and key is not None else None
     if header.keyed and key is not None and crc_ok:
-        authentic = fmt.tag_matches(key, header, bytes(payload), message[header.length + fmt.CRC_BYTES:])
-    return payload, status, crc_ok, authentic
+        authentic = fmt.tag_matches(key, header, payload, message[length + fmt.CRC_BYTES:])
+    return payload, crc_ok, authentic
 
 
 def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedFrame | None]:
@@ -154,14 +162,8 @@ def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedF
                               dtype=np.uint8).reshape(len(members), first.coded_bytes)
         messages, status = decode_segments(first.code, first.depth, coded, first.message_bytes)
         counts = _counts_of_run(status)
-        length = first.length
         for row, (i, header) in enumerate(members):
-            message = messages[row]
-            payload = message[:length].tobytes()
-            crc_ok = int.from_bytes(message[length: length + fmt.CRC_BYTES], "big") == fmt.crc32c(payload)
-            authentic: bool | None = None
-            if header.keyed and key is not None:
-                authentic = crc_ok and fmt.tag_matches(key, header, payload, message[length + fmt.CRC_BYTES:])
+            payload, crc_ok, authentic = checked_message(header, messages[row], key)
             marker_distance = (int.from_bytes(blobs[i][:start], "big") ^ fmt.MARKER).bit_count()
             found[i] = DecodedFrame(header, 0, 0, payload, status[row], crc_ok, marker_distance=marker_distance,
                                     authentic=authentic)
@@ -411,22 +413,16 @@ class FrameScanner:
         coded_at = 8 + header_bytes
         marker_distance = np.unpackbits(grid[:, :8] ^ np.frombuffer(fmt.MARKER_BYTES, dtype=np.uint8),
                                         axis=1).sum(axis=1)
+        coded = grid[:, coded_at: coded_at + expected.coded_bytes]
         if self._batches is not None:
-            return self._submitted_run(bit, locked, grid[:, coded_at: coded_at + expected.coded_bytes],
-                                       marker_distance)
-        messages, block_status = decode_segments(expected.code, expected.depth,
-                                                 grid[:, coded_at: coded_at + expected.coded_bytes],
-                                                 expected.message_bytes)
+            submitted = self._submitted_run(bit, locked, coded, marker_distance)
+            if submitted:
+                return submitted
+        messages, block_status = decode_segments(expected.code, expected.depth, coded, expected.message_bytes)
         counts = _counts_of_run(block_status)
-        length = expected.length
         frames = []
         for i, header in enumerate(locked.following(count)):
-            message = messages[i]
-            payload = message[:length].tobytes()
-            crc_ok = int.from_bytes(message[length: length + fmt.CRC_BYTES], "big") == fmt.crc32c(payload)
-            authentic: bool | None = None
-            if header.keyed and self._key is not None:
-                authentic = crc_ok and fmt.tag_matches(self._key, header, payload, message[length + fmt.CRC_BYTES:])
+            payload, crc_ok, authentic = checked_message(header, messages[i], self._key)
             frame_bit = bit + 8 * size * i
             frames.append(DecodedFrame(header, frame_bit >> 3, frame_bit, payload, block_status[i], crc_ok,
                                        marker_distance=int(marker_distance[i]), authentic=authentic))
@@ -436,7 +432,7 @@ class FrameScanner:
     def _submitted_run(self, bit: int, locked: fmt.FrameHeader, coded: np.ndarray,
                        marker_distance: np.ndarray) -> list[DecodedFrame]:
         """A run's frames with their payloads handed to the batch workers (each filled when
-        settled), or decoded here when the workers do not take them."""
+        settled); none when the workers do not take them (the caller decodes them)."""
         size = locked.frame_bytes
         frames = []
         for i, header in enumerate(locked.following(coded.shape[0])):
@@ -444,13 +440,7 @@ class FrameScanner:
             authentic: bool | None = False if header.keyed and self._key is not None else None
             frames.append(DecodedFrame(header, frame_bit >> 3, frame_bit, b"", np.zeros(0, np.uint8), False,
                                        marker_distance=int(marker_distance[i]), authentic=authentic))
-        if self._batches.submit_run(frames, locked, coded):
-            return frames  # their payload fields are filled when they are settled
-        for i, frame in enumerate(frames):  # decoded here (the first run, before the workers start)
-            header = frame.header
-            frame.payload, frame.block_status, frame.crc_ok, frame.authentic = decode_payload(
-                header.code, header, coded[i].tobytes(), self._key)
-        return frames
+        return frames if self._batches.submit_run(frames, locked, coded) else []
 
     def _damaged(self, frame: DecodedFrame | None) -> bool:
         if frame is None:
