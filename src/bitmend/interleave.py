@@ -92,22 +92,23 @@ def _chunks(lay: SegmentLayout) -> list[tuple[int, int]]:
 
 def encode_segment(code: BlockCode, depth: int, message: bytes) -> bytes:
     """Encode and interleave message; returns layout(...).coded_bytes bytes."""
+    coded = _coded(code, depth, message)
+    return coded if isinstance(coded, bytes) else coded.tobytes()
+
+
+def _coded(code: BlockCode, depth: int, message: bytes | np.ndarray) -> bytes | np.ndarray:
+    """encode_segment's bytes; from the fused kernels, a uint8 view of their output buffer
+    instead (no copy to bytes, which encode_segments would only copy again). The generic
+    engine runs in the numpy twins for small work, else in the compiled kernels."""
     lay = layout(code, depth, len(message))
     engine = code.generic_engine
     if engine is None:
         return _encode_rows_segment(code, lay, bytes(message))
-    return _encode_engine(engine, lay, message)
-
-
-def _encode_engine(code: BinaryLinearCode, lay: SegmentLayout, message: bytes) -> bytes:
-    """encode_segment for the generic engine: numpy twins for small work, else fused kernels."""
-    depth = lay.depth
-    kernels = compiled(lay.coded_bits)
-    if kernels is None:
-        return small.encode(message, code.P, depth, lay.groups)
-    if depth == 1 or depth % 8 == 0:
-        return _encode_fused(code, lay, message)
-    return _encode_words(code, lay, message)
+    if compiled(lay.coded_bits) is None:
+        return small.encode(message, engine.P, depth, lay.groups)
+    if (depth == 1 or depth % 8 == 0) and _plan(engine, depth).encode_kind != "words":
+        return _encode_fused_words(engine, lay, message).view(np.uint8)[: lay.coded_bytes]
+    return _encode_words(engine, lay, message)
 
 
 def _encode_words(code: BinaryLinearCode, lay: SegmentLayout, message: bytes) -> bytes:
@@ -144,11 +145,16 @@ def encode_segments(code: BlockCode, depth: int, messages: np.ndarray, out: np.n
             whole = np.zeros((count, padded), dtype=np.uint8)
             whole[:, :message_bytes] = messages
             messages = whole
-        out[:] = _segment_array(code, depth, np.ascontiguousarray(messages).reshape(-1)).reshape(count, -1)
+        out[:] = _coded_array(code, depth, np.ascontiguousarray(messages).reshape(-1)).reshape(count, -1)
         return out
     for i in range(count):
-        out[i] = _segment_array(code, depth, messages[i])
+        out[i] = _coded_array(code, depth, messages[i])
     return out
+
+
+def _coded_array(code: BlockCode, depth: int, message: np.ndarray) -> np.ndarray:
+    coded = _coded(code, depth, message)
+    return np.frombuffer(coded, dtype=np.uint8) if isinstance(coded, bytes) else coded
 
 
 def _padded_message_bytes(lay: SegmentLayout) -> int | None:
@@ -159,17 +165,6 @@ def _padded_message_bytes(lay: SegmentLayout) -> int | None:
     if message_bits % 8 or lay.coded_bits % 8:
         return None
     return message_bits // 8
-
-
-def _segment_array(code: BlockCode, depth: int, message: np.ndarray) -> np.ndarray:
-    """encode_segment as a uint8 array: for the fused kernels, a view of their output
-    buffer (no copy to bytes and back)."""
-    lay = layout(code, depth, len(message))
-    engine = code.generic_engine
-    if engine is not None and compiled(lay.coded_bits) is not None and _plan(engine, depth).encode_kind != "words" \
-            and (depth == 1 or depth % 8 == 0):
-        return _encode_fused_words(engine, lay, message).view(np.uint8)[: lay.coded_bytes]
-    return np.frombuffer(encode_segment(code, depth, message), dtype=np.uint8)
 
 
 def decode_segment(code: BlockCode, depth: int, coded: bytes | np.ndarray,
@@ -389,12 +384,6 @@ def _fused():
 def _native(nbits: int) -> np.ndarray:
     """Uninitialised native word buffer for nbits; the fused writers store every word."""
     return np.empty((nbits + 63) // 64 + 2, dtype=np.uint64)
-
-
-def _encode_fused(code: BinaryLinearCode, lay: SegmentLayout, message: bytes) -> bytes:
-    if _plan(code, lay.depth).encode_kind == "words":
-        return _encode_words(code, lay, message)
-    return memoryview(_encode_fused_words(code, lay, message)).cast("B")[: lay.coded_bytes].tobytes()
 
 
 def _encode_fused_words(code: BinaryLinearCode, lay: SegmentLayout, message: bytes | np.ndarray) -> np.ndarray:
