@@ -174,6 +174,14 @@ def decode_segment(code: BlockCode, depth: int, coded: bytes | np.ndarray,
     coded may be shorter than the layout (a truncated stream); missing bits read as zero.
     Returns (message bytes, per-block status: 0 clean, w corrected, FAILED uncorrectable).
     """
+    message, status = _decoded(code, depth, coded, message_bytes)
+    return (message if isinstance(message, bytes) else message.tobytes()), status
+
+
+def _decoded(code: BlockCode, depth: int, coded: bytes | np.ndarray,
+             message_bytes: int) -> tuple[bytes | np.ndarray, np.ndarray]:
+    """decode_segment's work; the message as the kernel left it (bytes, or a uint8 array
+    that decode_segments uses without another copy)."""
     lay = layout(code, depth, message_bytes)
     raw = np.frombuffer(coded, dtype=np.uint8) if not isinstance(coded, np.ndarray) else coded
     engine = code.generic_engine
@@ -192,8 +200,10 @@ def decode_segments(code: BlockCode, depth: int, coded: np.ndarray,
     lay = layout(code, depth, message_bytes)
     padded = _padded_message_bytes(lay)
     if padded is not None and count and coded.shape[1] == lay.coded_bytes:
-        message, status = decode_segment(code, depth, np.ascontiguousarray(coded).reshape(-1), count * padded)
-        messages = np.frombuffer(message, dtype=np.uint8).reshape(count, padded)[:, :message_bytes]
+        message, status = _decoded(code, depth, np.ascontiguousarray(coded).reshape(-1), count * padded)
+        if isinstance(message, bytes):
+            message = np.frombuffer(message, dtype=np.uint8)
+        messages = message.reshape(count, padded)[:, :message_bytes]
         return messages, status.reshape(count, -1)
     messages = np.empty((count, message_bytes), dtype=np.uint8)
     status = np.empty((count, lay.blocks), dtype=np.uint8)
@@ -204,7 +214,7 @@ def decode_segments(code: BlockCode, depth: int, coded: np.ndarray,
 
 
 def _decode_engine(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
-                   message_bytes: int) -> tuple[bytes, np.ndarray]:
+                   message_bytes: int) -> tuple[bytes | np.ndarray, np.ndarray]:
     """decode_segment for the generic engine: numpy twins for small work, else fused kernels."""
     depth = lay.depth
     kernels = compiled(lay.coded_bits)
@@ -418,7 +428,7 @@ def _encode_fused_words(code: BinaryLinearCode, lay: SegmentLayout, message: byt
 
 
 def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
-                  message_bytes: int) -> tuple[bytes, np.ndarray]:
+                  message_bytes: int) -> tuple[bytes | np.ndarray, np.ndarray]:
     fused = _fused()
     plan = _plan(code, lay.depth)
     k, n = code.k, code.n
@@ -445,7 +455,7 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
         fused.decode_depth1(np.ascontiguousarray(raw), min(len(raw), lay.coded_bytes), lay.blocks, k, code.r,
                             plan.encode_table, plan.chunk_bits, plan.leader_message, plan.leader_weight, status,
                             out.view(np.uint8))
-    return memoryview(out).cast("B")[:message_bytes].tobytes(), status
+    return out.view(np.uint8)[:message_bytes], status
 
 
 # ---- codes with their own row kernels (BCH, Reed-Solomon) ------------------------------------------
