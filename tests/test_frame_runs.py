@@ -224,3 +224,95 @@ def test_a_record_too_long_stops_records_at_once_where_it_stops_them_one_by_one(
 
     at_once, one_by_one = sent(records), sent(iter(records))
     assert at_once == one_by_one and len(at_once[0]) == 2
+
+
+# ---- delivery of runs ------------------------------------------------------------------------
+
+class _Trickle(io.RawIOBase):
+    """A pipe-like source: reads return a few hundred bytes at a time, so the scanner never
+    reads ahead and finds short runs, as on a live link."""
+
+    def __init__(self, data: bytes, seed: int) -> None:
+        self._data, self._at = data, 0
+        self._rng = np.random.default_rng(seed)
+
+    def readable(self) -> bool:
+        return True
+
+    def readinto(self, buffer) -> int:
+        size = min(len(buffer), int(self._rng.integers(1, 900)), len(self._data) - self._at)
+        buffer[:size] = self._data[self._at: self._at + size]
+        self._at += size
+        return size
+
+
+def _decoded_from(source, jobs: int = 1) -> tuple[bytes, str]:
+    with bitmend.Decoder(source, jobs=jobs) as dec:
+        data = dec.read()
+        return data, dec.report.to_jsonl()
+
+
+def _frame_spans(container: bytes) -> list[tuple[int, int]]:
+    found = reader.FrameScanner(io.BytesIO(container), decode_payloads=False).frames()
+    return [(f.offset, f.offset + f.header.frame_bytes) for f in found]
+
+
+def test_a_container_in_memory_decodes_as_one_read_from_a_pipe() -> None:
+    # decode_bytes reads the container in place and a file is read ahead for long runs; a
+    # pipe that trickles gives short runs: same data, same reports, damaged or not
+    data = os.urandom(40_000)
+    container = bytearray(bitmend.encode_bytes(data, code="golay-24-12", depth=8, frame_bytes=700, stream_id=5))
+    rng = np.random.default_rng(8)
+    for bit in rng.choice(8 * len(container), size=len(container) // 300, replace=False):
+        container[bit // 8] ^= 1 << (bit % 8)
+    del container[9000: 9400]
+    container = bytes(container)
+    in_memory = bitmend.decode_bytes(container)
+    assert (in_memory.data, in_memory.report.to_jsonl()) == _decoded_from(_Trickle(container, 1))
+    assert (in_memory.data, in_memory.report.to_jsonl()) == _decoded_from(io.BytesIO(container))
+
+
+@pytest.mark.parametrize("arrangement", ["swapped", "repeated", "interleaved", "gap"])
+def test_runs_out_of_order_are_delivered_as_frame_by_frame(monkeypatch, arrangement: str) -> None:
+    # frames spliced out of order, twice, mixed with another stream's, or with a gap: the
+    # scanner still finds runs, which delivery must take frame by frame whenever they are
+    # not simply the next frames of the open stream; data and reports equal runs off
+    data = os.urandom(30_000)
+    ours = bitmend.encode_bytes(data, code="hamming-7-4", depth=1, frame_bytes=500, stream_id=31)
+    other = bitmend.encode_bytes(os.urandom(6000), code="hamming-7-4", depth=1, frame_bytes=500, stream_id=32)
+    spans = _frame_spans(ours)
+    pieces = [ours[a:b] for a, b in spans]
+    foreign = [other[a:b] for a, b in _frame_spans(other)]
+    if arrangement == "swapped":  # 10..19 arrive after 20..39
+        order = pieces[:10] + pieces[20:40] + pieces[10:20] + pieces[40:]
+    elif arrangement == "repeated":  # the whole stream, then again
+        order = pieces + pieces
+    elif arrangement == "interleaved":  # a run of the other stream inside ours
+        order = pieces[:15] + foreign[:8] + pieces[15:]
+    else:  # 10..49 lost: more than the reorder window
+        order = pieces[:10] + pieces[50:]
+    container = b"".join(order)
+    with_runs = _reports(container)
+    monkeypatch.setattr(reader, "RUN_FRAMES", 0)
+    assert with_runs == _reports(container)
+    if arrangement == "repeated":
+        assert with_runs[0] == data
+
+
+def test_the_next_frames_of_the_open_stream_are_delivered_as_one_run() -> None:
+    # a clean stream read as runs: delivery hands them on whole (one event a run), and
+    # the frames so delivered are every frame, in order, once
+    from bitmend.container.delivery import Delivered, DeliveredRun, Sequencer
+
+    container = bitmend.encode_bytes(os.urandom(50_000), code="golay-24-12", depth=8, frame_bytes=1000)
+    sequencer = Sequencer()
+    events = []
+    for item in reader.FrameScanner(container).items():
+        events += sequencer.push_run(item) if isinstance(item, reader.FrameRun) else sequencer.push(item)
+    events += sequencer.finish()
+    runs = [e for e in events if isinstance(e, DeliveredRun)]
+    assert runs and all(len(e.frames) > 1 for e in runs)
+    seqs = [f.header.seq for e in events if isinstance(e, (Delivered, DeliveredRun))
+            for f in (e.frames if isinstance(e, DeliveredRun) else [e.frame])]
+    assert seqs == list(range(len(_frame_spans(container))))
+    assert all(e.data == b"".join(bytes(f.payload) for f in e.frames) for e in runs)

@@ -361,11 +361,11 @@ class Decoder(AssemblerReadings, io.BufferedIOBase):
         self._name = _name_of(fileobj)
 
     def _data_chunks(self) -> Iterator[bytes]:
-        for data, report in self._assembler:
-            if report is not None:  # None: more data of the frame reported just before
-                if self._keep:
-                    self._frame_reports.append(report)
-                if self._on_frame:
+        for data, reports in self._assembler:
+            if self._keep:
+                self._frame_reports.extend(reports)
+            if self._on_frame:
+                for report in reports:
                     self._on_frame(report)
             if data:
                 yield data
@@ -593,7 +593,16 @@ def decode_bytes(container: bytes, on_error: str = "keep", key: bytes | None = N
     """Decode a whole container held in memory; raises NotAContainerError if no frame is
     found and, with on_error='fail', DamagedDataError at the first damaged or lost frame.
     key, accept_unauthenticated and jobs as for Decoder."""
-    with Decoder(io.BytesIO(container), on_error, key=key, accept_unauthenticated=accept_unauthenticated,
-                 jobs=jobs) as dec:
-        data = dec.read()
-        return Decoded(data, dec.report)
+    _check_on_error(on_error)
+    # the scanner reads the container where it lies, and the pieces are joined once
+    assembler = Assembler(bytes(container), on_error, key=_checked_key(key),
+                          accept_unauthenticated=accept_unauthenticated, jobs=resolve_jobs(jobs))
+    pieces: list[bytes] = []
+    reports: list[FrameReport] = []
+    try:
+        for data, found in assembler:
+            reports.extend(found)
+            pieces.append(data)
+    finally:
+        assembler.close()
+    return Decoded(b"".join(pieces), DecodeReport(reports, assembler.summary()))

@@ -24,7 +24,7 @@ from typing import BinaryIO, Callable, Iterable, Iterator
 from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH
 from bitmend.container.assembler import Assembler, AssemblerReadings, DamagedDataError
 from bitmend.container.format import DEFAULT_FRAME_BYTES, MAX_PAYLOAD_BYTES
-from bitmend.container.reader import FrameScanner, ScanStats, single_frames
+from bitmend.container.reader import DecodedFrame, FrameRun, FrameScanner, ScanStats, frames_of, grouped, single_frames
 from bitmend.container.writer import FrameWriter
 from bitmend.errors import SettingError
 from bitmend.report import CLEAN, CORRECTED, DAMAGED, REBUILT, DecodeReport, FrameReport
@@ -165,17 +165,26 @@ class BlobScanner:
         self.bytes_read = 0
         self.blobs = 0
 
-    def frames(self):
+    def frames(self) -> Iterator[DecodedFrame]:
+        return frames_of(self.items())
+
+    def items(self) -> Iterator[DecodedFrame | FrameRun]:
+        """The frames found, in order; blobs given all at once that follow one another as
+        FrameRuns (reader.grouped), which delivery may take together."""
         if isinstance(self._blobs, (list, tuple)):  # all here already: take them in batches
             for start in range(0, len(self._blobs), BLOB_BATCH):
                 batch = self._blobs[start: start + BLOB_BATCH]
+                found: list[DecodedFrame] = []  # whole single frames in a row
                 for blob, frame in zip(batch, single_frames(batch, self._key)):
                     if frame is None:
+                        yield from grouped(found)
+                        found = []
                         yield from self._scan(blob)
                     else:
                         self.blobs += 1
                         self.bytes_read += len(blob)
-                        yield frame
+                        found.append(frame)
+                yield from grouped(found)
             return
         for blob in self._blobs:  # as they come: each at once
             yield from self._scan(blob)
@@ -219,21 +228,28 @@ class RecordReader(AssemblerReadings):
     def with_reports(self) -> Iterator[tuple[int, bytes, FrameReport]]:
         """(record number, record, its frame report) for each record delivered."""
         keep_damaged = self._assembler.on_error == "keep"
-        for data, report in self._assembler:
-            if report is None:
-                continue
+        for data, reports in self._assembler:
             if self._keep:
-                self.frames.append(report)
-            if self._on_frame is not None:
-                self._on_frame(report)
-            if report.status == "lost":
-                if len(self.missing) < 100_000:
-                    self.missing.append(report.seq)
+                self.frames.extend(reports)
+            if len(reports) > 1:  # frames delivered together: each report's `bytes` are its record
+                view, at = memoryview(data), 0
+                for report in reports:
+                    if self._on_frame is not None:
+                        self._on_frame(report)
+                    yield report.seq, bytes(view[at: at + report.bytes]), report
+                    at += report.bytes
                 continue
-            if report.closing and report.bytes == 0 and report.status in (CLEAN, CORRECTED, REBUILT):
-                continue  # the stream's empty closing frame ends it; it is not a record
-            if report.status in (CLEAN, CORRECTED, REBUILT) or (report.status == DAMAGED and keep_damaged):
-                yield report.seq, data, report
+            for report in reports:  # none: more data of the frame before (never for records)
+                if self._on_frame is not None:
+                    self._on_frame(report)
+                if report.status == "lost":
+                    if len(self.missing) < 100_000:
+                        self.missing.append(report.seq)
+                    continue
+                if report.closing and report.bytes == 0 and report.status in (CLEAN, CORRECTED, REBUILT):
+                    continue  # the stream's empty closing frame ends it; it is not a record
+                if report.status in (CLEAN, CORRECTED, REBUILT) or (report.status == DAMAGED and keep_damaged):
+                    yield report.seq, data, report
 
     @property
     def report(self) -> DecodeReport:

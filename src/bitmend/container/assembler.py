@@ -12,8 +12,8 @@ from dataclasses import dataclass
 from typing import BinaryIO, Iterator
 
 from bitmend.container import format as fmt
-from bitmend.container.delivery import Delivered, Event, LostRun, Sequencer, StreamEnded
-from bitmend.container.reader import DecodedFrame, FrameScanner
+from bitmend.container.delivery import Delivered, DeliveredRun, Event, LostRun, Sequencer, StreamEnded
+from bitmend.container.reader import CLEAN_COUNTS, DecodedFrame, FrameRun, FrameScanner
 from bitmend.errors import ContainerError, SettingError
 from bitmend.report import CLEAN, CORRECTED, DAMAGED, LOST, REBUILT, UNAUTHENTICATED, FrameReport, Summary
 from bitmend.wording import counted
@@ -61,10 +61,15 @@ def _stream_name(header: fmt.FrameHeader) -> str | None:
     return f"{header.stream_id:016x}" if header.identified else None
 
 
+Piece = tuple[bytes, list[FrameReport]]
+
+
 class Assembler:
-    """Iterate (data, FrameReport | None) pairs for a container, in stream order; a None
-    report carries more data of the frame reported just before (zeros of a long lost
-    run). summary() when done."""
+    """Iterate (data, reports) pieces of a container, in stream order: the output bytes of
+    the frames whose FrameReports are listed, laid end to end (each report's `bytes` says
+    how many are its own). Usually one frame a piece; a run of frames delivered together
+    is one piece; a piece with no report carries more data of the frame reported just
+    before (zeros of a long lost run). summary() when done."""
 
     def __init__(self, source: BinaryIO | None, on_error: str = "keep", scanner=None, key: bytes | None = None,
                  accept_unauthenticated: bool = False, jobs: int = 1) -> None:
@@ -123,7 +128,7 @@ class Assembler:
         # CRC-verified; blocks that failed can only lie in the zero padding, still worth a flag
         return CORRECTED if frame.corrected_symbols or frame.failed_blocks else CLEAN
 
-    def _delivered(self, event: Delivered) -> Iterator[tuple[bytes, FrameReport | None]]:
+    def _delivered(self, event: Delivered) -> Iterator[Piece]:
         frame = event.frame
         header = frame.header
         stream_name = self._stream_names.get(event.stream_index, _UNNAMED)
@@ -145,12 +150,47 @@ class Assembler:
                                       frame.truncated, frame.failed_count, stream_name, event.stream_index,
                                       event.reordered, header.last)
         self._record(report)
-        yield data, report
+        yield data, [report]
         self._truncated = self._truncated or frame.truncated
         if status == DAMAGED and self.on_error == "fail":
             raise DamagedDataError(f"frame {header.seq} at byte {frame.offset} is damaged")
 
-    def _lost(self, run: LostRun) -> Iterator[tuple[bytes, FrameReport | None]]:
+    def _delivered_run(self, event: DeliveredRun) -> Iterator[Piece]:
+        """A run of verified frames (see DeliveredRun): the reports _delivered would make,
+        and their payloads as one piece."""
+        frames = event.frames
+        header = frames[0].header
+        stream_name = self._stream_names.get(event.stream_index, _UNNAMED)
+        if stream_name is _UNNAMED:
+            stream_name = self._stream_names[event.stream_index] = _stream_name(header)
+        if header.code_id not in self._codes_seen:  # a run is of one code
+            self._codes_seen.add(header.code_id)
+            self._symbol_bits.add(_symbol_bits(header))
+        c = self._counts
+        out = c.bytes_out
+        reports = []
+        for frame in frames:
+            counts = frame._counts
+            size = len(frame.payload)
+            if counts is CLEAN_COUNTS or counts == CLEAN_COUNTS:
+                reports.append(FrameReport.of_frame(frame.header.seq, frame.offset, CLEAN, len(frame.block_status),
+                                                    0, 0, [], True, out, size, False, 0, stream_name,
+                                                    event.stream_index, False, False))
+                c.clean += 1
+            else:
+                reports.append(FrameReport.of_frame(frame.header.seq, frame.offset, CORRECTED,
+                                                    len(frame.block_status), counts[0], counts[1],
+                                                    frame.failed_blocks, True, out, size, False, counts[2],
+                                                    stream_name, event.stream_index, False, False))
+                c.corrected += 1
+                c.corrected_symbols += counts[1]
+                c.failed_blocks += counts[2]
+            out += size
+        c.frames += len(frames)
+        c.bytes_out = out
+        yield (event.data if event.data is not None else b"".join([frame.payload for frame in frames])), reports
+
+    def _lost(self, run: LostRun) -> Iterator[Piece]:
         count, gap = run.count, run.gap_bytes
         if gap is not None and gap > count * fmt.MAX_PAYLOAD_BYTES:
             # positions either side disagree with any legal frame sizes: not believed
@@ -170,14 +210,16 @@ class Assembler:
                                  stream=stream, stream_index=run.stream_index)
             self._record(report)
             first = min(written, ZERO_CHUNK)
-            yield bytes(first), report
+            yield bytes(first), [report]
             for start in range(first, written, ZERO_CHUNK):  # a long run's zeros, in bounded pieces
-                yield bytes(min(ZERO_CHUNK, written - start)), None
+                yield bytes(min(ZERO_CHUNK, written - start)), []
             if self.on_error == "fail":
                 raise DamagedDataError(f"frame {seq} lost")
 
-    def _handle(self, event: Event) -> Iterator[tuple[bytes, FrameReport | None]]:
-        if isinstance(event, Delivered):
+    def _handle(self, event: Event) -> Iterator[Piece]:
+        if isinstance(event, DeliveredRun):
+            yield from self._delivered_run(event)
+        elif isinstance(event, Delivered):
             yield from self._delivered(event)
         elif isinstance(event, LostRun):
             yield from self._lost(event)
@@ -213,15 +255,30 @@ class Assembler:
         self._record(report)
         return report
 
-    def _found_frames(self) -> Iterator[DecodedFrame]:
-        """The scanner's frames in the order found, each with its payload decoded."""
+    def _found(self) -> Iterator[DecodedFrame | FrameRun]:
+        """The scanner's frames in the order found, each with its payload decoded; frames
+        found together as a FrameRun when the scanner finds them so (items())."""
+        items = self.scanner.items() if hasattr(self.scanner, "items") else self.scanner.frames()
         if self._batches is None:
-            yield from self.scanner.frames()
+            yield from items
             return
         try:
-            yield from self._batches.in_order(self.scanner.frames())
+            yield from self._batches.in_order(items)
         finally:
             self.close()
+
+    def _admits_run(self, run: FrameRun) -> bool:
+        """Whether every frame of a run is verified and may be delivered (by the key rules),
+        so the run may go to the sequencer whole; counts nothing."""
+        frames = run.frames
+        if not all(frame.crc_ok for frame in frames):
+            return False
+        header = frames[0].header  # the frames of a run share every flag; the rules of _admit
+        if self.accept_unauthenticated and not (self.key is not None and header.keyed):
+            return True
+        if self.key is None or not header.keyed:
+            return self.key is None and not header.keyed
+        return all(frame.authentic for frame in frames)
 
     def close(self) -> None:
         """Stop the payload workers, if any (done by itself at the end of the input)."""
@@ -229,14 +286,23 @@ class Assembler:
         if batches is not None:
             batches.close()
 
-    def __iter__(self) -> Iterator[tuple[bytes, FrameReport | None]]:
-        for frame in self._found_frames():
+    def __iter__(self) -> Iterator[Piece]:
+        for item in self._found():
             self._any_frame = True
-            if not self._admit(frame):
-                yield b"", self._unauthenticated(frame)
-                continue
-            for event in self.sequencer.push(frame):
-                yield from self._handle(event)
+            if isinstance(item, FrameRun):
+                if self._admits_run(item):
+                    for event in self.sequencer.push_run(item):
+                        yield from self._handle(event)
+                    continue
+                frames = item.loose()
+            else:
+                frames = [item]
+            for frame in frames:
+                if not self._admit(frame):
+                    yield b"", [self._unauthenticated(frame)]
+                    continue
+                for event in self.sequencer.push(frame):
+                    yield from self._handle(event)
         for event in self.sequencer.finish():
             yield from self._handle(event)
         if not self._any_frame:

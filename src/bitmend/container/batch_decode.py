@@ -16,7 +16,8 @@ from typing import Iterable, Iterator
 import numpy as np
 
 from bitmend.container import format as fmt
-from bitmend.container.reader import DecodedFrame, block_counts, checked_message, decode_payload, run_block_counts
+from bitmend.container.reader import (DecodedFrame, FrameRun, block_counts, checked_message, decode_payload,
+                                     run_block_counts)
 from bitmend.container.workers import SlotBatch, SlotPool, shared_views
 from bitmend.interleave import decode_segments
 from bitmend.kernels.status import FAILED
@@ -217,17 +218,35 @@ class BatchDecoder:
             self._settle_batch(frame.pending)
         return frame
 
-    def in_order(self, frames: Iterable[DecodedFrame]) -> Iterator[DecodedFrame]:
-        """frames as found, each settled, in the same order; a frame waits only for its own
-        batch, and batches are sent as they fill."""
-        held: deque[DecodedFrame] = deque()
-        for frame in frames:
-            held.append(frame)
-            while held and (held[0].pending is None or held[0].pending.task is not None
-                            and held[0].pending.task.done()):
-                yield self.settle(held.popleft())
+    def in_order(self, items: Iterable[DecodedFrame | FrameRun]) -> Iterator[DecodedFrame | FrameRun]:
+        """items (frames, or runs of frames) as found, each settled, in the same order; an
+        item waits only for its own batches, and batches are sent as they fill."""
+        held: deque[DecodedFrame | FrameRun] = deque()
+        for item in items:
+            held.append(item)
+            while held and self._ready(held[0]):
+                yield self._settled(held.popleft())
         while held:
-            yield self.settle(held.popleft())
+            yield self._settled(held.popleft())
+
+    @staticmethod
+    def _ready(item: DecodedFrame | FrameRun) -> bool:
+        """Whether every batch an item waits for is done."""
+        frames = item.frames if isinstance(item, FrameRun) else (item,)
+        batch = None
+        for frame in frames:  # a run's frames lie in a few batches, one after another
+            if frame.pending is not batch:
+                batch = frame.pending
+                if batch is not None and (batch.task is None or not batch.task.done()):
+                    return False
+        return True
+
+    def _settled(self, item: DecodedFrame | FrameRun) -> DecodedFrame | FrameRun:
+        if isinstance(item, FrameRun):
+            for frame in item.frames:
+                self.settle(frame)
+            return item
+        return self.settle(item)
 
     def close(self) -> None:
         if self._pool is not None:

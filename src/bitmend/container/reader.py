@@ -10,6 +10,9 @@ they touch and the scanner resumes at the next marker.
 
 from __future__ import annotations
 
+import io
+import os
+import stat
 from dataclasses import dataclass, field, replace
 from typing import BinaryIO, Iterator
 
@@ -76,7 +79,7 @@ class DecodedFrame:
     header: fmt.FrameHeader
     offset: int  # byte offset of the frame's marker in the input (rounded down for bit slips)
     bit_offset: int  # exact bit offset
-    payload: bytes
+    payload: bytes | memoryview  # a memoryview only inside a FrameRun from items(): a slice of FrameRun.data
     block_status: np.ndarray  # per block: 0 clean, w corrected, FAILED uncorrectable
     crc_ok: bool
     truncated: bool = False  # the input ended inside the frame
@@ -115,6 +118,53 @@ class DecodedFrame:
         return [int(i) for i in np.nonzero(self.block_status == FAILED)[0][:MAX_LISTED_FAILED]]
 
 
+@dataclass(frozen=True)
+class FrameRun:
+    """Frames of one stream found one after another (FrameScanner._run_at, or blobs taken
+    all at once): the same stream, code, depth and flags, consecutive sequence numbers and
+    stream positions, none of them a closing or repair frame. Delivery may then hand them
+    on together (container/delivery.py, Sequencer.push_run)."""
+
+    frames: list[DecodedFrame]
+    data: bytes | None = None  # the frames' payloads end to end, when made in one piece
+
+    def loose(self) -> list[DecodedFrame]:
+        """The frames, each holding its payload as bytes of its own (to be handed on one by
+        one: a frame's payload is otherwise a view of the run's data)."""
+        for frame in self.frames:
+            if isinstance(frame.payload, memoryview):
+                frame.payload = bytes(frame.payload)
+        return self.frames
+
+
+def _continues(before: fmt.FrameHeader, header: fmt.FrameHeader) -> bool:
+    """Whether header's frame may follow before's in one FrameRun."""
+    return (header.seq == (before.seq + 1) % fmt.SEQ_MODULUS and header.identified and before.identified
+            and header.stream_id == before.stream_id and header.code_id == before.code_id
+            and header.keyed == before.keyed and not (header.last or header.repair or header.in_group
+                                                     or before.last or before.repair or before.in_group))
+
+
+def grouped(frames: list[DecodedFrame]) -> Iterator[DecodedFrame | FrameRun]:
+    """frames in the same order, those that follow one another (one stream, consecutive
+    sequence numbers, same code, no closing or repair frame) as FrameRuns."""
+    start = 0
+    for end in range(1, len(frames) + 1):
+        if end < len(frames) and _continues(frames[end - 1].header, frames[end].header):
+            continue
+        yield FrameRun(frames[start:end]) if end - start > 1 else frames[start]
+        start = end
+
+
+def frames_of(items) -> Iterator[DecodedFrame]:
+    """The frames of FrameScanner.items(), one at a time, payloads as bytes."""
+    for item in items:
+        if isinstance(item, FrameRun):
+            yield from item.loose()
+        else:
+            yield item
+
+
 def decode_payload(code, header: fmt.FrameHeader, coded: bytes,
                    key: bytes | None) -> tuple[bytes, np.ndarray, bool, bool | None]:
     """(payload, block status, CRC-32C matches, tag matches) of a whole frame's coded
@@ -138,6 +188,29 @@ def checked_message(header: fmt.FrameHeader, message: bytes | np.ndarray,
     if header.keyed and key is not None and crc_ok:
         authentic = fmt.tag_matches(key, header, payload, message[length + fmt.CRC_BYTES:])
     return payload, crc_ok, authentic
+
+
+def checked_run(headers: list[fmt.FrameHeader], messages: np.ndarray,
+                key: bytes | None) -> tuple[bytes, list[memoryview], list[bool], list[bool | None]]:
+    """checked_message of every row of a run's decoded messages (count, message bytes),
+    whose headers share one length: (the payloads end to end, made with one copy; each
+    payload as a view of them; CRC-32C matches; tag matches). The CRC-32C is computed on
+    each row in place."""
+    length = headers[0].length
+    rows = messages[:, length: length + fmt.CRC_BYTES]
+    stored = (np.ascontiguousarray(rows).view(">u4").ravel().tolist() if len(headers)
+              else [])  # the CRC-32C that each message carries, big-endian
+    crc_ok = [fmt.crc32c(messages[i, :length]) == stored[i] for i in range(len(headers))]
+    data = messages[:, :length].tobytes()
+    view = memoryview(data)
+    payloads = [view[i * length: (i + 1) * length] for i in range(len(headers))]
+    authentic: list[bool | None] = [None] * len(headers)
+    if key is not None:
+        for i, header in enumerate(headers):
+            if header.keyed:
+                authentic[i] = crc_ok[i] and fmt.tag_matches(key, header, payloads[i],
+                                                             messages[i, length + fmt.CRC_BYTES:])
+    return data, payloads, crc_ok, authentic
 
 
 def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedFrame | None]:
@@ -171,6 +244,18 @@ def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedF
     return found
 
 
+def _reads_whole(source: BinaryIO) -> bool:
+    """Whether a read of source returns at once with all it asks for (an in-memory file
+    or a regular file), so the scanner may read ahead to make longer runs: nothing waits
+    for a peer, as it would on a pipe, socket or terminal."""
+    if isinstance(source, io.BytesIO):
+        return True
+    try:
+        return stat.S_ISREG(os.fstat(source.fileno()).st_mode)
+    except (AttributeError, OSError, ValueError, io.UnsupportedOperation):
+        return False
+
+
 @dataclass
 class ScanStats:
     skipped_bytes: int = 0  # input bytes that belonged to no decodable frame
@@ -180,22 +265,32 @@ class ScanStats:
 class FrameScanner:
     """Iterate the frames of a container read from a binary file object."""
 
-    def __init__(self, source: BinaryIO, read_chunk: int = READ_CHUNK, decode_payloads: bool = True,
+    def __init__(self, source: BinaryIO | bytes, read_chunk: int = READ_CHUNK, decode_payloads: bool = True,
                  key: bytes | None = None, batches=None) -> None:
-        """key: the shared key that keyed frames' tags are checked with (None: not checked).
+        """source: a binary file object, or a whole container in memory (bytes: read in
+        place, without copying it into the window).
+        key: the shared key that keyed frames' tags are checked with (None: not checked).
         batches: a container.batch_decode.BatchDecoder; whole payloads are then decoded by its
         workers, and a frame's payload fields are filled when it is settled (BatchDecoder.settle)."""
         self._key = key
         self._batches = batches
-        self._source = source
-        self._read = getattr(source, "read1", None) or source.read
         self._decode_payloads = decode_payloads
         self._chunk = read_chunk
-        self._buf = bytearray()
         self._base = 0  # absolute bit offset of _buf[0]
-        self._eof = False
         self.stats = ScanStats()
-        self.bytes_read = 0
+        if isinstance(source, bytes):
+            self._source = None
+            self._buf: bytearray | memoryview = memoryview(source)  # the window slides by slicing
+            self._eof = True
+            self._whole_reads = True
+            self.bytes_read = len(source)
+        else:
+            self._source = source
+            self._read = getattr(source, "read1", None) or source.read
+            self._buf = bytearray()
+            self._eof = False
+            self._whole_reads = _reads_whole(source)
+            self.bytes_read = 0
         self._searched_bits = 0  # bits scanned for markers so far (large scans load numba)
 
     # ---- window management ---------------------------------------------------------
@@ -224,7 +319,10 @@ class FrameScanner:
         once a whole read chunk can go, so the memmove of the rest is amortised."""
         cut = (bit - self._base) >> 3
         if cut >= self._chunk:
-            del self._buf[:cut]
+            if isinstance(self._buf, memoryview):
+                self._buf = self._buf[cut:]
+            else:
+                del self._buf[:cut]
             self._base += 8 * cut
 
     def _end_bit(self) -> int:
@@ -382,7 +480,7 @@ class FrameScanner:
         return DecodedFrame(header, bit >> 3, bit, payload, status, crc_ok, not complete, from_copy,
                             marker_distance, authentic)
 
-    def _run_at(self, bit: int, locked: fmt.FrameHeader) -> list[DecodedFrame]:
+    def _run_at(self, bit: int, locked: fmt.FrameHeader) -> FrameRun | None:
         """While locked at a byte boundary: the frames that follow `locked` without a break,
         from those already in the window, decoded together (header records in one call,
         payloads with one code plan). A frame joins the run only if its header decodes with
@@ -392,12 +490,15 @@ class FrameScanner:
         path would find; the first frame that differs ends the run and is left to it."""
         if (bit & 7 or locked.last or locked.version != fmt.FORMAT_VERSION or locked.code_id == fmt.CUSTOM_CODE_ID
                 or not self._decode_payloads):
-            return []
+            return None
         size = locked.frame_bytes
         start = (bit - self._base) >> 3
-        count = min(RUN_FRAMES, (len(self._buf) - start) // size, MAX_RUN_BYTES // size)
+        wanted = min(RUN_FRAMES, MAX_RUN_BYTES // size)
+        while self._whole_reads and (len(self._buf) - start) // size < wanted and self._read_once():
+            start = (bit - self._base) >> 3  # a file: read ahead for a whole run (nothing waits)
+        count = min(wanted, (len(self._buf) - start) // size)
         if count < 2:
-            return []
+            return None
         expected = locked.next()
         grid = np.frombuffer(self._buf, dtype=np.uint8, count=count * size, offset=start).reshape(count, size)
         header_bytes, record_bytes = expected.header_bytes, fmt.RECORD_BYTES
@@ -408,7 +509,7 @@ class FrameScanner:
         matches &= (status.reshape(count, -1) != FAILED).all(axis=1)
         count = int(np.argmin(matches)) if not matches.all() else count
         if count < 2:
-            return []
+            return None
         grid = grid[:count]
         coded_at = 8 + header_bytes
         marker_distance = np.unpackbits(grid[:, :8] ^ np.frombuffer(fmt.MARKER_BYTES, dtype=np.uint8),
@@ -416,21 +517,22 @@ class FrameScanner:
         coded = grid[:, coded_at: coded_at + expected.coded_bytes]
         if self._batches is not None:
             submitted = self._submitted_run(bit, locked, coded, marker_distance)
-            if submitted:
+            if submitted is not None:
                 return submitted
         messages, block_status = decode_segments(expected.code, expected.depth, coded, expected.message_bytes)
         counts = _counts_of_run(block_status)
+        headers = locked.following(count)
+        data, payloads, crc_ok, authentic = checked_run(headers, messages, self._key)
         frames = []
-        for i, header in enumerate(locked.following(count)):
-            payload, crc_ok, authentic = checked_message(header, messages[i], self._key)
+        for i, header in enumerate(headers):
             frame_bit = bit + 8 * size * i
-            frames.append(DecodedFrame(header, frame_bit >> 3, frame_bit, payload, block_status[i], crc_ok,
-                                       marker_distance=int(marker_distance[i]), authentic=authentic))
+            frames.append(DecodedFrame(header, frame_bit >> 3, frame_bit, payloads[i], block_status[i], crc_ok[i],
+                                       marker_distance=int(marker_distance[i]), authentic=authentic[i]))
             frames[-1].set_counts(counts[i])
-        return frames
+        return FrameRun(frames, data)
 
     def _submitted_run(self, bit: int, locked: fmt.FrameHeader, coded: np.ndarray,
-                       marker_distance: np.ndarray) -> list[DecodedFrame]:
+                       marker_distance: np.ndarray) -> FrameRun | None:
         """A run's frames with their payloads handed to the batch workers (each filled when
         settled); none when the workers do not take them (the caller decodes them)."""
         size = locked.frame_bytes
@@ -440,7 +542,7 @@ class FrameScanner:
             authentic: bool | None = False if header.keyed and self._key is not None else None
             frames.append(DecodedFrame(header, frame_bit >> 3, frame_bit, b"", np.zeros(0, np.uint8), False,
                                        marker_distance=int(marker_distance[i]), authentic=authentic))
-        return frames if self._batches.submit_run(frames, locked, coded) else []
+        return FrameRun(frames) if self._batches.submit_run(frames, locked, coded) else None
 
     def _damaged(self, frame: DecodedFrame | None) -> bool:
         if frame is None:
@@ -452,6 +554,10 @@ class FrameScanner:
     # ---- the scan ----------------------------------------------------------------------
     def frames(self) -> Iterator[DecodedFrame]:
         """Frames in stream order; see the module docstring for how they are found."""
+        return frames_of(self.items())
+
+    def items(self) -> Iterator[DecodedFrame | FrameRun]:
+        """Frames in stream order, those found together in a run as one FrameRun."""
         pos = 0  # absolute bit where the next frame is expected or the search resumes
         covered = 0  # absolute bit where the last emitted frame ended
         locked: fmt.FrameHeader | None = None  # last good header while in lock
@@ -459,11 +565,10 @@ class FrameScanner:
         fallback_frame: DecodedFrame | None = None  # the frame that may be damaged
         at_start = True  # input should begin with a frame: try its header even if the marker is hit
         while True:
-            run = self._run_at(pos, locked) if locked is not None else []
-            if run:
-                for frame in run:
-                    yield frame
-                last = run[-1]
+            run = self._run_at(pos, locked) if locked is not None else None
+            if run is not None:
+                yield run
+                last = run.frames[-1]
                 pos = covered = last.bit_offset + 8 * last.header.frame_bytes
                 locked = last.header
                 maybe_damaged = self._batches is not None or not last.crc_ok  # as for one frame, below
