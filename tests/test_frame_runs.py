@@ -316,3 +316,27 @@ def test_the_next_frames_of_the_open_stream_are_delivered_as_one_run() -> None:
             for f in (e.frames if isinstance(e, DeliveredRun) else [e.frame])]
     assert seqs == list(range(len(_frame_spans(container))))
     assert all(e.data == b"".join(bytes(f.payload) for f in e.frames) for e in runs)
+
+
+def test_headers_decoded_together_are_each_decoded_alone() -> None:
+    # counters at their extremes (sequence 2^32 - 1, positions past 2^32 up to 2^48 - 1),
+    # flags, keyed, a repair frame, one record hit beyond repair and one corrected:
+    # decode_headers row by row equals decode_header (None where that raises or fails)
+    headers = [fmt.FrameHeader(code_id("golay-24-12"), 8, fmt.SEQ_MODULUS - 1, 16384, stream_id=2**64 - 1,
+                               position=2**48 - 1),
+               fmt.FrameHeader(code_id("hamming-7-4"), 1, 7, 12, last=True, stream_id=3, position=2**32 + 5),
+               fmt.FrameHeader(code_id("secded-72-64"), 255, 0, 0, stream_id=0, position=0, keyed=True),
+               fmt.FrameHeader(code_id("rs-255-223"), 4, 12345, 900, stream_id=99, position=2**40, in_group=True),
+               fmt.FrameHeader(code_id("golay-24-12"), 8, 9, 300, stream_id=99, position=123456789, repair=True)]
+    rows = np.frombuffer(b"".join(fmt.encode_header(h) for h in headers * 3), dtype=np.uint8)
+    rows = rows.reshape(len(headers) * 3, fmt.HEADER_BYTES).copy()
+    rows[6, :30] ^= 0xFF  # beyond what the header code corrects
+    rows[8, 3] ^= 0x01  # one bit: corrected
+    want = []
+    for row in rows:
+        try:
+            want.append(fmt.decode_header(row.tobytes()))
+        except fmt.HeaderError:
+            want.append(None)
+    assert fmt.decode_headers(rows) == want
+    assert want[0] == headers[0] and want[8] == headers[3] and want[6] is None

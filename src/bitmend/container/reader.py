@@ -52,8 +52,10 @@ def block_counts(status: np.ndarray) -> tuple[int, int, int]:
 
 def _counts_of_run(status: np.ndarray) -> list[tuple[int, int, int]]:
     """block_counts per row: clean rows found in one test, the others by run_block_counts."""
-    hit = np.flatnonzero(status.any(axis=1))
     counts = [CLEAN_COUNTS] * status.shape[0]
+    if not status.size or not status.max():  # a clean run, the common case: one fast pass
+        return counts
+    hit = np.flatnonzero(status.any(axis=1))
     for row, value in zip(hit.tolist(), run_block_counts(status[hit])):
         counts[row] = value
     return counts
@@ -147,12 +149,16 @@ def _continues(before: fmt.FrameHeader, header: fmt.FrameHeader) -> bool:
 
 def grouped(frames: list[DecodedFrame]) -> Iterator[DecodedFrame | FrameRun]:
     """frames in the same order, those that follow one another (one stream, consecutive
-    sequence numbers, same code, no closing or repair frame) as FrameRuns."""
+    sequence numbers, same code, no closing or repair frame) as FrameRuns; a frame alone
+    holds its payload as bytes."""
     start = 0
     for end in range(1, len(frames) + 1):
         if end < len(frames) and _continues(frames[end - 1].header, frames[end].header):
             continue
-        yield FrameRun(frames[start:end]) if end - start > 1 else frames[start]
+        if end - start > 1:
+            yield FrameRun(frames[start:end])
+        else:
+            yield FrameRun([frames[start]]).loose()[0]  # alone: its payload as bytes of its own
         start = end
 
 
@@ -217,7 +223,9 @@ def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedF
     """The frame of each blob that is exactly one frame with an intact version 2 header of
     a catalog code, decoded many at a time (headers in one call, payloads of a shape in
     one call): what FrameScanner would find in that blob alone. None for any other blob
-    (a hit header, another size, a custom code, junk), which the caller scans on its own."""
+    (a hit header, another size, a custom code, junk), which the caller scans on its own.
+    Payloads are views of one piece per shape, as in a FrameRun: hand the frames on
+    through grouped(), which gives each frame that is not in a run bytes of its own."""
     found: list[DecodedFrame | None] = [None] * len(blobs)
     start, size = len(fmt.MARKER_BYTES), fmt.HEADER_BYTES
     places = [i for i, blob in enumerate(blobs) if len(blob) >= start + size]
@@ -235,12 +243,13 @@ def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedF
                               dtype=np.uint8).reshape(len(members), first.coded_bytes)
         messages, status = decode_segments(first.code, first.depth, coded, first.message_bytes)
         counts = _counts_of_run(status)
+        _, payloads, crc_ok, authentic = checked_run([header for _, header in members], messages, key)
+        marker = fmt.MARKER
         for row, (i, header) in enumerate(members):
-            payload, crc_ok, authentic = checked_message(header, messages[row], key)
-            marker_distance = (int.from_bytes(blobs[i][:start], "big") ^ fmt.MARKER).bit_count()
-            found[i] = DecodedFrame(header, 0, 0, payload, status[row], crc_ok, marker_distance=marker_distance,
-                                    authentic=authentic)
-            found[i].set_counts(counts[row])
+            frame = found[i] = DecodedFrame(header, 0, 0, payloads[row], status[row], crc_ok[row], False, False,
+                                            (int.from_bytes(blobs[i][:start], "big") ^ marker).bit_count(),
+                                            authentic[row])
+            frame.set_counts(counts[row])
     return found
 
 
