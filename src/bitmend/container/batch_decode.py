@@ -16,14 +16,15 @@ from typing import Iterable, Iterator
 import numpy as np
 
 from bitmend.container import format as fmt
-from bitmend.container.reader import (DecodedFrame, FrameRun, block_counts, checked_message, decode_payload,
-                                     run_block_counts)
+from bitmend.container.reader import (CLEAN_COUNTS, DecodedFrame, FrameRun, block_counts, checked_message,
+                                     decode_payload, run_block_counts)
 from bitmend.container.workers import SlotBatch, SlotPool, shared_views
 from bitmend.interleave import decode_segments
 from bitmend.kernels.status import FAILED
 
-# a frame's results in the output region: its payload, then one status byte per block;
-# blocks are at least 2 bits long, so a frame has at most 4 blocks per coded byte
+# a frame's results in the output region: its payload, then one status byte per block
+# unless every block is clean (the parent then makes the zeros itself); blocks are at least
+# 2 bits long, so a frame has at most 4 blocks per coded byte
 BLOCKS_PER_CODED_BYTE = 4
 
 CodeSpec = tuple  # ("catalog",) | ("defined", definition body) | ("unchecked", k, r)
@@ -69,8 +70,9 @@ def _decode_run(run: RunJob, inputs: memoryview, read: int, outputs: memoryview,
         payload, crc_ok, authentic = checked_message(header, message, key)
         outputs[written: written + len(payload)] = payload
         written += len(payload)
-        outputs[written: written + len(status)] = status.tobytes()
-        written += len(status)
+        if count != CLEAN_COUNTS:
+            outputs[written: written + len(status)] = status.tobytes()
+            written += len(status)
         results.append((len(status), crc_ok, authentic, count))
     return read + run.count * size, written
 
@@ -94,9 +96,11 @@ def _decode_batch(token: int, slot: int, jobs: list) -> list[tuple]:
             status = np.full(len(status), FAILED, dtype=np.uint8)
         outputs[written: written + len(payload)] = payload
         written += len(payload)
-        outputs[written: written + len(status)] = np.ascontiguousarray(status, dtype=np.uint8).tobytes()
-        written += len(status)
-        results.append((len(status), crc_ok, authentic, block_counts(status)))
+        counts = block_counts(status)
+        if counts != CLEAN_COUNTS:
+            outputs[written: written + len(status)] = np.ascontiguousarray(status, dtype=np.uint8).tobytes()
+            written += len(status)
+        results.append((len(status), crc_ok, authentic, counts))
     return results
 
 
@@ -205,8 +209,11 @@ class BatchDecoder:
             length = frame.header.length
             frame.payload = bytes(view[start: start + length])
             start += length
-            frame.block_status = np.frombuffer(view[start: start + blocks], dtype=np.uint8).copy()
-            start += blocks
+            if counts == CLEAN_COUNTS:  # not written: all zeros
+                frame.block_status = np.zeros(blocks, dtype=np.uint8)
+            else:
+                frame.block_status = np.frombuffer(view[start: start + blocks], dtype=np.uint8).copy()
+                start += blocks
             frame.crc_ok, frame.authentic = crc_ok, authentic
             frame.set_counts(counts)  # counted in the worker
             frame.pending = None
