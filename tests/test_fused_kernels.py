@@ -130,8 +130,8 @@ def test_each_code_and_depth_takes_the_kernel_chosen_for_it():
              for name, depth in (("hamming-7-4", 1), ("golay-24-12", 8), ("golay-24-12", 1), ("secded-72-64", 8),
                                  ("secded-72-64", 1), ("hamming-7-4", 16))}
     assert kinds == {("hamming-7-4", 1): ("linear", "linear"), ("golay-24-12", 8): ("linear", "linear"),
-                     ("golay-24-12", 1): ("depth1", "depth1"), ("secded-72-64", 8): ("octets", "words"),
-                     ("secded-72-64", 1): ("words", "words"), ("hamming-7-4", 16): ("octets", "words")}
+                     ("golay-24-12", 1): ("depth1", "depth1"), ("secded-72-64", 8): ("bytes", "bytes"),
+                     ("secded-72-64", 1): ("bytes", "bytes"), ("hamming-7-4", 16): ("octets", "words")}
 
 
 def test_byte_transpose_moves_byte_j_of_row_i_to_byte_i_of_row_j():

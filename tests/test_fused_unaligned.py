@@ -46,8 +46,9 @@ def test_the_depth1_codeword_kernels_serve_the_engine_codes_of_17_to_57_bits():
     assert set(DEPTH1_CODES) == {"hamming-31-26", "secded-39-32", "golay-23-12", "golay-24-12"}
 
 
-def test_the_depth8_octet_decoder_serves_every_code_of_25_to_64_bits():
-    assert set(OCTET8_CODES) == {"hamming-31-26", "hamming-63-57", "secded-39-32"}
+def test_the_depth8_octet_decoder_serves_every_code_of_25_to_64_bits_not_on_byte_tables():
+    # secded-39-32 (whole message bytes, one check byte) decodes on kernels.bytetable: tests/test_bytetable.py
+    assert set(OCTET8_CODES) == {"hamming-31-26", "hamming-63-57"}
 
 
 @settings(max_examples=40, deadline=None)

@@ -330,7 +330,7 @@ def decode_run(coded, k, r, depth, blocks, table, leader_message, leader_parity,
     n = k + r
     if depth % 8 == 0 and n <= 16 and word_table.shape[0] == (1 << n):
         return decode_short_bytewise(coded, k, n, depth, blocks, word_table, out)
-    if depth == 1 and word_table.shape[0] == (1 << n):
+    if depth == 1 and n < 64 and word_table.shape[0] == (1 << n):  # (1 << 64 wraps to 1: a placeholder's size)
         status = np.empty(blocks, dtype=np.uint8)
         message_mask = (U64(1) << U64(k)) - U64(1)
         index, acc, held = 0, U64(0), 0
