@@ -340,3 +340,27 @@ def test_headers_decoded_together_are_each_decoded_alone() -> None:
             want.append(None)
     assert fmt.decode_headers(rows) == want
     assert want[0] == headers[0] and want[8] == headers[3] and want[6] is None
+
+
+@pytest.mark.parametrize("on_error", ["zero", "drop", "fail"])
+def test_damaged_frames_inside_runs_follow_the_policy_as_frame_by_frame(monkeypatch, on_error: str) -> None:
+    # enough random bit errors that some frames fail their CRC-32C inside runs: each
+    # policy gives the data, reports (or the error) of the frame-by-frame path
+    data = os.urandom(50_000)
+    container = bytearray(bitmend.encode_bytes(data, code="hamming-7-4", depth=1, frame_bytes=1500, stream_id=9))
+    rng = np.random.default_rng(21)
+    for bit in rng.choice(8 * len(container), size=len(container) // 60, replace=False):
+        container[bit // 8] ^= 1 << (bit % 8)
+    container = bytes(container)
+
+    def outcome() -> tuple:
+        try:
+            out = bitmend.decode_bytes(container, on_error=on_error)
+        except bitmend.DamagedDataError as exc:
+            return ("raised", str(exc))
+        return out.data, out.report.to_jsonl(), out.report.summary.damaged
+
+    with_runs = outcome()
+    monkeypatch.setattr(reader, "RUN_FRAMES", 0)
+    assert with_runs == outcome()
+    assert with_runs[0] == "raised" if on_error == "fail" else with_runs[2] > 0

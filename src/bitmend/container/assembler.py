@@ -156,9 +156,15 @@ class Assembler:
             raise DamagedDataError(f"frame {header.seq} at byte {frame.offset} is damaged")
 
     def _delivered_run(self, event: DeliveredRun) -> Iterator[Piece]:
-        """A run of verified frames (see DeliveredRun): the reports _delivered would make,
-        and their payloads as one piece."""
+        """A run of frames delivered in order (see DeliveredRun): the reports _delivered
+        would make, and their payloads as one piece (a damaged frame's as corrected as far
+        as the code allows, as on_error='keep' delivers it); frame by frame through
+        _delivered when a frame failed its CRC-32C under another policy."""
         frames = event.frames
+        if self.on_error != "keep" and not all(frame.crc_ok for frame in frames):
+            for frame in FrameRun(frames).loose():
+                yield from self._delivered(Delivered(frame, event.stream_index, False))
+            return
         header = frames[0].header
         stream_name = self._stream_names.get(event.stream_index, _UNNAMED)
         if stream_name is _UNNAMED:
@@ -172,17 +178,21 @@ class Assembler:
         for frame in frames:
             counts = frame._counts
             size = len(frame.payload)
-            if counts is CLEAN_COUNTS or counts == CLEAN_COUNTS:
+            if frame.crc_ok and (counts is CLEAN_COUNTS or counts == CLEAN_COUNTS):
                 reports.append(FrameReport.of_frame(frame.header.seq, frame.offset, CLEAN, len(frame.block_status),
                                                     0, 0, [], True, out, size, False, 0, stream_name,
                                                     event.stream_index, False, False))
                 c.clean += 1
             else:
-                reports.append(FrameReport.of_frame(frame.header.seq, frame.offset, CORRECTED,
+                status = CORRECTED if frame.crc_ok else DAMAGED
+                reports.append(FrameReport.of_frame(frame.header.seq, frame.offset, status,
                                                     len(frame.block_status), counts[0], counts[1],
-                                                    frame.failed_blocks, True, out, size, False, counts[2],
+                                                    frame.failed_blocks, frame.crc_ok, out, size, False, counts[2],
                                                     stream_name, event.stream_index, False, False))
-                c.corrected += 1
+                if frame.crc_ok:
+                    c.corrected += 1
+                else:
+                    c.damaged += 1
                 c.corrected_symbols += counts[1]
                 c.failed_blocks += counts[2]
             out += size
@@ -268,11 +278,9 @@ class Assembler:
             self.close()
 
     def _admits_run(self, run: FrameRun) -> bool:
-        """Whether every frame of a run is verified and may be delivered (by the key rules),
-        so the run may go to the sequencer whole; counts nothing."""
+        """Whether every frame of a run may be delivered by the key rules (_admit), so the
+        run may go to the sequencer whole; counts nothing."""
         frames = run.frames
-        if not all(frame.crc_ok for frame in frames):
-            return False
         header = frames[0].header  # the frames of a run share every flag; the rules of _admit
         if self.accept_unauthenticated and not (self.key is not None and header.keyed):
             return True

@@ -55,8 +55,8 @@ class Delivered:
 
 @dataclass(frozen=True)
 class DeliveredRun:
-    """The next frames of the stream, in order, all CRC-verified and none reordered or
-    rebuilt: what as many Delivered events would say, handed on at once."""
+    """The next frames of the stream, in order, none reordered or rebuilt: what as many
+    Delivered events would say, handed on at once."""
 
     frames: list[DecodedFrame]
     stream_index: int
@@ -185,10 +185,10 @@ class Sequencer:
         return events
 
     def push_run(self, run: FrameRun) -> list[Event]:
-        """push() of every frame of a run whose frames all passed their CRC-32C. When the
-        run is simply the next frames of the open stream (nothing waits, nothing is held
-        aside, no lost run to report, no repair frames in use), that is one DeliveredRun
-        and O(1) work; otherwise frame by frame."""
+        """push() of every frame of a run. When the run is simply the next frames of the
+        open stream (nothing waits, nothing is held aside, no lost run to report, no repair
+        frames in use, so a frame that failed its CRC-32C is delivered in its place as
+        push() would), that is one DeliveredRun and O(1) work; otherwise frame by frame."""
         frames = run.frames
         first, last = frames[0].header, frames[-1].header
         stream = self._current

@@ -55,6 +55,8 @@ def _counts_of_run(status: np.ndarray) -> list[tuple[int, int, int]]:
     counts = [CLEAN_COUNTS] * status.shape[0]
     if not status.size or not status.max():  # a clean run, the common case: one fast pass
         return counts
+    if compiled_loaded():  # one sparse compiled pass over every row
+        return [CLEAN_COUNTS if row == CLEAN_COUNTS else row for row in run_block_counts(status)]
     hit = np.flatnonzero(status.any(axis=1))
     for row, value in zip(hit.tolist(), run_block_counts(status[hit])):
         counts[row] = value
