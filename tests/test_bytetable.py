@@ -42,9 +42,11 @@ def _random_code(k: int, r: int, seed: int) -> BinaryLinearCode:
 CUSTOM = {"secded-24-16": hsiao_secded(16, 8), "secded-32-24": hsiao_secded(24, 8),
           "secded-47-40": hsiao_secded(40, 7), "secded-64-56": hsiao_secded(56, 8),
           "random-40-32": _random_code(32, 8, seed=4), "random-51-48": _random_code(48, 3, seed=5)}
-BYTE_CASES = ([(name, depth) for name in ALL_CODES for depth in (1, 8) if _plan(get_code(name), depth).encode_kind == "bytes"]
+BYTE_KINDS = ("bytes", "pairs")
+BYTE_CASES = ([(name, depth) for name in ALL_CODES for depth in (1, 8)
+               if _plan(get_code(name), depth).encode_kind in BYTE_KINDS]
               + [(name, depth) for name, code in CUSTOM.items() for depth in (1, 8)
-                 if _plan(code, depth).encode_kind == "bytes"])
+                 if _plan(code, depth).encode_kind in BYTE_KINDS])
 
 
 def _code(name: str):

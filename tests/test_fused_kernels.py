@@ -130,7 +130,7 @@ def test_each_code_and_depth_takes_the_kernel_chosen_for_it():
              for name, depth in (("hamming-7-4", 1), ("golay-24-12", 8), ("golay-24-12", 1), ("secded-72-64", 8),
                                  ("secded-72-64", 1), ("hamming-7-4", 16))}
     assert kinds == {("hamming-7-4", 1): ("linear", "linear"), ("golay-24-12", 8): ("linear", "linear"),
-                     ("golay-24-12", 1): ("depth1", "depth1"), ("secded-72-64", 8): ("bytes", "bytes"),
+                     ("golay-24-12", 1): ("pairs", "pairs"), ("secded-72-64", 8): ("bytes", "bytes"),
                      ("secded-72-64", 1): ("bytes", "bytes"), ("hamming-7-4", 16): ("octets", "words")}
 
 

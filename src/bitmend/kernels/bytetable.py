@@ -323,3 +323,74 @@ def _correct_octet(m0, m1, m2, m3, m4, m5, m6, m7, syndromes, first, k, r, lm, l
     if s:
         m7 = _corrected_at(m7, s, k, lm, lw, st, first + 7)
     return m0, m1, m2, m3, m4, m5, m6, m7
+
+
+# ---- depth 1, short codewords two at a time on whole bytes -------------------------------------
+#
+# A code with k, n multiples of 4 (k <= 12: one parity lookup per message; n <= 32) puts
+# two codewords on whole bytes: a pair takes k/4 message bytes and gives n/4 coded bytes
+# (golay-24-12: 3 bytes in, 6 out). So a pair is one unaligned load, two lookups and one
+# unaligned store, with no bit-by-bit writer carried from one codeword to the next.
+
+@njit(cache=True, inline="always")
+def _encode_pair(ia, oa, length, i, k, r, ptab, safe):
+    x = _load(ia, length, i * (k >> 2), safe)
+    m0 = x >> U64(64 - k)
+    m1 = (x >> U64(64 - 2 * k)) & ((U64(1) << U64(k)) - U64(1))
+    n = k + r
+    c0 = (m0 << U64(r)) | U64(ptab[0, m0])
+    c1 = (m1 << U64(r)) | U64(ptab[0, m1])
+    store_be64(oa, i * (n >> 2), ((c0 << U64(n)) | c1) << U64(64 - 2 * n))  # bytes past 2n bits: rewritten
+
+
+@njit(cache=True)
+def encode_pairs(in8, length, blocks, k, r, ptab, out8):
+    """Depth 1, k and n = k + r multiples of 4, k <= 12, n <= 32: codewords 2i and 2i+1
+    (messages: the k/4 bytes from byte i k/4, first message first) as the n/4 bytes from
+    out8[i n/4], each codeword (m << r) | ptab[0, m]. An odd count codes one zero message
+    more, whose zero codeword falls in out8's spare bytes. in8 holds `length` bytes (zeros
+    past them); out8 needs 8 spare bytes."""
+    ia, oa = in8.ctypes.data, out8.ctypes.data
+    pairs = (blocks + 1) >> 1
+    fast = _whole(length, pairs, k >> 2, 8)
+    for i in range(fast):
+        _encode_pair(ia, oa, length, i, k, r, ptab, True)
+    for i in range(fast, pairs):
+        _encode_pair(ia, oa, length, i, k, r, ptab, False)
+
+
+@njit(cache=True, inline="always")
+def _decode_pairs(ia, oa, length, first, last, k, r, ptab, lm, lw, st, safe):
+    """Pairs first .. last - 1 of decode_pairs."""
+    n = k + r
+    word = (U64(1) << U64(n)) - U64(1)
+    parity = (U64(1) << U64(r)) - U64(1)
+    for i in range(first, last):
+        x = _load(ia, length, i * (n >> 2), safe)
+        w0 = x >> U64(64 - n)
+        w1 = (x >> U64(64 - 2 * n)) & word
+        m0 = w0 >> U64(r)
+        m1 = w1 >> U64(r)
+        s0 = (w0 & parity) ^ U64(ptab[0, m0])
+        s1 = (w1 & parity) ^ U64(ptab[0, m1])
+        if s0 | s1:
+            if s0:
+                m0 = _corrected_at(m0 << U64(64 - k), s0, k, lm, lw, st, 2 * i) >> U64(64 - k)
+            if s1:
+                m1 = _corrected_at(m1 << U64(64 - k), s1, k, lm, lw, st, 2 * i + 1) >> U64(64 - k)
+        store_be64(oa, i * (k >> 2), ((m0 << U64(k)) | m1) << U64(64 - 2 * k))
+
+
+@njit(cache=True)
+def decode_pairs(in8, length, blocks, k, r, ptab, leader_message, leader_weight, status, out8):
+    """Bounded-distance decoding of encode_pairs' layout, a pair of codewords per n/4
+    bytes: s = p XOR ptab[0, m] for each, corrected by its leader (status w) or left as
+    received (FAILED); messages written back to back. The extra codeword of an odd count
+    reads as zeros (s = 0: no status written). status must be zeroed; out8 needs 8 spare
+    bytes."""
+    ia, oa = in8.ctypes.data, out8.ctypes.data
+    lm, lw, st = leader_message.ctypes.data, leader_weight.ctypes.data, status.ctypes.data
+    pairs = (blocks + 1) >> 1
+    fast = _whole(length, pairs, (k + r) >> 2, 8)
+    _decode_pairs(ia, oa, length, 0, fast, k, r, ptab, lm, lw, st, True)
+    _decode_pairs(ia, oa, length, fast, pairs, k, r, ptab, lm, lw, st, False)
