@@ -37,11 +37,13 @@ def _random_code(k: int, r: int, seed: int) -> BinaryLinearCode:
     return BinaryLinearCode(f"random-{k + r}-{k}", P)
 
 
-# (code, depth) pairs on the byte path: catalog codes, and custom ones for message bytes
-# per codeword from 2 to 7 and r below 8 (depth 8 only), and a random code whose t is 0
+# (code, depth) pairs on the byte and pair paths: catalog codes, and custom ones for message
+# bytes per codeword from 2 to 7, r below 8 (depth 8 only), random codes of any t (0
+# included), and pairs of codewords of 5 and 8 bytes
 CUSTOM = {"secded-24-16": hsiao_secded(16, 8), "secded-32-24": hsiao_secded(24, 8),
           "secded-47-40": hsiao_secded(40, 7), "secded-64-56": hsiao_secded(56, 8),
-          "random-40-32": _random_code(32, 8, seed=4), "random-51-48": _random_code(48, 3, seed=5)}
+          "random-40-32": _random_code(32, 8, seed=4), "random-51-48": _random_code(48, 3, seed=5),
+          "random-20-8": _random_code(8, 12, seed=7), "random-32-12": _random_code(12, 20, seed=8)}
 BYTE_KINDS = ("bytes", "pairs")
 BYTE_CASES = ([(name, depth) for name in ALL_CODES for depth in (1, 8)
                if _plan(get_code(name), depth).encode_kind in BYTE_KINDS]
@@ -73,6 +75,8 @@ def test_the_byte_path_serves_the_codes_of_whole_message_bytes_and_one_check_byt
     assert set(BYTE_CASES) >= {("secded-24-16", 1), ("secded-32-24", 8), ("secded-47-40", 8), ("random-51-48", 8),
                                ("random-40-32", 1), ("secded-64-56", 1)}
     assert ("secded-47-40", 1) not in BYTE_CASES  # r = 7 at depth 1: a codeword is not whole bytes
+    pairs = {(name, depth) for name, depth in BYTE_CASES if _plan(_code(name), depth).encode_kind == "pairs"}
+    assert pairs == {("golay-24-12", 1), ("random-20-8", 1), ("random-32-12", 1)}
 
 
 def test_the_byte_path_encodes_the_same_bytes_as_the_word_kernels_and_the_twin():
