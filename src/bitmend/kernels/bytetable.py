@@ -25,34 +25,37 @@ transposed, so one 8x8 byte transpose of the 8 messages and one 8x8 bit transpos
 slice give them; the r check bytes are the 8 check bytes (one per codeword, left-aligned)
 bit transposed once. Decoding runs the same transposes backwards.
 
+Depth 1, pairs: a code with k and n multiples of 4 (k <= 12, one parity lookup per
+message; n <= 32) puts two codewords on whole bytes, k/4 message bytes in and n/4 coded
+bytes out (golay-24-12: 3 and 6): one unaligned load, two lookups and one store a pair.
+
 The layout and bit order are those of kernels.fused and kernels.blockcode (see their
 module notes), so these kernels write the same bytes; tests/test_bytetable.py holds them
-to the numpy twins in kernels.small. Buffers are plain bytes moved in unaligned words
-(kernels.fused.load_be64 / store_be64), passed to helpers by address; outputs need 8
-spare bytes (each word store may write past its step; the next step rewrites them).
+to the numpy twins in kernels.small and to kernels.blockcode. Buffers are plain bytes
+moved in unaligned words (kernels.fused.load_be64 / store_be64) through their addresses;
+outputs need 8 spare bytes (each word store may write past its step; the next step
+rewrites them).
+
+Each kernel runs one loop, written out with plain word loads, over the steps whose reads
+lie within the input, and the same loop over a zero-padded copy of what is left (at most
+a step or two, unless the input was cut short), so that bytes past the input read as zero
+without a test in the loop. Only the small lookup helpers are inlined by numba: inlining
+the loop bodies (two copies each, one testing every load) ran no faster and took minutes
+to compile.
 """
 
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
+from llvmlite import ir
+from numba import njit, types
+from numba.extending import intrinsic
 
 from bitmend.kernels.blockcode import transpose8
 from bitmend.kernels.fused import byte_transpose, load_be64, load_u8, load_u64, store_be64, store_u8
 from bitmend.kernels.status import FAILED
 
 U64 = np.uint64
-
-
-@njit(cache=True, inline="always")
-def _word_at(address, length, at):
-    """The 8 bytes at address + at as a big-endian word; bytes at or past length read as zero."""
-    if at + 8 <= length:
-        return load_be64(address, at)
-    x = U64(0)
-    for b in range(max(0, min(8, length - at))):
-        x |= load_u8(address, at + b) << U64(56 - 8 * b)
-    return x
 
 
 @njit(cache=True, inline="always")
@@ -97,14 +100,22 @@ def _corrected_at(m, s, k, lm, lw, st, block):
     return m
 
 
-@njit(cache=True, inline="always")
-def _load(address, length, at, safe):
-    """The word at address + at: one load when the caller knows all 8 bytes lie within
-    length (safe, a constant: the test compiles away), else _word_at."""
-    return load_be64(address, at) if safe else _word_at(address, length, at)
+@intrinsic
+def load_u32(typingctx, address, index):
+    """The native uint32 at address + 4 * index (an aligned table entry), as a uint64."""
+    if not (isinstance(address, types.Integer) and isinstance(index, types.Integer)):
+        return None
+
+    def codegen(context, builder, signature, args):
+        address = context.cast(builder, args[0], signature.args[0], types.intp)
+        index = context.cast(builder, args[1], signature.args[1], types.intp)
+        pointer = builder.inttoptr(address, ir.IntType(32).as_pointer())
+        return builder.zext(builder.load(builder.gep(pointer, [index])), ir.IntType(64))
+
+    return types.uint64(address, index), codegen
 
 
-@njit(cache=True, inline="always")
+@njit(cache=True)
 def _whole(length, count, stride, reach):
     """How many leading steps i < count read only below length, step i reading up to byte
     i stride + reach."""
@@ -113,18 +124,26 @@ def _whole(length, count, stride, reach):
     return min(count, (length - reach) // stride + 1)
 
 
-# ---- depth 1: kb message bytes and one check byte per codeword (r = 8) ---------------------------
-#
-# Every kernel here runs its loop twice: over the steps whose reads all lie within the
-# input (plain loads), then over the rest (bytes past the input read as zero). One loop
-# with that test inside ran 1.5x to 1.7x slower (secded-72-64, 1 MiB, one core).
+@njit(cache=True)
+def _rest(in8, length, start, nbytes):
+    """A zeroed copy of nbytes + 8 bytes holding in8[start:length] (the input past the
+    steps that read only within it; zeros past length)."""
+    rest = np.zeros(nbytes + 8, dtype=np.uint8)
+    if start < length:
+        rest[: length - start] = in8[start:length]
+    return rest
 
-@njit(cache=True, inline="always")
-def _encode_codeword(ia, ta, oa, length, i, kb, safe):
-    m = _load(ia, length, i * kb, safe)
-    at = i * (kb + 1)
-    store_be64(oa, at, m)  # its bytes past kb: the check byte and the next codeword rewrite them
-    store_u8(oa, at + kb, _check_any(ta, m, kb))
+
+# ---- depth 1: kb message bytes and one check byte per codeword (r = 8) ---------------------------
+
+@njit(cache=True)
+def _encode_codewords(ia, ta, oa, blocks, kb):
+    """blocks codewords of encode_depth1 from the message bytes at ia to oa."""
+    for i in range(blocks):
+        m = load_be64(ia, i * kb)
+        at = i * (kb + 1)
+        store_be64(oa, at, m)  # its bytes past kb: the check byte and the next codeword rewrite them
+        store_u8(oa, at + kb, _check_any(ta, m, kb))
 
 
 @njit(cache=True)
@@ -132,35 +151,26 @@ def encode_depth1(in8, length, blocks, kb, table, out8):
     """blocks codewords from the `length` message bytes of in8 (zeros past them): codeword
     i is message bytes i kb .. i kb + kb - 1, then their check byte, at out8[i (kb + 1)]:
     one word load and store of the message and kb lookups for the check byte."""
-    ia, ta, oa = in8.ctypes.data, table.ctypes.data, out8.ctypes.data  # once: see kernels.fused
+    ta, oa = table.ctypes.data, out8.ctypes.data  # once: see kernels.fused
     fast = _whole(length, blocks, kb, 8)
-    for i in range(fast):
-        _encode_codeword(ia, ta, oa, length, i, kb, True)
-    for i in range(fast, blocks):
-        _encode_codeword(ia, ta, oa, length, i, kb, False)
+    _encode_codewords(in8.ctypes.data, ta, oa, fast, kb)
+    if fast < blocks:
+        rest = _rest(in8, length, fast * kb, (blocks - fast) * kb)
+        _encode_codewords(rest.ctypes.data, ta, oa + fast * (kb + 1), blocks - fast, kb)
 
 
-@njit(cache=True, inline="always")
-def _decode_codeword(ia, ta, oa, length, i, kb, keep, safe):
-    """(message, syndrome) of codeword i, the message left-aligned."""
-    at = i * (kb + 1)
-    m = _load(ia, length, at, safe) & keep
-    if safe:
-        received = load_u8(ia, at + kb)
-    else:
-        received = load_u8(ia, at + kb) if at + kb < length else U64(0)
-    return m, received ^ _check_any(ta, m, kb)
-
-
-@njit(cache=True, inline="always")
-def _decode_codewords(ia, ta, oa, length, first, last, kb, lm, lw, st, safe):
-    """Codewords first .. last - 1 of decode_depth1."""
+@njit(cache=True)
+def _decode_codewords(ia, ta, oa, blocks, first, kb, lm, lw, st):
+    """blocks codewords of decode_depth1 from the received bytes at ia, messages to oa;
+    statuses from block first."""
     k = 8 * kb
     keep = ~(~U64(0) >> U64(k)) if kb < 8 else ~U64(0)  # the message bytes of a loaded word
-    for i in range(first, last):
-        m, s = _decode_codeword(ia, ta, oa, length, i, kb, keep, safe)
+    for i in range(blocks):
+        at = i * (kb + 1)
+        m = load_be64(ia, at) & keep
+        s = load_u8(ia, at + kb) ^ _check_any(ta, m, kb)
         if s != U64(0):
-            m = _corrected_at(m, s, k, lm, lw, st, i)
+            m = _corrected_at(m, s, k, lm, lw, st, first + i)
         store_be64(oa, i * kb, m)
 
 
@@ -170,48 +180,55 @@ def decode_depth1(in8, length, blocks, kb, table, leader_message, leader_weight,
     check of the received message, corrected by its leader (see module notes); messages
     written back to back from out8[0]. in8 holds `length` bytes (zeros past them); status
     must be zeroed; out8 needs 8 spare bytes."""
-    ia, ta, oa = in8.ctypes.data, table.ctypes.data, out8.ctypes.data
+    ta, oa = table.ctypes.data, out8.ctypes.data
     lm, lw, st = leader_message.ctypes.data, leader_weight.ctypes.data, status.ctypes.data
-    fast = _whole(length, blocks, kb + 1, max(8, kb + 1))
-    _decode_codewords(ia, ta, oa, length, 0, fast, kb, lm, lw, st, True)
-    _decode_codewords(ia, ta, oa, length, fast, blocks, kb, lm, lw, st, False)
+    nb = kb + 1
+    fast = _whole(length, blocks, nb, max(8, nb))
+    _decode_codewords(in8.ctypes.data, ta, oa, fast, 0, kb, lm, lw, st)
+    if fast < blocks:
+        rest = _rest(in8, length, fast * nb, (blocks - fast) * nb)
+        _decode_codewords(rest.ctypes.data, ta, oa + fast * kb, blocks - fast, fast, kb, lm, lw, st)
 
 
 # ---- depth 8: octets of 8 codewords, bit-interleaved -------------------------------------------------
 
-@njit(cache=True, inline="always")
-def _encode_octet(ia, ta, oa, length, t, kb, r, keep, safe):
-    at = t * 8 * kb
-    w0 = _load(ia, length, at, safe) & keep
-    w1 = _load(ia, length, at + kb, safe) & keep
-    w2 = _load(ia, length, at + 2 * kb, safe) & keep
-    w3 = _load(ia, length, at + 3 * kb, safe) & keep
-    w4 = _load(ia, length, at + 4 * kb, safe) & keep
-    w5 = _load(ia, length, at + 5 * kb, safe) & keep
-    w6 = _load(ia, length, at + 6 * kb, safe) & keep
-    w7 = _load(ia, length, at + 7 * kb, safe) & keep
-    checks = ((_check_any(ta, w0, kb) << U64(56)) | (_check_any(ta, w1, kb) << U64(48))
-              | (_check_any(ta, w2, kb) << U64(40)) | (_check_any(ta, w3, kb) << U64(32))
-              | (_check_any(ta, w4, kb) << U64(24)) | (_check_any(ta, w5, kb) << U64(16))
-              | (_check_any(ta, w6, kb) << U64(8)) | _check_any(ta, w7, kb))
-    b0, b1, b2, b3, b4, b5, b6, b7 = byte_transpose(w0, w1, w2, w3, w4, w5, w6, w7)
-    base = t * (8 * kb + r)
-    store_be64(oa, base, transpose8(b0))
-    if kb > 1:
-        store_be64(oa, base + 8, transpose8(b1))
-    if kb > 2:
-        store_be64(oa, base + 16, transpose8(b2))
-    if kb > 3:
-        store_be64(oa, base + 24, transpose8(b3))
-    if kb > 4:
-        store_be64(oa, base + 32, transpose8(b4))
-    if kb > 5:
-        store_be64(oa, base + 40, transpose8(b5))
-    if kb > 6:
-        store_be64(oa, base + 48, transpose8(b6))
-    if kb > 7:
-        store_be64(oa, base + 56, transpose8(b7))
-    store_be64(oa, base + 8 * kb, transpose8(checks))
+@njit(cache=True)
+def _encode_octets(ia, ta, oa, octets, kb, r):
+    """octets octets of encode_octet8 from the message bytes at ia to oa."""
+    keep = ~(~U64(0) >> U64(8 * kb)) if kb < 8 else ~U64(0)
+    n = 8 * kb + r
+    for t in range(octets):
+        at = t * 8 * kb
+        w0 = load_be64(ia, at) & keep
+        w1 = load_be64(ia, at + kb) & keep
+        w2 = load_be64(ia, at + 2 * kb) & keep
+        w3 = load_be64(ia, at + 3 * kb) & keep
+        w4 = load_be64(ia, at + 4 * kb) & keep
+        w5 = load_be64(ia, at + 5 * kb) & keep
+        w6 = load_be64(ia, at + 6 * kb) & keep
+        w7 = load_be64(ia, at + 7 * kb) & keep
+        checks = ((_check_any(ta, w0, kb) << U64(56)) | (_check_any(ta, w1, kb) << U64(48))
+                  | (_check_any(ta, w2, kb) << U64(40)) | (_check_any(ta, w3, kb) << U64(32))
+                  | (_check_any(ta, w4, kb) << U64(24)) | (_check_any(ta, w5, kb) << U64(16))
+                  | (_check_any(ta, w6, kb) << U64(8)) | _check_any(ta, w7, kb))
+        b0, b1, b2, b3, b4, b5, b6, b7 = byte_transpose(w0, w1, w2, w3, w4, w5, w6, w7)
+        base = t * n
+        store_be64(oa, base, transpose8(b0))
+        if kb > 1:
+            store_be64(oa, base + 8, transpose8(b1))
+        if kb > 2:
+            store_be64(oa, base + 16, transpose8(b2))
+        if kb > 3:
+            store_be64(oa, base + 24, transpose8(b3))
+        if kb > 4:
+            store_be64(oa, base + 32, transpose8(b4))
+        if kb > 5:
+            store_be64(oa, base + 40, transpose8(b5))
+        if kb > 6:
+            store_be64(oa, base + 48, transpose8(b6))
+        if kb > 7:
+            store_be64(oa, base + 56, transpose8(b7))
+        store_be64(oa, base + 8 * kb, transpose8(checks))
 
 
 @njit(cache=True)
@@ -221,48 +238,41 @@ def encode_octet8(in8, length, octets, kb, r, table, out8):
     of the byte transpose of the 8 messages, then the 8 check bytes bit transposed (its
     bytes past r are zero and the next octet rewrites them). in8 holds `length` bytes
     (zeros past them); out8 needs 8 spare bytes."""
-    ia, ta, oa = in8.ctypes.data, table.ctypes.data, out8.ctypes.data
-    keep = ~(~U64(0) >> U64(8 * kb)) if kb < 8 else ~U64(0)
+    ta, oa = table.ctypes.data, out8.ctypes.data
     fast = _whole(length, octets, 8 * kb, 7 * kb + 8)
-    for t in range(fast):
-        _encode_octet(ia, ta, oa, length, t, kb, r, keep, True)
-    for t in range(fast, octets):
-        _encode_octet(ia, ta, oa, length, t, kb, r, keep, False)
+    _encode_octets(in8.ctypes.data, ta, oa, fast, kb, r)
+    if fast < octets:
+        rest = _rest(in8, length, fast * 8 * kb, (octets - fast) * 8 * kb)
+        _encode_octets(rest.ctypes.data, ta, oa + fast * (8 * kb + r), octets - fast, kb, r)
 
 
-@njit(cache=True, inline="always")
-def _received_octet(ia, ta, length, t, kb, r, safe):
-    """The 8 received messages (left-aligned) of octet t and their 8 syndromes (byte q
-    of the last word, left-aligned)."""
-    base = t * (8 * kb + r)
-    zero = U64(0)
-    s0 = transpose8(_load(ia, length, base, safe))
-    s1 = transpose8(_load(ia, length, base + 8, safe)) if kb > 1 else zero
-    s2 = transpose8(_load(ia, length, base + 16, safe)) if kb > 2 else zero
-    s3 = transpose8(_load(ia, length, base + 24, safe)) if kb > 3 else zero
-    s4 = transpose8(_load(ia, length, base + 32, safe)) if kb > 4 else zero
-    s5 = transpose8(_load(ia, length, base + 40, safe)) if kb > 5 else zero
-    s6 = transpose8(_load(ia, length, base + 48, safe)) if kb > 6 else zero
-    s7 = transpose8(_load(ia, length, base + 56, safe)) if kb > 7 else zero
-    check_bytes = ~(~U64(0) >> U64(8 * r)) if r < 8 else ~U64(0)  # the octet's r check bytes of the word
-    received = transpose8(_load(ia, length, base + 8 * kb, safe) & check_bytes)
-    m0, m1, m2, m3, m4, m5, m6, m7 = byte_transpose(s0, s1, s2, s3, s4, s5, s6, s7)
-    syndromes = received ^ ((_check_any(ta, m0, kb) << U64(56)) | (_check_any(ta, m1, kb) << U64(48))
-                            | (_check_any(ta, m2, kb) << U64(40)) | (_check_any(ta, m3, kb) << U64(32))
-                            | (_check_any(ta, m4, kb) << U64(24)) | (_check_any(ta, m5, kb) << U64(16))
-                            | (_check_any(ta, m6, kb) << U64(8)) | _check_any(ta, m7, kb))
-    return m0, m1, m2, m3, m4, m5, m6, m7, syndromes
-
-
-@njit(cache=True, inline="always")
-def _decode_octets(ia, ta, oa, length, first, last, kb, r, lm, lw, st, safe):
-    """Octets first .. last - 1 of decode_octet8."""
+@njit(cache=True)
+def _decode_octets(ia, ta, oa, octets, first, kb, r, lm, lw, st):
+    """octets octets of decode_octet8 from the received bytes at ia, messages to oa;
+    statuses from octet first."""
     k = 8 * kb
-    for t in range(first, last):
-        m0, m1, m2, m3, m4, m5, m6, m7, syndromes = _received_octet(ia, ta, length, t, kb, r, safe)
-        if syndromes != U64(0):  # damaged octet: each codeword by its own syndrome
-            m0, m1, m2, m3, m4, m5, m6, m7 = _correct_octet(m0, m1, m2, m3, m4, m5, m6, m7, syndromes, 8 * t, k, r,
-                                                            lm, lw, st)
+    n = k + r
+    zero = U64(0)
+    check_bytes = ~(~U64(0) >> U64(8 * r)) if r < 8 else ~U64(0)  # the octet's r check bytes of a word
+    for t in range(octets):
+        base = t * n
+        s0 = transpose8(load_be64(ia, base))
+        s1 = transpose8(load_be64(ia, base + 8)) if kb > 1 else zero
+        s2 = transpose8(load_be64(ia, base + 16)) if kb > 2 else zero
+        s3 = transpose8(load_be64(ia, base + 24)) if kb > 3 else zero
+        s4 = transpose8(load_be64(ia, base + 32)) if kb > 4 else zero
+        s5 = transpose8(load_be64(ia, base + 40)) if kb > 5 else zero
+        s6 = transpose8(load_be64(ia, base + 48)) if kb > 6 else zero
+        s7 = transpose8(load_be64(ia, base + 56)) if kb > 7 else zero
+        received = transpose8(load_be64(ia, base + 8 * kb) & check_bytes)
+        m0, m1, m2, m3, m4, m5, m6, m7 = byte_transpose(s0, s1, s2, s3, s4, s5, s6, s7)
+        syndromes = received ^ ((_check_any(ta, m0, kb) << U64(56)) | (_check_any(ta, m1, kb) << U64(48))
+                                | (_check_any(ta, m2, kb) << U64(40)) | (_check_any(ta, m3, kb) << U64(32))
+                                | (_check_any(ta, m4, kb) << U64(24)) | (_check_any(ta, m5, kb) << U64(16))
+                                | (_check_any(ta, m6, kb) << U64(8)) | _check_any(ta, m7, kb))
+        if syndromes != zero:  # damaged octet: each codeword by its own syndrome
+            m0, m1, m2, m3, m4, m5, m6, m7 = _correct_octet(m0, m1, m2, m3, m4, m5, m6, m7, syndromes,
+                                                            8 * (first + t), k, r, lm, lw, st)
         at = t * 8 * kb
         store_be64(oa, at, m0)  # its bytes past kb: the next message rewrites them
         store_be64(oa, at + kb, m1)
@@ -283,12 +293,14 @@ def decode_octet8(in8, length, octets, kb, r, table, leader_message, leader_weig
     leader or flagged. Messages are written back to back (codeword q's kb bytes at
     out8[(8 t + q) kb]). in8 holds `length` bytes (zeros past them); status must be zeroed;
     out8 needs 8 spare bytes."""
-    ia, ta, oa = in8.ctypes.data, table.ctypes.data, out8.ctypes.data
+    ta, oa = table.ctypes.data, out8.ctypes.data
     lm, lw, st = leader_message.ctypes.data, leader_weight.ctypes.data, status.ctypes.data
     n = 8 * kb + r
     fast = _whole(length, octets, n, n + 8 - r)  # octet t reads up to its last check byte + 8 - r
-    _decode_octets(ia, ta, oa, length, 0, fast, kb, r, lm, lw, st, True)
-    _decode_octets(ia, ta, oa, length, fast, octets, kb, r, lm, lw, st, False)
+    _decode_octets(in8.ctypes.data, ta, oa, fast, 0, kb, r, lm, lw, st)
+    if fast < octets:
+        rest = _rest(in8, length, fast * n, (octets - fast) * n)
+        _decode_octets(rest.ctypes.data, ta, oa + fast * 8 * kb, octets - fast, fast, kb, r, lm, lw, st)
 
 
 @njit(cache=True, no_cpython_wrapper=True)
@@ -326,58 +338,58 @@ def _correct_octet(m0, m1, m2, m3, m4, m5, m6, m7, syndromes, first, k, r, lm, l
 
 
 # ---- depth 1, short codewords two at a time on whole bytes -------------------------------------
-#
-# A code with k, n multiples of 4 (k <= 12: one parity lookup per message; n <= 32) puts
-# two codewords on whole bytes: a pair takes k/4 message bytes and gives n/4 coded bytes
-# (golay-24-12: 3 bytes in, 6 out). So a pair is one unaligned load, two lookups and one
-# unaligned store, with no bit-by-bit writer carried from one codeword to the next.
 
-@njit(cache=True, inline="always")
-def _encode_pair(ia, oa, length, i, k, r, ptab, safe):
-    x = _load(ia, length, i * (k >> 2), safe)
-    m0 = x >> U64(64 - k)
-    m1 = (x >> U64(64 - 2 * k)) & ((U64(1) << U64(k)) - U64(1))
+@njit(cache=True)
+def _encode_pairs(ia, pa, oa, pairs, k, r):
+    """pairs pairs of encode_pairs from the message bytes at ia to oa (pa: parity table)."""
     n = k + r
-    c0 = (m0 << U64(r)) | U64(ptab[0, m0])
-    c1 = (m1 << U64(r)) | U64(ptab[0, m1])
-    store_be64(oa, i * (n >> 2), ((c0 << U64(n)) | c1) << U64(64 - 2 * n))  # bytes past 2n bits: rewritten
+    low = (U64(1) << U64(k)) - U64(1)
+    for i in range(pairs):
+        x = load_be64(ia, i * (k >> 2))
+        m0 = x >> U64(64 - k)
+        m1 = (x >> U64(64 - 2 * k)) & low
+        c0 = (m0 << U64(r)) | load_u32(pa, m0)
+        c1 = (m1 << U64(r)) | load_u32(pa, m1)
+        store_be64(oa, i * (n >> 2), ((c0 << U64(n)) | c1) << U64(64 - 2 * n))  # bytes past 2n bits: rewritten
 
 
 @njit(cache=True)
 def encode_pairs(in8, length, blocks, k, r, ptab, out8):
     """Depth 1, k and n = k + r multiples of 4, k <= 12, n <= 32: codewords 2i and 2i+1
     (messages: the k/4 bytes from byte i k/4, first message first) as the n/4 bytes from
-    out8[i n/4], each codeword (m << r) | ptab[0, m]. An odd count codes one zero message
-    more, whose zero codeword falls in out8's spare bytes. in8 holds `length` bytes (zeros
-    past them); out8 needs 8 spare bytes."""
-    ia, oa = in8.ctypes.data, out8.ctypes.data
+    out8[i n/4], each codeword (m << r) | ptab[0, m] (ptab: uint32). An odd count codes
+    one zero message more, whose zero codeword falls in out8's spare bytes. in8 holds
+    `length` bytes (zeros past them); out8 needs 8 spare bytes."""
+    pa, oa = ptab.ctypes.data, out8.ctypes.data
     pairs = (blocks + 1) >> 1
     fast = _whole(length, pairs, k >> 2, 8)
-    for i in range(fast):
-        _encode_pair(ia, oa, length, i, k, r, ptab, True)
-    for i in range(fast, pairs):
-        _encode_pair(ia, oa, length, i, k, r, ptab, False)
+    _encode_pairs(in8.ctypes.data, pa, oa, fast, k, r)
+    if fast < pairs:
+        rest = _rest(in8, length, fast * (k >> 2), (pairs - fast) * (k >> 2))
+        _encode_pairs(rest.ctypes.data, pa, oa + fast * ((k + r) >> 2), pairs - fast, k, r)
 
 
-@njit(cache=True, inline="always")
-def _decode_pairs(ia, oa, length, first, last, k, r, ptab, lm, lw, st, safe):
-    """Pairs first .. last - 1 of decode_pairs."""
+@njit(cache=True)
+def _decode_pairs(ia, pa, oa, pairs, first, k, r, lm, lw, st):
+    """pairs pairs of decode_pairs from the received bytes at ia, messages to oa;
+    statuses from pair first."""
     n = k + r
     word = (U64(1) << U64(n)) - U64(1)
     parity = (U64(1) << U64(r)) - U64(1)
-    for i in range(first, last):
-        x = _load(ia, length, i * (n >> 2), safe)
+    for i in range(pairs):
+        x = load_be64(ia, i * (n >> 2))
         w0 = x >> U64(64 - n)
         w1 = (x >> U64(64 - 2 * n)) & word
         m0 = w0 >> U64(r)
         m1 = w1 >> U64(r)
-        s0 = (w0 & parity) ^ U64(ptab[0, m0])
-        s1 = (w1 & parity) ^ U64(ptab[0, m1])
+        s0 = (w0 & parity) ^ load_u32(pa, m0)
+        s1 = (w1 & parity) ^ load_u32(pa, m1)
         if s0 | s1:
+            block = 2 * (first + i)
             if s0:
-                m0 = _corrected_at(m0 << U64(64 - k), s0, k, lm, lw, st, 2 * i) >> U64(64 - k)
+                m0 = _corrected_at(m0 << U64(64 - k), s0, k, lm, lw, st, block) >> U64(64 - k)
             if s1:
-                m1 = _corrected_at(m1 << U64(64 - k), s1, k, lm, lw, st, 2 * i + 1) >> U64(64 - k)
+                m1 = _corrected_at(m1 << U64(64 - k), s1, k, lm, lw, st, block + 1) >> U64(64 - k)
         store_be64(oa, i * (k >> 2), ((m0 << U64(k)) | m1) << U64(64 - 2 * k))
 
 
@@ -388,9 +400,12 @@ def decode_pairs(in8, length, blocks, k, r, ptab, leader_message, leader_weight,
     received (FAILED); messages written back to back. The extra codeword of an odd count
     reads as zeros (s = 0: no status written). status must be zeroed; out8 needs 8 spare
     bytes."""
-    ia, oa = in8.ctypes.data, out8.ctypes.data
+    pa, oa = ptab.ctypes.data, out8.ctypes.data
     lm, lw, st = leader_message.ctypes.data, leader_weight.ctypes.data, status.ctypes.data
+    nb = (k + r) >> 2
     pairs = (blocks + 1) >> 1
-    fast = _whole(length, pairs, (k + r) >> 2, 8)
-    _decode_pairs(ia, oa, length, 0, fast, k, r, ptab, lm, lw, st, True)
-    _decode_pairs(ia, oa, length, fast, pairs, k, r, ptab, lm, lw, st, False)
+    fast = _whole(length, pairs, nb, 8)
+    _decode_pairs(in8.ctypes.data, pa, oa, fast, 0, k, r, lm, lw, st)
+    if fast < pairs:
+        rest = _rest(in8, length, fast * nb, (pairs - fast) * nb)
+        _decode_pairs(rest.ctypes.data, pa, oa + fast * (k >> 2), pairs - fast, fast, k, r, lm, lw, st)
