@@ -19,3 +19,25 @@ def test_one_packet_never_loads_numba_but_thousands_of_small_ones_do():
     run = subprocess.run([sys.executable, "-c", PROBE], capture_output=True, text=True, timeout=300)
     assert run.returncode == 0, run.stderr
     assert run.stdout.split() == ["False", "True", "3000"]
+
+
+BLAS_PROBE = """
+import sys
+from bitmend.kernels.loader import Settings
+Settings.numba_without_blas = {hide}
+import bitmend.kernels.fused
+import numba.np.arraymath
+import scipy.stats  # scipy itself still loads its BLAS afterwards
+print(numba.np.arraymath._HAVE_BLAS, sys.modules["scipy.linalg.cython_blas"] is not None,
+      round(float(scipy.stats.norm.ppf(0.975)), 2))
+"""
+
+
+def test_the_command_line_loads_numba_without_scipys_blas_and_a_library_user_keeps_it():
+    # kernels/jit.py: only a process that asks for it (cli.main does) hides the module, and
+    # only while numba's array support loads; scipy works as always after
+    for hide, want in (("True", "False"), ("False", "True")):
+        run = subprocess.run([sys.executable, "-c", BLAS_PROBE.format(hide=hide)], capture_output=True, text=True,
+                             timeout=300)
+        assert run.returncode == 0, run.stderr
+        assert run.stdout.split() == [want, "True", "1.96"]

@@ -881,6 +881,9 @@ def main() -> None:
     # those threads buy nothing and cost start-up: a fifth of a small decode's wall time on two
     # busy cores. Before anything imports numpy; a value the user set is kept.
     os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
+    from bitmend.kernels.loader import Settings  # numba-free
+
+    Settings.numba_without_blas = True  # this process compiles no BLAS call (kernels/jit.py)
     outputs.install_signal_handlers()
     try:
         code = _app_for(sys.argv[1:])(standalone_mode=False)

@@ -15,7 +15,7 @@ numba compiles these loops; nothing above the kernels layer imports numba.
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
+from bitmend.kernels.jit import njit
 
 U64 = np.uint64
 SPARE_WORDS = 2

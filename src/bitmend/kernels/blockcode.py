@@ -18,7 +18,7 @@ All buffers are word buffers (see bitfields): streams packed big-endian into uin
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
+from bitmend.kernels.jit import njit
 
 from bitmend.kernels.bitfields import finish_writer, get_byte, get_field, or_byte, put_field
 from bitmend.kernels.status import FAILED

@@ -48,8 +48,7 @@ from __future__ import annotations
 
 import numpy as np
 from llvmlite import ir
-from numba import njit, types
-from numba.extending import intrinsic
+from bitmend.kernels.jit import intrinsic, njit, types
 
 from bitmend.kernels.blockcode import transpose8
 from bitmend.kernels.fused import byte_transpose, load_be64, load_u8, load_u64, store_be64, store_u8

@@ -30,7 +30,7 @@ above the kernels layer imports numba.
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
+from bitmend.kernels.jit import njit
 
 from bitmend.kernels.bitfields import finish_writer, get_byte, get_field, or_byte, put_field
 from bitmend.kernels.blockcode import transpose8

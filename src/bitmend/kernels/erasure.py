@@ -39,7 +39,7 @@ or once compiled kernels are loaded anyway; smaller work uses kernels.erasure_sm
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
+from bitmend.kernels.jit import njit
 
 CHUNK_BYTES = 2048  # columns per pass: 2 KiB scratch rows (input, spread bits, outputs)
 

@@ -37,8 +37,7 @@ import sys
 
 import numpy as np
 from llvmlite import ir
-from numba import njit, types
-from numba.extending import intrinsic
+from bitmend.kernels.jit import intrinsic, njit, types
 
 from bitmend.kernels.blockcode import codeword_words, transpose8  # shared with the word-buffer kernels
 from bitmend.kernels.status import FAILED

@@ -18,6 +18,12 @@ SMALL_WORK_BITS = 1 << 16  # work below this size runs in numpy until numba is l
 SMALL_WORK_TOTAL_BITS = 1 << 21  # small work adding up to this loads numba too
 
 
+class Settings:
+    """Process-wide choices made before numba loads (see kernels.jit)."""
+
+    numba_without_blas = False  # set by the command line: numba loads without scipy's BLAS
+
+
 class _Tally:
     small_bits = 0  # work done in the numpy twins so far in this process
     modules: tuple[ModuleType, ModuleType] | None = None  # (bitfields, blockcode) once loaded

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
+from bitmend.kernels.jit import njit
 
 from bitmend.kernels.status import FAILED
 
