@@ -193,6 +193,13 @@ def test_a_runs_block_counts_are_each_frames() -> None:
     import bitmend.kernels.blockcode  # noqa: F401  (loads the compiled kernels: the compiled count)
     assert reader.run_block_counts(status) == want
     assert reader.run_block_counts(status[:0]) == []
+    from bitmend.kernels.tally import status_tally
+
+    counts, failed = status_tally(np.ascontiguousarray(status), 5)  # the failed positions, the first 5 a row
+    for i, row in enumerate(status):
+        where = np.flatnonzero(row == fmt.FAILED)
+        assert counts[i, 2] == len(where)
+        assert failed[i, :min(len(where), 5)].tolist() == where[:5].tolist()
 
 
 def test_a_frames_quick_report_is_the_constructors() -> None:

@@ -50,17 +50,24 @@ def block_counts(status: np.ndarray) -> tuple[int, int, int]:
             int(np.count_nonzero(failed)))
 
 
-def _counts_of_run(status: np.ndarray) -> list[tuple[int, int, int]]:
-    """block_counts per row: clean rows found in one test, the others by run_block_counts."""
+def _counts_of_run(status: np.ndarray) -> tuple[list[tuple[int, int, int]], dict[int, list[int]]]:
+    """(block_counts per row, DecodedFrame.failed_blocks of the rows with failed blocks
+    when they came with the counts, else an empty dict): clean rows found in one test, the
+    others in one sparse compiled pass (or by run_block_counts in numpy)."""
     counts = [CLEAN_COUNTS] * status.shape[0]
     if not status.size or not status.max():  # a clean run, the common case: one fast pass
-        return counts
-    if compiled_loaded():  # one sparse compiled pass over every row
-        return [CLEAN_COUNTS if row == CLEAN_COUNTS else row for row in run_block_counts(status)]
+        return counts, {}
+    if compiled_loaded():  # counts and failed positions, one sparse compiled pass over every row
+        from bitmend.kernels.tally import status_tally
+
+        table, failed = status_tally(np.ascontiguousarray(status), MAX_LISTED_FAILED)
+        rows = table.tolist()
+        listed = {i: failed[i, :min(row[2], MAX_LISTED_FAILED)].tolist() for i, row in enumerate(rows) if row[2]}
+        return [CLEAN_COUNTS if row == [0, 0, 0] else tuple(row) for row in rows], listed
     hit = np.flatnonzero(status.any(axis=1))
     for row, value in zip(hit.tolist(), run_block_counts(status[hit])):
         counts[row] = value
-    return counts
+    return counts, {}
 
 
 def run_block_counts(status: np.ndarray) -> list[tuple[int, int, int]]:
@@ -108,10 +115,12 @@ class DecodedFrame:
     def failed_count(self) -> int:
         return self._counts[2]
 
-    def set_counts(self, counts: tuple[int, int, int]) -> None:
+    def set_counts(self, counts: tuple[int, int, int], failed: list[int] | None = None) -> None:
         """Take block_counts(block_status) computed elsewhere (by a batch worker, or for a
-        whole run of frames at once)."""
+        whole run of frames at once), and failed_blocks when it came with them."""
         self.__dict__["_counts"] = tuple(counts)
+        if failed is not None:
+            self.__dict__["failed_blocks"] = failed
 
     @once
     def failed_blocks(self) -> list[int]:
@@ -244,14 +253,14 @@ def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedF
         coded = np.frombuffer(b"".join(blobs[i][payload_at: payload_at + first.coded_bytes] for i, _ in members),
                               dtype=np.uint8).reshape(len(members), first.coded_bytes)
         messages, status = decode_segments(first.code, first.depth, coded, first.message_bytes)
-        counts = _counts_of_run(status)
+        counts, failed = _counts_of_run(status)
         _, payloads, crc_ok, authentic = checked_run([header for _, header in members], messages, key)
         marker = fmt.MARKER
         for row, (i, header) in enumerate(members):
             frame = found[i] = DecodedFrame(header, 0, 0, payloads[row], status[row], crc_ok[row], False, False,
                                             (int.from_bytes(blobs[i][:start], "big") ^ marker).bit_count(),
                                             authentic[row])
-            frame.set_counts(counts[row])
+            frame.set_counts(counts[row], failed.get(row))
     return found
 
 
@@ -531,7 +540,7 @@ class FrameScanner:
             if submitted is not None:
                 return submitted
         messages, block_status = decode_segments(expected.code, expected.depth, coded, expected.message_bytes)
-        counts = _counts_of_run(block_status)
+        counts, failed = _counts_of_run(block_status)
         headers = locked.following(count)
         data, payloads, crc_ok, authentic = checked_run(headers, messages, self._key)
         frames = []
@@ -539,7 +548,7 @@ class FrameScanner:
             frame_bit = bit + 8 * size * i
             frames.append(DecodedFrame(header, frame_bit >> 3, frame_bit, payloads[i], block_status[i], crc_ok[i],
                                        marker_distance=int(marker_distance[i]), authentic=authentic[i]))
-            frames[-1].set_counts(counts[i])
+            frames[-1].set_counts(counts[i], failed.get(i))
         return FrameRun(frames, data)
 
     def _submitted_run(self, bit: int, locked: fmt.FrameHeader, coded: np.ndarray,
