@@ -157,6 +157,15 @@ def _coded_array(code: BlockCode, depth: int, message: np.ndarray) -> np.ndarray
     return np.frombuffer(coded, dtype=np.uint8) if isinstance(coded, bytes) else coded
 
 
+def message_row_bytes(code: BlockCode, depth: int, message_bytes: int) -> int:
+    """The width to give rows of messages for encode_segments so that it codes them as
+    they are: message_bytes padded with zeros to whole groups when segments of this layout
+    lie end to end (see _padded_message_bytes), else message_bytes. A row of that width,
+    its padding zero, codes to the same bytes as the unpadded message."""
+    padded = _padded_message_bytes(layout(code, depth, message_bytes))
+    return message_bytes if padded is None else padded
+
+
 def _padded_message_bytes(lay: SegmentLayout) -> int | None:
     """Bytes of a segment's message padded to its whole groups, when both that and the
     coded segment are whole bytes: segments of this layout then lie end to end as one

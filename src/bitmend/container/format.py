@@ -37,7 +37,8 @@ from bitmend.codes.base import FAILED, BlockCode
 from bitmend.codes.catalog import MAX_DEPTH, code_by_id, get_code
 from bitmend.codes.linear import MAX_MESSAGE_BITS, MAX_PARITY_BITS, BinaryLinearCode, CodeDefinitionError
 from bitmend.errors import ContainerError, SettingError
-from bitmend.interleave import decode_segment, encode_segment, encode_segments, layout, sized_layout
+from bitmend.interleave import (decode_segment, encode_segment, encode_segments, layout, message_row_bytes,
+                                sized_layout)
 from bitmend.once import once
 
 FORMAT_VERSION = 2  # the version this bitmend writes; it reads every version in HEADER_LAYOUTS
@@ -547,7 +548,11 @@ def encode_frames(first: FrameHeader, payloads: bytes | memoryview | np.ndarray,
     # each record is exactly one header group (20 Golay messages), so the records end to end
     # code as one segment whose groups are the frames' headers
     headers = encode_segments(header_code(), first.layout.depth, records.reshape(1, -1)).reshape(count, -1)
-    messages = np.empty((count, first.message_bytes), dtype=np.uint8)
+    # rows as wide as encode_segments codes them (padded to whole groups), so it takes them
+    # without another copy; the padding is the zeros a segment is padded with anyway
+    width = message_row_bytes(first.code, first.depth, first.message_bytes)
+    messages = np.empty((count, width), dtype=np.uint8)
+    messages[:, first.message_bytes:] = 0
     payload_rows = flat.reshape(count, length)
     messages[:, :length] = payload_rows
     checks = np.fromiter((crc32c(row) for row in payload_rows), dtype=np.uint32, count=count)
@@ -555,7 +560,7 @@ def encode_frames(first: FrameHeader, payloads: bytes | memoryview | np.ndarray,
     if first.keyed:
         body = RECORD_BYTES - CRC_BYTES
         for i in range(count):
-            messages[i, length + CRC_BYTES:] = np.frombuffer(
+            messages[i, length + CRC_BYTES: first.message_bytes] = np.frombuffer(
                 record_tag(key, records[i, :body].tobytes(), payload_rows[i].tobytes()), dtype=np.uint8)
     definition = (np.frombuffer(encode_definition(first.code, first.version), dtype=np.uint8)
                   if first.code_id == CUSTOM_CODE_ID else np.zeros(0, dtype=np.uint8))
