@@ -242,25 +242,29 @@ def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedF
     places = [i for i, blob in enumerate(blobs) if len(blob) >= start + size]
     if not places:
         return found
-    coded = np.frombuffer(b"".join(blobs[i][start: start + size] for i in places), dtype=np.uint8)
-    shapes: dict[tuple, list[tuple[int, fmt.FrameHeader]]] = {}
-    for i, header in zip(places, fmt.decode_headers(coded.reshape(len(places), size))):
+    leads = np.frombuffer(b"".join(blobs[i][: start + size] for i in places), dtype=np.uint8)
+    leads = leads.reshape(len(places), start + size)  # each blob's marker and header
+    distances = np.unpackbits(leads[:, :start] ^ np.frombuffer(fmt.MARKER_BYTES, dtype=np.uint8),
+                              axis=1).sum(axis=1).tolist()  # bits of each marker off the true one
+    shapes: dict[tuple, list[tuple[int, int, fmt.FrameHeader]]] = {}
+    for place, (i, header) in enumerate(zip(places, fmt.decode_headers(leads[:, start:]))):
         if header is not None and header.code_id != fmt.CUSTOM_CODE_ID and header.frame_bytes == len(blobs[i]):
-            shapes.setdefault((header.code_id, header.depth, header.length, header.keyed), []).append((i, header))
+            shapes.setdefault((header.code_id, header.depth, header.length, header.keyed),
+                              []).append((i, place, header))
     payload_at = start + size
     for members in shapes.values():
-        first = members[0][1]
-        coded = np.frombuffer(b"".join(blobs[i][payload_at: payload_at + first.coded_bytes] for i, _ in members),
+        first = members[0][2]
+        coded = np.frombuffer(b"".join(blobs[i][payload_at: payload_at + first.coded_bytes] for i, _, _ in members),
                               dtype=np.uint8).reshape(len(members), first.coded_bytes)
         messages, status = decode_segments(first.code, first.depth, coded, first.message_bytes)
         counts, failed = _counts_of_run(status)
-        _, payloads, crc_ok, authentic = checked_run([header for _, header in members], messages, key)
-        marker = fmt.MARKER
-        for row, (i, header) in enumerate(members):
+        _, payloads, crc_ok, authentic = checked_run([header for _, _, header in members], messages, key)
+        for row, (i, place, header) in enumerate(members):
             frame = found[i] = DecodedFrame(header, 0, 0, payloads[row], status[row], crc_ok[row], False, False,
-                                            (int.from_bytes(blobs[i][:start], "big") ^ marker).bit_count(),
-                                            authentic[row])
-            frame.set_counts(counts[row], failed.get(row))
+                                            distances[place], authentic[row])
+            frame.__dict__["_counts"] = counts[row]  # set_counts, without its checks: a hot loop
+            if row in failed:
+                frame.__dict__["failed_blocks"] = failed[row]
     return found
 
 
