@@ -71,9 +71,10 @@ class Assembler:
     is one piece; a piece with no report carries more data of the frame reported just
     before (zeros of a long lost run). summary() when done."""
 
-    def __init__(self, source: BinaryIO | None, on_error: str = "keep", scanner=None, key: bytes | None = None,
-                 accept_unauthenticated: bool = False, jobs: int = 1) -> None:
-        """source: a container byte stream; or give `scanner`, anything with `frames()`,
+    def __init__(self, source: BinaryIO | bytes | None, on_error: str = "keep", scanner=None,
+                 key: bytes | None = None, accept_unauthenticated: bool = False, jobs: int = 1) -> None:
+        """source: a container byte stream, or a whole container as bytes (read in place);
+        or give `scanner`, anything with `frames()` (and, to hand on runs, `items()`),
         `stats` and `bytes_read` like FrameScanner (e.g. one over separate datagrams).
 
         key: the shared key of keyed frames. With a key, only frames whose tag matches are
