@@ -129,15 +129,21 @@ class Assembler:
         # CRC-verified; blocks that failed can only lie in the zero padding, still worth a flag
         return CORRECTED if frame.corrected_symbols or frame.failed_blocks else CLEAN
 
-    def _delivered(self, event: Delivered) -> Iterator[Piece]:
-        frame = event.frame
-        header = frame.header
-        stream_name = self._stream_names.get(event.stream_index, _UNNAMED)
-        if stream_name is _UNNAMED:  # a stream index is one stream: its name is made once
-            stream_name = self._stream_names[event.stream_index] = _stream_name(header)
+    def _stream_of(self, stream_index: int, header: fmt.FrameHeader) -> str | None:
+        """The name of the stream a delivered frame belongs to (made once per stream index:
+        an index is one stream), and its code noted for the summary's units."""
+        stream_name = self._stream_names.get(stream_index, _UNNAMED)
+        if stream_name is _UNNAMED:
+            stream_name = self._stream_names[stream_index] = _stream_name(header)
         if header.code_id not in self._codes_seen:
             self._codes_seen.add(header.code_id)
             self._symbol_bits.add(_symbol_bits(header))
+        return stream_name
+
+    def _delivered(self, event: Delivered) -> Iterator[Piece]:
+        frame = event.frame
+        header = frame.header
+        stream_name = self._stream_of(event.stream_index, header)
         status = REBUILT if event.rebuilt else self._status(frame)
         data = frame.payload
         if status == DAMAGED:
@@ -166,13 +172,7 @@ class Assembler:
             for frame in FrameRun(frames).loose():
                 yield from self._delivered(Delivered(frame, event.stream_index, False))
             return
-        header = frames[0].header
-        stream_name = self._stream_names.get(event.stream_index, _UNNAMED)
-        if stream_name is _UNNAMED:
-            stream_name = self._stream_names[event.stream_index] = _stream_name(header)
-        if header.code_id not in self._codes_seen:  # a run is of one code
-            self._codes_seen.add(header.code_id)
-            self._symbol_bits.add(_symbol_bits(header))
+        stream_name = self._stream_of(event.stream_index, frames[0].header)  # a run is of one stream and code
         c = self._counts
         out = c.bytes_out
         reports = []

@@ -16,7 +16,7 @@ from typing import Iterable, Iterator
 import numpy as np
 
 from bitmend.container import format as fmt
-from bitmend.container.reader import (CLEAN_COUNTS, DecodedFrame, FrameRun, block_counts, checked_message,
+from bitmend.container.reader import (CLEAN_COUNTS, DecodedFrame, FrameRun, block_counts, checked_run,
                                      decode_payload, run_block_counts)
 from bitmend.container.workers import SlotBatch, SlotPool, shared_views
 from bitmend.interleave import decode_segments
@@ -66,14 +66,14 @@ def _decode_run(run: RunJob, inputs: memoryview, read: int, outputs: memoryview,
     coded = np.frombuffer(inputs[read: read + run.count * size], dtype=np.uint8).reshape(run.count, size)
     messages, statuses = decode_segments(first.code, first.depth, coded, first.message_bytes)
     counts = run_block_counts(statuses)
-    for header, message, status, count in zip(headers, messages, statuses, counts):
-        payload, crc_ok, authentic = checked_message(header, message, key)
+    _, payloads, crc_ok, authentic = checked_run(headers, messages, key)
+    for i, (payload, status, count) in enumerate(zip(payloads, statuses, counts)):
         outputs[written: written + len(payload)] = payload
         written += len(payload)
         if count != CLEAN_COUNTS:
             outputs[written: written + len(status)] = status.tobytes()
             written += len(status)
-        results.append((len(status), crc_ok, authentic, count))
+        results.append((len(status), crc_ok[i], authentic[i], count))
     return read + run.count * size, written
 
 

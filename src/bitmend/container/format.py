@@ -333,8 +333,7 @@ def decode_headers(coded: np.ndarray) -> list[FrameHeader | None]:
                  << np.arange(40, -8, -8, dtype=np.uint64)).sum(axis=1, dtype=np.uint64).tolist()
     fields = np.concatenate([table[:, :12], table[:, 22:body]], axis=1).tobytes()  # version .. stream id, length
     width = 12 + body - 22
-    parsed: dict[bytes, dict | None] = {}  # a header's fields by those other than sequence and position
-    new, set_fields = object.__new__, object.__setattr__
+    parsed: dict[bytes, FrameHeader | None] = {}  # by the fields other than sequence and position
     for i in np.flatnonzero(usable).tolist():
         at = i * size
         if crc32c(records[at: at + body]) != stored[i]:
@@ -343,18 +342,14 @@ def decode_headers(coded: np.ndarray) -> list[FrameHeader | None]:
         model = parsed.get(key, _UNPARSED)
         if model is _UNPARSED:
             try:
-                header = _parse_record(records[at: at + body], layout_)
-                if header.code_id != CUSTOM_CODE_ID:
-                    header.frame_bytes  # noqa: B018 (computed once here, so every copy carries it)
-                parsed[key] = model = header.__dict__
+                model = _parse_record(records[at: at + body], layout_)
+                if model.code_id != CUSTOM_CODE_ID:
+                    model.frame_bytes  # noqa: B018 (computed once here, so every copy carries it)
             except HeaderError:
-                parsed[key] = model = None
-        if model is not None:  # the same fields with this record's counters (FrameHeader._copied, inline)
-            copied = model.copy()
-            copied["seq"] = seqs[i]
-            copied["position"] = positions[i]
-            header = headers[i] = new(FrameHeader)
-            set_fields(header, "__dict__", copied)
+                model = None
+            parsed[key] = model
+        if model is not None:  # the same fields with this record's counters
+            headers[i] = model._copied(seqs[i], positions[i])
     return headers
 
 

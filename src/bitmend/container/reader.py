@@ -215,8 +215,7 @@ def checked_run(headers: list[fmt.FrameHeader], messages: np.ndarray,
     each row in place."""
     length = headers[0].length
     rows = messages[:, length: length + fmt.CRC_BYTES]
-    stored = (np.ascontiguousarray(rows).view(">u4").ravel().tolist() if len(headers)
-              else [])  # the CRC-32C that each message carries, big-endian
+    stored = np.ascontiguousarray(rows).view(">u4").ravel().tolist()  # the CRC-32C each message carries
     crc_ok = [fmt.crc32c(messages[i, :length]) == stored[i] for i in range(len(headers))]
     data = messages[:, :length].tobytes()
     view = memoryview(data)
@@ -260,11 +259,9 @@ def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedF
         counts, failed = _counts_of_run(status)
         _, payloads, crc_ok, authentic = checked_run([header for _, _, header in members], messages, key)
         for row, (i, place, header) in enumerate(members):
-            frame = found[i] = DecodedFrame(header, 0, 0, payloads[row], status[row], crc_ok[row], False, False,
-                                            distances[place], authentic[row])
-            frame.__dict__["_counts"] = counts[row]  # set_counts, without its checks: a hot loop
-            if row in failed:
-                frame.__dict__["failed_blocks"] = failed[row]
+            found[i] = DecodedFrame(header, 0, 0, payloads[row], status[row], crc_ok[row], False, False,
+                                    distances[place], authentic[row])
+            found[i].set_counts(counts[row], failed.get(row))
     return found
 
 
