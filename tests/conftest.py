@@ -37,6 +37,19 @@ def flip_bits(data: bytes, positions) -> bytes:
     return bytes(out)
 
 
+def codeword_error_bits(code, depth: int, blocks: int, errors_of, rng, start_bit: int = 0) -> list[int]:
+    """Stream positions of errors_of(b) distinct bit errors in each block (codeword) b of an
+    interleaved segment starting at start_bit: bit j of codeword i of group g is stream bit
+    g D n + j D + i (the interleave rule, docs/FORMAT.md). Draws rng.choice per block in
+    order, so a seed gives the same pattern wherever it is used."""
+    positions: list[int] = []
+    for block in range(blocks):
+        group, i = divmod(block, depth)
+        bits = rng.choice(code.n, size=errors_of(block), replace=False)
+        positions += (start_bit + group * depth * code.n + bits * depth + i).tolist()
+    return positions
+
+
 def flip_run(data: bytes, start_bit: int, length: int) -> bytes:
     """data with `length` consecutive bits inverted from start_bit on (a solid burst)."""
     return flip_bits(data, range(start_bit, start_bit + length))

@@ -26,7 +26,7 @@ from bitmend.kernels.gf2m import (PRIMITIVE_POLYNOMIALS, bch_generator, cyclotom
                                   minimal_polynomial)
 from bitmend.report import CLEAN, CORRECTED
 
-from conftest import BCH_CODES, flip_bits, flip_run, frame_spans, random_bytes, run_cli
+from conftest import BCH_CODES, codeword_error_bits, flip_bits, flip_run, frame_spans, random_bytes, run_cli
 
 FAILED = 255
 
@@ -380,11 +380,7 @@ def test_random_bit_errors_within_t_per_codeword_are_corrected_through_the_conta
     span = frame_spans(blob)[0]
     lay = layout(code, depth, 700 + fmt.CRC_BYTES)
     rng = np.random.default_rng(1)
-    positions = []
-    for block in range(lay.blocks):
-        g, i = divmod(block, depth)
-        for j in rng.choice(code.n, size=code.t, replace=False):
-            positions.append(8 * span.payload_start + g * depth * code.n + int(j) * depth + i)
+    positions = codeword_error_bits(code, depth, lay.blocks, lambda block: code.t, rng, 8 * span.payload_start)
     result = bitmend.decode_bytes(flip_bits(blob, positions))
     assert result.data == data and result.report.frames[0].corrected_symbols == len(positions)
 

@@ -19,7 +19,7 @@ from bitmend.interleave import _plan, decode_segment, decode_segments, encode_se
 from bitmend.kernels import small
 from bitmend.kernels.status import FAILED
 
-from conftest import ALL_CODES, flip_bits
+from conftest import ALL_CODES, codeword_error_bits, flip_bits
 
 
 @pytest.fixture(autouse=True, scope="module")
@@ -118,11 +118,7 @@ def test_single_errors_are_corrected_and_double_errors_flagged_in_each_codeword(
     message = rng.integers(0, 256, size=2000, dtype=np.uint8).tobytes()
     coded = encode_segment(code, depth, message)
     lay = layout(code, depth, len(message))
-    flips = []
-    for block in range(lay.blocks):
-        group, i = divmod(block, depth)  # bit j of codeword i of group g: stream bit g D n + j D + i
-        flips += (group * depth * code.n + rng.choice(code.n, size=block % 3, replace=False) * depth + i).tolist()
-    noisy = flip_bits(coded, flips)
+    noisy = flip_bits(coded, codeword_error_bits(code, depth, lay.blocks, lambda block: block % 3, rng))
     out, status = decode_segment(code, depth, noisy, len(message))
     _, twin_out, twin_status, words_out, words_status = _reference(code, depth, message, noisy)
     assert out == twin_out == words_out

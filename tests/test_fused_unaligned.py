@@ -14,7 +14,7 @@ from bitmend.codes.catalog import get_code
 from bitmend.interleave import _plan, decode_segment, encode_segment, layout
 from bitmend.kernels.status import FAILED
 
-from conftest import ALL_CODES, flip_bits
+from conftest import ALL_CODES, codeword_error_bits, flip_bits
 
 @pytest.fixture(autouse=True, scope="module")
 def _compiled_kernels():
@@ -77,14 +77,8 @@ def test_codeword_and_octet_kernels_report_clean_corrected_and_failed_blocks_lik
     message = rng.integers(0, 256, size=5000, dtype=np.uint8).tobytes()
     coded = encode_segment(code, depth, message)
     lay = layout(code, depth, len(message))
-    # block b gets (b mod (t + 3)) errors: clean, correctable and beyond t all occur;
-    # bit j of codeword i of group g is stream bit g D n + j D + i
-    flips = []
-    for block in range(lay.blocks):
-        group, i = divmod(block, depth)
-        bits = rng.choice(code.n, size=block % (code.t + 3), replace=False)
-        flips += (group * depth * code.n + bits * depth + i).tolist()
-    noisy = flip_bits(coded, flips)
+    # block b gets (b mod (t + 3)) errors: clean, correctable and beyond t all occur
+    noisy = flip_bits(coded, codeword_error_bits(code, depth, lay.blocks, lambda block: block % (code.t + 3), rng))
     out, status = decode_segment(code, depth, noisy, len(message))
     _, twin_out, twin_status = _twin(code, depth, message, noisy)
     assert out == twin_out and np.array_equal(status, twin_status)

@@ -11,7 +11,7 @@ from hypothesis import strategies as st
 from bitmend.codes.catalog import get_code
 from bitmend.interleave import decode_segment, encode_segment, layout
 
-from conftest import ALL_CODES, SECDED_CODES, flip_bits, flip_run, random_bytes
+from conftest import ALL_CODES, SECDED_CODES, codeword_error_bits, flip_bits, flip_run, random_bytes
 
 BURST_CASES = [
     (name, depth)
@@ -112,12 +112,8 @@ def test_random_errors_within_t_per_codeword_are_all_corrected(name, depth, seed
     message = rng.integers(0, 256, size=int(rng.integers(1, 120)), dtype=np.uint8).tobytes()
     lay = layout(code, depth, len(message))
     coded = encode_segment(code, depth, message)
-    # pick up to t distinct bits of each codeword (bit j of codeword i of group g)
-    positions = []
-    for block in range(lay.blocks):
-        g, i = divmod(block, depth)
-        for j in rng.choice(code.n, size=int(rng.integers(0, code.t + 1)), replace=False):
-            positions.append(g * depth * code.n + int(j) * depth + i)
+    # up to t distinct bits of each codeword
+    positions = codeword_error_bits(code, depth, lay.blocks, lambda block: int(rng.integers(0, code.t + 1)), rng)
     out, status = decode_segment(code, depth, flip_bits(coded, positions), len(message))
     assert out == message
     assert int(status.sum()) == len(positions)
