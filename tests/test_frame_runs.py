@@ -217,6 +217,32 @@ def test_a_frames_quick_report_is_the_constructors() -> None:
     assert list(vars(quick)) == [f.name for f in fields(FrameReport)]
 
 
+def test_a_runs_clean_reports_are_the_constructors() -> None:
+    # FrameReport.clean_frames copies one filled-in record per frame; each must equal the
+    # constructor's, and no two may share their failed_blocks list
+    from bitmend.report import FrameReport
+
+    quick = FrameReport.clean_frames([9, 10], [0, 700], [40, 41], [100, 300], [200, 201], "00000000000000cd", 2)
+    made = [FrameReport(seq, offset, "clean", blocks, 0, 0, [], True, out, size,
+                        stream="00000000000000cd", stream_index=2)
+            for seq, offset, blocks, out, size in ((9, 0, 40, 100, 200), (10, 700, 41, 300, 201))]
+    assert quick == made and [r.to_json() for r in quick] == [r.to_json() for r in made]
+    assert quick[0].failed_blocks is not quick[1].failed_blocks
+
+
+def test_the_run_key_of_a_header_follows_its_flags_and_copies() -> None:
+    # frames of one run share stream, code and keying; a closing, repair or grouped frame,
+    # or a version 1 frame, is never in a run, and a copy that changes `last` says so
+    header = fmt.FrameHeader(code_id("golay-24-12"), 8, 5, 200, stream_id=77)
+    assert header.run_key == (77, header.code_id, False)
+    assert header._copied(6, 400).run_key == header.run_key
+    assert header._copied(6, 400, last=True).run_key is None
+    assert fmt.FrameHeader(header.code_id, 8, 5, 200, last=True, stream_id=77)._copied(6, 0, False).run_key \
+        == header.run_key
+    for flags in ({"repair": True}, {"in_group": True}, {"version": 1}):
+        assert fmt.FrameHeader(header.code_id, 8, 5, 200, stream_id=77, **flags).run_key is None
+
+
 def test_a_record_too_long_stops_records_at_once_where_it_stops_them_one_by_one() -> None:
     from bitmend.errors import SettingError
 

@@ -57,13 +57,38 @@ class FrameReport:
         constructor makes, made without the frozen constructor's per-field setattr: the
         decoder makes one per frame, and that constructor cost more than the rest of the
         frame's delivery."""
-        report = object.__new__(cls)
-        report.__dict__.update({
+        return cls._of_fields({
             "seq": seq, "offset": offset, "status": status, "blocks": blocks, "corrected_blocks": corrected_blocks,
             "corrected_symbols": corrected_symbols, "failed_blocks": failed_blocks, "crc_ok": crc_ok,
             "out_offset": out_offset, "bytes": bytes, "truncated": truncated, "failed_count": failed_count,
             "missing_bytes": None, "gap_frames": None, "gap_bytes": None, "stream": stream,
             "stream_index": stream_index, "reordered": reordered, "closing": closing})
+
+    @classmethod
+    def clean_frames(cls, seqs: list[int], offsets: list[int], blocks: list[int], out_offsets: list[int],
+                     sizes: list[int], stream: str | None, stream_index: int) -> list["FrameReport"]:
+        """of_frame of each clean frame of a run (status clean, nothing corrected, CRC-32C
+        good, not reordered, not closing), i-th from the i-th of each list: one filled-in
+        record copied and its five per-frame fields set, at half of of_frame's cost."""
+        model = cls.of_frame(0, 0, CLEAN, 0, 0, 0, [], True, 0, 0, False, 0, stream, stream_index, False,
+                             False).__dict__
+        reports = []
+        for seq, offset, count, out_offset, size in zip(seqs, offsets, blocks, out_offsets, sizes):
+            fields = model.copy()
+            fields["seq"] = seq
+            fields["offset"] = offset
+            fields["blocks"] = count
+            fields["out_offset"] = out_offset
+            fields["bytes"] = size
+            fields["failed_blocks"] = []  # a list of each report's own
+            reports.append(cls._of_fields(fields))
+        return reports
+
+    @classmethod
+    def _of_fields(cls, fields: dict) -> "FrameReport":
+        """The report holding `fields` (every field, by name) as its own __dict__."""
+        report = object.__new__(cls)
+        object.__setattr__(report, "__dict__", fields)
         return report
 
     def to_json(self) -> str:

@@ -9,6 +9,7 @@ FrameReports, and keeps the counts for the summary.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from itertools import accumulate
 from typing import BinaryIO, Iterator
 
 from bitmend.container import format as fmt
@@ -175,6 +176,25 @@ class Assembler:
         stream_name = self._stream_of(event.stream_index, frames[0].header)  # a run is of one stream and code
         c = self._counts
         out = c.bytes_out
+        if all([frame.crc_ok and frame._counts == CLEAN_COUNTS for frame in frames]):  # the common case
+            sizes = [len(frame.payload) for frame in frames]
+            reports = FrameReport.clean_frames([frame.header.seq for frame in frames],
+                                               [frame.offset for frame in frames],
+                                               [len(frame.block_status) for frame in frames],
+                                               list(accumulate(sizes[:-1], initial=out)), sizes, stream_name,
+                                               event.stream_index)
+            c.clean += len(frames)
+            c.frames += len(frames)
+            c.bytes_out = out + sum(sizes)
+        else:
+            reports = self._run_reports(frames, stream_name, event.stream_index)
+        yield (event.data if event.data is not None else b"".join([frame.payload for frame in frames])), reports
+
+    def _run_reports(self, frames: list[DecodedFrame], stream_name: str | None,
+                     stream_index: int) -> list[FrameReport]:
+        """The reports of a run's frames, some of them corrected or damaged, counted."""
+        c = self._counts
+        out = c.bytes_out
         reports = []
         for frame in frames:
             counts = frame._counts
@@ -182,14 +202,14 @@ class Assembler:
             if frame.crc_ok and (counts is CLEAN_COUNTS or counts == CLEAN_COUNTS):
                 reports.append(FrameReport.of_frame(frame.header.seq, frame.offset, CLEAN, len(frame.block_status),
                                                     0, 0, [], True, out, size, False, 0, stream_name,
-                                                    event.stream_index, False, False))
+                                                    stream_index, False, False))
                 c.clean += 1
             else:
                 status = CORRECTED if frame.crc_ok else DAMAGED
                 reports.append(FrameReport.of_frame(frame.header.seq, frame.offset, status,
                                                     len(frame.block_status), counts[0], counts[1],
                                                     frame.failed_blocks, frame.crc_ok, out, size, False, counts[2],
-                                                    stream_name, event.stream_index, False, False))
+                                                    stream_name, stream_index, False, False))
                 if frame.crc_ok:
                     c.corrected += 1
                 else:
@@ -199,7 +219,7 @@ class Assembler:
             out += size
         c.frames += len(frames)
         c.bytes_out = out
-        yield (event.data if event.data is not None else b"".join([frame.payload for frame in frames])), reports
+        return reports
 
     def _lost(self, run: LostRun) -> Iterator[Piece]:
         count, gap = run.count, run.gap_bytes

@@ -214,6 +214,15 @@ class FrameHeader:  # noqa: PLW1641 (`once` needs __dict__; frozen still blocks 
         """Whole frame size on the wire."""
         return len(MARKER_BYTES) + 2 * self.header_bytes + 2 * self.definition_bytes + self.coded_bytes
 
+    @once
+    def run_key(self) -> tuple[int, int, bool] | None:
+        """(stream id, code id, keyed), which the frames of one run share (reader.FrameRun),
+        or None for a frame that is never in a run: version 1 (no stream id), a closing,
+        repair or grouped data frame."""
+        if not self.identified or self.last or self.repair or self.in_group:
+            return None
+        return self.stream_id, self.code_id, self.keyed
+
     def _shape(self) -> tuple[int, int]:
         if self.shape is None:
             raise ValueError("a frame with code id 0 needs the shape (k, n - k) of its code")
@@ -256,6 +265,7 @@ class FrameHeader:  # noqa: PLW1641 (`once` needs __dict__; frozen still blocks 
         fields["position"] = position
         if last is not None:
             fields["last"] = last
+            fields.pop("run_key", None)  # depends on last
         header = object.__new__(FrameHeader)
         object.__setattr__(header, "__dict__", fields)
         return header
@@ -344,7 +354,8 @@ def decode_headers(coded: np.ndarray) -> list[FrameHeader | None]:
             try:
                 model = _parse_record(records[at: at + body], layout_)
                 if model.code_id != CUSTOM_CODE_ID:
-                    model.frame_bytes  # noqa: B018 (computed once here, so every copy carries it)
+                    model.frame_bytes  # noqa: B018 (computed once here, so every copy carries them)
+                    model.run_key  # noqa: B018
             except HeaderError:
                 model = None
             parsed[key] = model

@@ -152,10 +152,8 @@ class FrameRun:
 
 def _continues(before: fmt.FrameHeader, header: fmt.FrameHeader) -> bool:
     """Whether header's frame may follow before's in one FrameRun."""
-    return (header.seq == (before.seq + 1) % fmt.SEQ_MODULUS and header.identified and before.identified
-            and header.stream_id == before.stream_id and header.code_id == before.code_id
-            and header.keyed == before.keyed and not (header.last or header.repair or header.in_group
-                                                     or before.last or before.repair or before.in_group))
+    key = header.run_key
+    return key is not None and key == before.run_key and header.seq == (before.seq + 1) % fmt.SEQ_MODULUS
 
 
 def grouped(frames: list[DecodedFrame]) -> Iterator[DecodedFrame | FrameRun]:
@@ -216,7 +214,7 @@ def checked_run(headers: list[fmt.FrameHeader], messages: np.ndarray,
     length = headers[0].length
     rows = messages[:, length: length + fmt.CRC_BYTES]
     stored = np.ascontiguousarray(rows).view(">u4").ravel().tolist()  # the CRC-32C each message carries
-    crc_ok = [fmt.crc32c(messages[i, :length]) == stored[i] for i in range(len(headers))]
+    crc_ok = [crc == want for crc, want in zip(map(fmt.crc32c, messages[:, :length]), stored)]
     data = messages[:, :length].tobytes()
     view = memoryview(data)
     payloads = [view[i * length: (i + 1) * length] for i in range(len(headers))]
