@@ -24,7 +24,7 @@ from bitmend.codes.base import BlockCode
 from bitmend.codes.linear import BinaryLinearCode
 from bitmend.kernels import cyclic_small, small
 from bitmend.kernels.loader import compiled, compiled_cyclic
-from bitmend.kernels.status import FAILED
+from bitmend.kernels.status import FAILED, kept_statuses, status_buffer
 from bitmend.once import once
 
 
@@ -495,14 +495,14 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
     if plan.decode_kind == "words":
         return _decode_words(code, lay, raw, message_bytes)
     if plan.decode_kind == "pairs":
-        status = np.zeros(lay.blocks, dtype=np.uint8)
+        status = status_buffer(lay.blocks)
         out = _native(lay.blocks * k)
         _bytetable().decode_pairs(np.ascontiguousarray(raw), min(len(raw), lay.coded_bytes), lay.blocks, k, code.r,
                                   plan.encode_table, plan.leader_message, plan.leader_weight, status,
                                   out.view(np.uint8))
-        return out.view(np.uint8)[:message_bytes], status
+        return out.view(np.uint8)[:message_bytes], kept_statuses(status)
     if plan.decode_kind == "bytes":
-        status = np.zeros(lay.blocks, dtype=np.uint8)
+        status = status_buffer(lay.blocks)
         out = _native(lay.blocks * k)
         bytetable = _bytetable()
         if lay.depth == 1:
@@ -513,28 +513,30 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
             bytetable.decode_octet8(np.ascontiguousarray(raw), min(len(raw), lay.coded_bytes), lay.groups, k // 8,
                                     code.r, plan.encode_table, plan.leader_message, plan.leader_weight, status,
                                     out.view(np.uint8))
-        return out.view(np.uint8)[:message_bytes], status
+        return out.view(np.uint8)[:message_bytes], kept_statuses(status)
     if plan.decode_kind == "linear":
         m = _octets_per_step(code)
         steps = -(-lay.blocks // (8 * m))
-        status = np.zeros(steps * 8 * m, dtype=np.uint8)
+        status = status_buffer(steps * 8 * m)
         out = _native(steps * 8 * m * k)
         decode = fused.linear_decoder(m * n, plan.decode_table.shape[2])
         decode(raw, min(len(raw), lay.coded_bytes), steps, m * k, m * n, k, code.r, plan.decode_table,
                plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, out.view(np.uint8))
-        status = status[: lay.blocks]
+        status = kept_statuses(status)[: lay.blocks]
     elif plan.decode_kind == "octets":
-        status = np.zeros(lay.blocks, dtype=np.uint8)
+        status = status_buffer(lay.blocks)
         out = _native(lay.blocks * k)
         fused.decode_octet8(np.ascontiguousarray(raw), min(len(raw), lay.coded_bytes), lay.groups, k, code.r,
                             plan.encode_table, plan.chunk_bits, plan.leader_message, plan.leader_weight, status,
                             out.view(np.uint8))
+        status = kept_statuses(status)
     else:  # depth1
-        status = np.zeros(lay.blocks, dtype=np.uint8)
+        status = status_buffer(lay.blocks)
         out = _native(lay.blocks * k)
         fused.decode_depth1(np.ascontiguousarray(raw), min(len(raw), lay.coded_bytes), lay.blocks, k, code.r,
                             plan.encode_table, plan.chunk_bits, plan.leader_message, plan.leader_weight, status,
                             out.view(np.uint8))
+        status = kept_statuses(status)
     return out.view(np.uint8)[:message_bytes], status
 
 

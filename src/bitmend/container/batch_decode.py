@@ -20,7 +20,7 @@ from bitmend.container.reader import (CLEAN_COUNTS, DecodedFrame, FrameRun, bloc
                                      decode_payload, run_block_counts)
 from bitmend.container.workers import SlotBatch, SlotPool, shared_views
 from bitmend.interleave import decode_segments
-from bitmend.kernels.status import FAILED
+from bitmend.kernels.status import FAILED, clean_statuses
 
 # a frame's results in the output region: its payload, then one status byte per block
 # unless every block is clean (the parent then makes the zeros itself); blocks are at least
@@ -210,7 +210,7 @@ class BatchDecoder:
             frame.payload = bytes(view[start: start + length])
             start += length
             if counts == CLEAN_COUNTS:  # not written: all zeros
-                frame.block_status = np.zeros(blocks, dtype=np.uint8)
+                frame.block_status = clean_statuses(blocks)
             else:
                 frame.block_status = np.frombuffer(view[start: start + blocks], dtype=np.uint8).copy()
                 start += blocks

@@ -23,7 +23,7 @@ from bitmend.container import format as fmt
 from bitmend.interleave import decode_segment, decode_segments, decode_truncated
 from bitmend.kernels import small
 from bitmend.kernels.loader import compiled, compiled_loaded
-from bitmend.kernels.status import FAILED
+from bitmend.kernels.status import FAILED, all_clean
 from bitmend.once import once
 
 READ_CHUNK = 1 << 20
@@ -43,7 +43,7 @@ CLEAN_COUNTS = (0, 0, 0)
 
 def block_counts(status: np.ndarray) -> tuple[int, int, int]:
     """(blocks corrected, symbols corrected, blocks failed) of a frame's block statuses."""
-    if not np.count_nonzero(status):  # the clean frame, the common case: one pass, no more
+    if all_clean(status):  # the clean frame, the common case: one pass at most
         return CLEAN_COUNTS
     failed = status == FAILED
     return (int(np.count_nonzero((status > 0) & ~failed)), int(status[~failed].sum(dtype=np.int64)),
@@ -55,7 +55,7 @@ def _counts_of_run(status: np.ndarray) -> tuple[list[tuple[int, int, int]], dict
     when they came with the counts, else an empty dict): clean rows found in one test, the
     others in one sparse compiled pass (or by run_block_counts in numpy)."""
     counts = [CLEAN_COUNTS] * status.shape[0]
-    if not status.size or not status.max():  # a clean run, the common case: one fast pass
+    if all_clean(status):  # a clean run, the common case: one pass at most
         return counts, {}
     if compiled_loaded():  # counts and failed positions, one sparse compiled pass over every row
         from bitmend.kernels.tally import status_tally
@@ -73,6 +73,8 @@ def _counts_of_run(status: np.ndarray) -> tuple[list[tuple[int, int, int]], dict
 def run_block_counts(status: np.ndarray) -> list[tuple[int, int, int]]:
     """block_counts of every row of a run's (frames, blocks) statuses, a few whole-array
     passes for all rows: a failed block's status is FAILED, a corrected one's its count."""
+    if all_clean(status):
+        return [CLEAN_COUNTS] * status.shape[0]
     if compiled_loaded():  # one compiled pass (the kernels are loaded for any sizeable run)
         from bitmend.kernels.tally import status_counts
 

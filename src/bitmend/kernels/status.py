@@ -2,6 +2,67 @@
 
 One constant for every code family and kernel, so a status array means the same thing
 wherever it came from. 255 fits the uint8 status arrays and lies above every t in the
-catalog (the largest is 16 symbols for rs-255-223)."""
+catalog (the largest is 16 symbols for rs-255-223).
+
+Decode kernels mark statuses in a zeroed buffer (status_buffer), and only the codewords
+they correct or give up on: a clean segment's statuses are kept as one zero repeated
+(kept_statuses), which all_clean reads once."""
+
+import threading
+
+import numpy as np
 
 FAILED = 255  # a detected, uncorrectable codeword (or, in a truncated segment, one that never arrived)
+
+SCRATCH_LIMIT = 1 << 23  # statuses a thread's reused buffer may hold (8 MiB); larger calls allocate
+_ZERO = np.zeros(1, dtype=np.uint8)
+_scratch = threading.local()
+
+
+def status_buffer(size: int) -> np.ndarray:
+    """A zeroed uint8 array of `size` statuses for a decode kernel to mark, to be passed
+    through kept_statuses before the next is asked for. Up to SCRATCH_LIMIT it is this
+    thread's own buffer, reused: a fresh zeroed array per call costs a memset of one
+    status per codeword (two per payload byte for hamming-7-4) that a clean segment
+    never writes. A buffer never given back (an exception between the kernel and
+    kept_statuses) is zeroed whole before it is lent again."""
+    if size > SCRATCH_LIMIT:
+        return np.zeros(size, dtype=np.uint8)
+    buffer = getattr(_scratch, "buffer", None)
+    if buffer is None or len(buffer) < size:
+        buffer = _scratch.buffer = np.zeros(max(size, 1 << 16), dtype=np.uint8)
+    elif _scratch.lent:
+        buffer[:] = 0
+    _scratch.lent = True
+    return buffer[:size]
+
+
+def kept_statuses(status: np.ndarray) -> np.ndarray:
+    """The statuses a kernel marked in a status_buffer, as the caller may keep them: all
+    zero (a clean segment) as a read-only view of a single zero repeated (no memory per
+    codeword; all_clean reads it once), otherwise an array of their own, the thread's
+    buffer zeroed again for the next call."""
+    lent = status.base is not None and status.base is getattr(_scratch, "buffer", None)
+    if not np.count_nonzero(status):
+        kept = clean_statuses(status.shape)
+    elif lent:
+        kept = status.copy()
+        status[:] = 0
+    else:
+        kept = status  # allocated for this call alone
+    if lent:
+        _scratch.lent = False
+    return kept
+
+
+def clean_statuses(shape: int | tuple[int, ...]) -> np.ndarray:
+    """Statuses of codewords that were all clean: one zero repeated, read-only."""
+    return np.broadcast_to(_ZERO, shape)
+
+
+def all_clean(status: np.ndarray) -> bool:
+    """Whether every status is 0. An array whose strides are all zero holds one value
+    repeated (kept_statuses of a clean segment, and its rows), so one read answers."""
+    if status.size and not any(status.strides):
+        return not status.flat[0]
+    return not np.count_nonzero(status)

@@ -1,0 +1,52 @@
+"""The decode kernels' reused status buffer (kernels/status.py): what a caller keeps never
+changes under it, and a buffer is always zero when it is lent again."""
+
+from __future__ import annotations
+
+import numpy as np
+
+import bitmend
+from bitmend.channel.bsc import flip_bits
+from bitmend.interleave import decode_segment, encode_segment
+from bitmend.kernels.status import FAILED, all_clean, kept_statuses, status_buffer
+
+
+def test_a_clean_buffer_is_kept_as_one_zero_and_a_marked_one_as_a_copy() -> None:
+    status = status_buffer(1000)
+    assert not status.any()
+    clean = kept_statuses(status)
+    assert clean.shape == (1000,) and not clean.flags.writeable and all_clean(clean)
+    assert all_clean(clean.reshape(10, 100)[3])  # rows of it too
+
+    status = status_buffer(1000)
+    status[[5, 700]] = (1, FAILED)
+    kept = kept_statuses(status)
+    assert kept[5] == 1 and kept[700] == FAILED and not all_clean(kept)
+    again = status_buffer(1000)
+    assert not again.any()  # zeroed for the next call ...
+    assert kept[5] == 1 and kept[700] == FAILED  # ... without touching what was kept
+    kept_statuses(again)
+
+
+def test_a_buffer_never_given_back_is_zeroed_before_it_is_lent_again() -> None:
+    status = status_buffer(500)
+    status[42] = 3  # a kernel marked it, then the caller failed before kept_statuses
+    assert not status_buffer(500).any()
+    kept_statuses(status_buffer(10))
+
+
+def test_statuses_of_segments_decoded_one_after_another_are_each_their_own() -> None:
+    # a damaged segment, then a clean one, then the damaged one again: the clean one must not
+    # inherit marks, and the statuses kept from the first stay as they were (common practice:
+    # a reused buffer is only safe if every reuse starts from zero)
+    code = bitmend.get_code("hamming-7-4")
+    message = bytes(range(256)) * 1024  # large enough for the compiled kernels
+    coded = encode_segment(code, 1, message)
+    damaged, _ = flip_bits(coded, 0.01, np.random.default_rng(5))
+    back, first = decode_segment(code, 1, damaged, len(message))
+    first_copy = np.array(first)
+    assert np.count_nonzero(first_copy) > 0
+    back_clean, clean = decode_segment(code, 1, coded, len(message))
+    assert bytes(back_clean) == message and all_clean(clean)
+    _, second = decode_segment(code, 1, damaged, len(message))
+    assert np.array_equal(second, first_copy) and np.array_equal(first, first_copy)
