@@ -8,31 +8,38 @@ import numpy as np
 import bitmend
 from bitmend.channel.bsc import flip_bits
 from bitmend.interleave import decode_segment, encode_segment
-from bitmend.kernels.status import FAILED, all_clean, kept_statuses, status_buffer
+from bitmend.kernels.status import FAILED, SCRATCH_MIN, all_clean, kept_statuses, status_buffer
 
 
 def test_a_clean_buffer_is_kept_as_one_zero_and_a_marked_one_as_a_copy() -> None:
-    status = status_buffer(1000)
+    size = SCRATCH_MIN + 1000
+    status = status_buffer(size)
     assert not status.any()
     clean = kept_statuses(status)
-    assert clean.shape == (1000,) and not clean.flags.writeable and all_clean(clean)
-    assert all_clean(clean.reshape(10, 100)[3])  # rows of it too
+    assert clean.shape == (size,) and not clean.flags.writeable and all_clean(clean)
+    assert all_clean(clean.reshape(size // 8, 8)[3])  # rows of it too
 
-    status = status_buffer(1000)
+    status = status_buffer(size)
     status[[5, 700]] = (1, FAILED)
     kept = kept_statuses(status)
     assert kept[5] == 1 and kept[700] == FAILED and not all_clean(kept)
-    again = status_buffer(1000)
+    again = status_buffer(size)
     assert not again.any()  # zeroed for the next call ...
     assert kept[5] == 1 and kept[700] == FAILED  # ... without touching what was kept
     kept_statuses(again)
 
 
 def test_a_buffer_never_given_back_is_zeroed_before_it_is_lent_again() -> None:
-    status = status_buffer(500)
+    status = status_buffer(SCRATCH_MIN)
     status[42] = 3  # a kernel marked it, then the caller failed before kept_statuses
-    assert not status_buffer(500).any()
-    kept_statuses(status_buffer(10))
+    assert not status_buffer(SCRATCH_MIN).any()
+    kept_statuses(status_buffer(SCRATCH_MIN))
+
+
+def test_few_statuses_are_an_array_of_their_own() -> None:
+    status = status_buffer(SCRATCH_MIN - 1)
+    status[7] = 2
+    assert kept_statuses(status) is status and status_buffer(SCRATCH_MIN - 1) is not status
 
 
 def test_statuses_of_segments_decoded_one_after_another_are_each_their_own() -> None:
