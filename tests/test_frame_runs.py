@@ -200,6 +200,13 @@ def test_a_runs_block_counts_are_each_frames() -> None:
         where = np.flatnonzero(row == fmt.FAILED)
         assert counts[i, 2] == len(where)
         assert failed[i, :min(len(where), 5)].tolist() == where[:5].tolist()
+    # sparse, at the first and last block of rows, rows skipped between (the scan follows
+    # the row as it goes)
+    sparse = np.zeros((9, 1001), dtype=np.uint8)
+    sparse[0, 0], sparse[0, 1000], sparse[5, 0], sparse[8, 1000], sparse[8, 3] = 2, fmt.FAILED, 1, fmt.FAILED, 3
+    counts, failed = status_tally(sparse, 5)
+    assert [tuple(row) for row in counts.tolist()] == [reader.block_counts(row) for row in sparse]
+    assert failed[0, 0] == 1000 and failed[8, 0] == 1000
 
 
 def test_a_frames_quick_report_is_the_constructors() -> None:
