@@ -545,11 +545,13 @@ class FrameScanner:
         headers = locked.following(count)
         data, payloads, crc_ok, authentic = checked_run(headers, messages, self._key)
         frames = []
-        for i, header in enumerate(headers):
-            frame_bit = bit + 8 * size * i
-            frames.append(DecodedFrame(header, frame_bit >> 3, frame_bit, payloads[i], block_status[i], crc_ok[i],
-                                       marker_distance=int(marker_distance[i]), authentic=authentic[i]))
-            frames[-1].set_counts(counts[i], failed.get(i))
+        frame_bit = bit
+        for header, payload, status, ok, distance, tag_ok, row_counts in zip(
+                headers, payloads, block_status, crc_ok, marker_distance.tolist(), authentic, counts):
+            frame = DecodedFrame(header, frame_bit >> 3, frame_bit, payload, status, ok, False, False, distance, tag_ok)
+            frame.set_counts(row_counts, failed.get(len(frames)))
+            frames.append(frame)
+            frame_bit += 8 * size
         return FrameRun(frames, data)
 
     def _submitted_run(self, bit: int, locked: fmt.FrameHeader, coded: np.ndarray,
