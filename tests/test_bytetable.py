@@ -2,9 +2,13 @@
 the numpy twins in kernels.small and the word-buffer kernels (kernels.blockcode, the path
 these codes took before), bit for bit: coded bytes, decoded bytes and every block status
 (0 clean, 1 corrected, FAILED), on random data and errors, short tails, truncated and
-unaligned buffers, and runs of segments end to end."""
+unaligned buffers, and runs of segments end to end; the vector transposes of the depth-8
+kernels against a numpy bit transpose, and their loop for kb = 8 against the loop for any kb."""
 
 from __future__ import annotations
+
+import sys
+from functools import cache
 
 import numpy as np
 import pytest
@@ -180,3 +184,74 @@ def test_a_code_of_64_bits_off_the_byte_path_decodes_on_the_word_kernels():
     out, status = decode_segment(code, 1, noisy, len(message))
     _, twin_out, twin_status, _, _ = _reference(code, 1, message, noisy)
     assert out == twin_out and np.array_equal(status, twin_status)
+
+
+@cache
+def _octet_transposes():
+    """Compiled calls of kernels.bytetable's store_slices and load_messages on one octet at
+    the start of a buffer (intrinsics: callable only from compiled code)."""
+    from bitmend.kernels import bytetable
+    from bitmend.kernels.jit import njit
+
+    @njit
+    def slices(messages, kb, keep, out):
+        bytetable.store_slices(messages.ctypes.data, 0, kb, keep, out.ctypes.data, 0)
+
+    @njit
+    def messages(slices, kb, out):
+        words = bytetable.load_messages(slices.ctypes.data, 0, kb)
+        for q in range(8):
+            out[q] = words[q]
+
+    return slices, messages
+
+
+@pytest.mark.parametrize("kb", range(1, 9))
+def test_the_vector_transposes_give_the_slices_of_a_bit_transpose_and_back(kb):
+    # slice c byte i holds bit i of message byte c of codeword q at bit 7 - q: the transpose
+    # of the 8 x 8kb bit matrix of the messages, packed by columns
+    slices, messages = _octet_transposes()
+    keep = np.uint64(int.from_bytes(bytes([255] * kb + [0] * (8 - kb)), sys.byteorder))  # first kb bytes, native
+    rng = np.random.default_rng(kb)
+    for _ in range(20):
+        octet = rng.integers(0, 256, size=(8, kb), dtype=np.uint8)
+        want = np.packbits(np.unpackbits(octet, axis=1).T, axis=1).reshape(-1)
+        source = np.concatenate([octet.reshape(-1), rng.integers(0, 256, 8, dtype=np.uint8)])  # bytes past: ignored
+        out = np.full(8 * kb + 16, 0xA5, dtype=np.uint8)
+        slices(source, kb, keep, out)
+        assert out[: 8 * kb].tobytes() == want.tobytes()
+        assert (out[8 * kb:] == 0xA5).all()  # nothing stored past the slices
+        received = np.concatenate([want, rng.integers(0, 256, 72, dtype=np.uint8)])  # bytes past: not read
+        words = np.zeros(8, dtype=np.uint64)
+        messages(received, kb, words)
+        padded = np.zeros((8, 8), dtype=np.uint8)
+        padded[:, :kb] = octet
+        assert words.tobytes() == padded.tobytes()  # native words: message bytes in memory order, zeros past kb
+
+
+@pytest.mark.parametrize("code", [get_code("secded-72-64"), _random_code(64, 5, seed=10)], ids=lambda c: c.name)
+def test_the_octet_loops_compiled_for_kb_8_and_for_any_kb_agree(code):
+    from bitmend.kernels import bytetable
+
+    kb, r, octets = code.k // 8, code.r, 300
+    table = _plan(code, 8).encode_table
+    lead_m, _, weight = code.leader_tables
+    rng = np.random.default_rng(3)
+    message = rng.integers(0, 256, size=8 * kb * octets + 8, dtype=np.uint8)
+    coded = [np.zeros(octets * (8 * kb + r) + 8, dtype=np.uint8) for _ in range(2)]
+    bytetable._encode_octets(message.ctypes.data, table.ctypes.data, coded[0].ctypes.data, octets, kb, r)
+    bytetable._encode_octets8(message.ctypes.data, table.ctypes.data, coded[1].ctypes.data, octets, r)
+    assert coded[0].tobytes() == coded[1].tobytes()
+    assert coded[0][: octets * (8 * kb + r)].tobytes() == small.encode(message[: 8 * kb * octets].tobytes(), code.P,
+                                                                     8, octets)
+    noisy = np.frombuffer(flip_bits(coded[0].tobytes(), rng.choice(8 * octets * (8 * kb + r), 400, replace=False)),
+                          np.uint8)
+    outs = [np.zeros(8 * kb * octets + 8, dtype=np.uint8) for _ in range(2)]
+    statuses = [np.zeros(8 * octets, dtype=np.uint8) for _ in range(2)]
+    tables = (table.ctypes.data, lead_m.ctypes.data, weight.ctypes.data)
+    bytetable._decode_octets(noisy.ctypes.data, tables[0], outs[0].ctypes.data, octets, 0, kb, r, *tables[1:],
+                             statuses[0].ctypes.data)
+    bytetable._decode_octets8(noisy.ctypes.data, tables[0], outs[1].ctypes.data, octets, 0, r, *tables[1:],
+                              statuses[1].ctypes.data)
+    assert outs[0].tobytes() == outs[1].tobytes() and np.array_equal(statuses[0], statuses[1])
+    assert np.count_nonzero(statuses[0]) > 0
