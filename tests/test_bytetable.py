@@ -230,7 +230,7 @@ def test_the_vector_transposes_give_the_slices_of_a_bit_transpose_and_back(kb):
 
 
 @pytest.mark.parametrize("code", [get_code("secded-72-64"), _random_code(64, 5, seed=10)], ids=lambda c: c.name)
-def test_the_octet_loops_compiled_for_kb_8_and_for_any_kb_agree(code):
+def test_the_octet_loops_for_kb_8_and_any_kb_agree_and_decode_as_the_twins(code):
     from bitmend.kernels import bytetable
 
     kb, r, octets = code.k // 8, code.r, 300
@@ -246,12 +246,11 @@ def test_the_octet_loops_compiled_for_kb_8_and_for_any_kb_agree(code):
                                                                      8, octets)
     noisy = np.frombuffer(flip_bits(coded[0].tobytes(), rng.choice(8 * octets * (8 * kb + r), 400, replace=False)),
                           np.uint8)
-    outs = [np.zeros(8 * kb * octets + 8, dtype=np.uint8) for _ in range(2)]
-    statuses = [np.zeros(8 * octets, dtype=np.uint8) for _ in range(2)]
-    tables = (table.ctypes.data, lead_m.ctypes.data, weight.ctypes.data)
-    bytetable._decode_octets(noisy.ctypes.data, tables[0], outs[0].ctypes.data, octets, 0, kb, r, *tables[1:],
-                             statuses[0].ctypes.data)
-    bytetable._decode_octets8(noisy.ctypes.data, tables[0], outs[1].ctypes.data, octets, 0, r, *tables[1:],
-                              statuses[1].ctypes.data)
-    assert outs[0].tobytes() == outs[1].tobytes() and np.array_equal(statuses[0], statuses[1])
-    assert np.count_nonzero(statuses[0]) > 0
+    out = np.zeros(8 * kb * octets + 8, dtype=np.uint8)
+    status = np.zeros(8 * octets, dtype=np.uint8)
+    bytetable._decode_octets(noisy.ctypes.data, table.ctypes.data, out.ctypes.data, octets, 0, kb, r,
+                             lead_m.ctypes.data, weight.ctypes.data, status.ctypes.data)
+    want, want_status = small.decode(noisy[: octets * (8 * kb + r)].tobytes(), code.P, 8, octets, lead_m, weight,
+                                     8 * kb * octets)
+    assert out[: 8 * kb * octets].tobytes() == bytes(want) and np.array_equal(status, want_status)
+    assert np.count_nonzero(status) > 0
