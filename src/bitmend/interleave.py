@@ -318,7 +318,8 @@ def _plan(code: BinaryLinearCode, depth: int) -> _Plan:
     # Codes of whole message bytes and one check byte (secded-72-64 at depths 1 and 8,
     # secded-39-32 at depth 8) take kernels.bytetable: against the kernels above, in 1 MiB
     # segments, secded-72-64 encoded and decoded about 4x faster at depth 1 and 2.5x / 3.5x
-    # at depth 8, secded-39-32 at depth 8 1.6x / 1.4x.
+    # at depth 8, secded-39-32 at depth 8 1.6x / 1.4x (before the depth-8 transposes moved
+    # to vector registers, which doubled secded-72-64's encoding there again).
     if _byte_code(code, depth):
         return _Plan("bytes", "bytes", _check_tables(code), empty, empty, 8, lead_m, weight)
     # Two codewords on whole bytes (golay-24-12 at depth 1: 3 message bytes, 6 coded bytes)
