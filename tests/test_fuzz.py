@@ -12,7 +12,7 @@ from conftest import REPO_ROOT
 
 pytest.importorskip("atheris")
 
-FUZZ_SECONDS = 12
+FUZZ_SECONDS = 6
 
 
 def test_fuzzing_the_decoder_for_a_bounded_time_finds_no_crash(tmp_path):

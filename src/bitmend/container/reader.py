@@ -120,7 +120,7 @@ class DecodedFrame:
     def set_counts(self, counts: tuple[int, int, int], failed: list[int] | None = None) -> None:
         """Take block_counts(block_status) computed elsewhere (by a batch worker, or for a
         whole run of frames at once), and failed_blocks when it came with them."""
-        self.__dict__["_counts"] = tuple(counts)
+        self.__dict__["_counts"] = counts if type(counts) is tuple else tuple(counts)
         if failed is not None:
             self.__dict__["failed_blocks"] = failed
 
