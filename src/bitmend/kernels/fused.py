@@ -747,16 +747,14 @@ def encode_octet8(in8, length, octets, k, r, ptab, chunk_bits, out8):
     n = k + r
     slices = (n + 7) // 8
     ia, oa = in8.ctypes.data, out8.ctypes.data  # once: see load_be64
+    c = np.empty(8, dtype=np.uint64)  # the octet's codewords, left-aligned (first 64 bits)
+    d = np.empty(8, dtype=np.uint64)  # and their bits past 64
     for t in range(octets):
         bit = t * 8 * k
-        c0, d0 = _read_codeword(ia, length, bit, k, r, ptab, chunk_bits)
-        c1, d1 = _read_codeword(ia, length, bit + k, k, r, ptab, chunk_bits)
-        c2, d2 = _read_codeword(ia, length, bit + 2 * k, k, r, ptab, chunk_bits)
-        c3, d3 = _read_codeword(ia, length, bit + 3 * k, k, r, ptab, chunk_bits)
-        c4, d4 = _read_codeword(ia, length, bit + 4 * k, k, r, ptab, chunk_bits)
-        c5, d5 = _read_codeword(ia, length, bit + 5 * k, k, r, ptab, chunk_bits)
-        c6, d6 = _read_codeword(ia, length, bit + 6 * k, k, r, ptab, chunk_bits)
-        c7, d7 = _read_codeword(ia, length, bit + 7 * k, k, r, ptab, chunk_bits)
+        for q in range(8):  # one call site: eight inlined copies took 3x the compile time
+            c[q], d[q] = _read_codeword(ia, length, bit + q * k, k, r, ptab, chunk_bits)
+        c0, c1, c2, c3, c4, c5, c6, c7 = c[0], c[1], c[2], c[3], c[4], c[5], c[6], c[7]
+        d0, d1, d2, d3, d4, d5, d6, d7 = d[0], d[1], d[2], d[3], d[4], d[5], d[6], d[7]
         b0, b1, b2, b3, b4, b5, b6, b7 = byte_transpose(c0, c1, c2, c3, c4, c5, c6, c7)
         base = t * n
         store_be64(oa, base, transpose8(b0))
