@@ -501,8 +501,7 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
         _bytetable().decode_pairs(np.ascontiguousarray(raw), min(len(raw), lay.coded_bytes), lay.blocks, k, code.r,
                                   plan.encode_table, plan.leader_message, plan.leader_weight, status,
                                   out.view(np.uint8))
-        return out.view(np.uint8)[:message_bytes], kept_statuses(status)
-    if plan.decode_kind == "bytes":
+    elif plan.decode_kind == "bytes":
         status = status_buffer(lay.blocks)
         out = _native(lay.blocks * k)
         bytetable = _bytetable()
@@ -514,8 +513,7 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
             bytetable.decode_octet8(np.ascontiguousarray(raw), min(len(raw), lay.coded_bytes), lay.groups, k // 8,
                                     code.r, plan.encode_table, plan.leader_message, plan.leader_weight, status,
                                     out.view(np.uint8))
-        return out.view(np.uint8)[:message_bytes], kept_statuses(status)
-    if plan.decode_kind == "linear":
+    elif plan.decode_kind == "linear":
         m = _octets_per_step(code)
         steps = -(-lay.blocks // (8 * m))
         status = status_buffer(steps * 8 * m)
@@ -523,22 +521,20 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
         decode = fused.linear_decoder(m * n, plan.decode_table.shape[2])
         decode(raw, min(len(raw), lay.coded_bytes), steps, m * k, m * n, k, code.r, plan.decode_table,
                plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, out.view(np.uint8))
-        status = kept_statuses(status)[: lay.blocks]
     elif plan.decode_kind == "octets":
         status = status_buffer(lay.blocks)
         out = _native(lay.blocks * k)
         fused.decode_octet8(np.ascontiguousarray(raw), min(len(raw), lay.coded_bytes), lay.groups, k, code.r,
                             plan.encode_table, plan.chunk_bits, plan.leader_message, plan.leader_weight, status,
                             out.view(np.uint8))
-        status = kept_statuses(status)
     else:  # depth1
         status = status_buffer(lay.blocks)
         out = _native(lay.blocks * k)
         fused.decode_depth1(np.ascontiguousarray(raw), min(len(raw), lay.coded_bytes), lay.blocks, k, code.r,
                             plan.encode_table, plan.chunk_bits, plan.leader_message, plan.leader_weight, status,
                             out.view(np.uint8))
-        status = kept_statuses(status)
-    return out.view(np.uint8)[:message_bytes], status
+    # every kind marked a status_buffer (linear: whole steps, past lay.blocks too)
+    return out.view(np.uint8)[:message_bytes], kept_statuses(status)[: lay.blocks]
 
 
 # ---- codes with their own row kernels (BCH, Reed-Solomon) ------------------------------------------
