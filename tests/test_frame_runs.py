@@ -11,11 +11,13 @@ import numpy as np
 import pytest
 
 import bitmend
+from bitmend.codes.base import BlockCode
 from bitmend.codes.catalog import code_id, get_code
 from bitmend.codes.linear import BinaryLinearCode
 from bitmend.container import format as fmt
 from bitmend.container import reader
 from bitmend.container.writer import FrameWriter
+from bitmend import interleave
 from bitmend.interleave import decode_segment, decode_segments, encode_segment, encode_segments
 
 
@@ -106,6 +108,65 @@ def test_decoded_segments_are_segment_by_segment(name: str, depth: int, message_
         want_message, want_status = decode_segment(code, depth, coded[i].tobytes(), message_bytes)
         assert got_messages[i].tobytes() == want_message
         assert np.array_equal(got_status[i], want_status)
+
+
+def _linear_code(name: str) -> BlockCode:
+    """A catalog code, or custom-11-7: a (11, 7) code of random parity, whose table step has
+    a shape of no loop of its own (the general loops)."""
+    if name.startswith("custom"):
+        return BinaryLinearCode(name, np.random.default_rng(3).integers(0, 2, (7, 4)).astype(np.uint8))
+    return get_code(name)
+
+
+LINEAR_SHAPES = [("hamming-7-4", 8), ("secded-8-4", 1), ("hamming-15-11", 8), ("rep-3", 8), ("golay-24-12", 8),
+                 ("golay-23-12", 8), ("custom-11-7", 1)]
+
+
+@pytest.mark.parametrize("name, depth", LINEAR_SHAPES)
+def test_rows_coded_where_they_go_are_segment_by_segment_and_touch_nothing_else(name: str, depth: int) -> None:
+    # the linear kernels write a run's coded payloads straight into the frames, rows apart;
+    # each row must be encode_segment's bytes, and the bytes between rows (the frames'
+    # headers, written before or after) must be left as they were: a row's last step
+    # stores exactly its bytes
+    code = _linear_code(name)
+    count, message_bytes, gap = 5, 3024, 37  # 3024 = 56 * 54: rows of whole steps for every shape here
+    width = interleave.layout(code, depth, message_bytes).coded_bytes
+    messages = np.frombuffer(os.urandom(count * message_bytes), dtype=np.uint8).reshape(count, message_bytes)
+    store = np.full(count * (width + gap) + 8, 0xA5, dtype=np.uint8)
+    rows = np.lib.stride_tricks.as_strided(store, shape=(count, width), strides=(width + gap, 1))
+    padded = interleave.message_row_bytes(code, depth, message_bytes)
+    wide = np.zeros((count, padded), dtype=np.uint8)
+    wide[:, :message_bytes] = messages
+    assert interleave._encode_in_place(code, interleave.layout(code, depth, message_bytes), wide.reshape(-1), rows)
+    for i in range(count):
+        assert rows[i].tobytes() == encode_segment(code, depth, messages[i].tobytes())
+        assert (store[i * (width + gap) + width: (i + 1) * (width + gap)] == 0xA5).all()
+    assert (store[count * (width + gap) - gap:] == 0xA5).all()
+    assert encode_segments(code, depth, messages).tobytes() == rows.tobytes()
+
+
+@pytest.mark.parametrize("name, depth", LINEAR_SHAPES)
+def test_rows_decoded_where_they_lie_are_segment_by_segment(name: str, depth: int) -> None:
+    # the linear kernels read a run's coded payloads where they lie in the input, rows apart
+    # (junk between them, the last row ending the buffer), every table shape (custom-11-7:
+    # the general loop); with damage, the messages and statuses are decode_segment's
+    code = _linear_code(name)
+    count, message_bytes, gap = 5, 3024, 37  # 3024 = 56 * 54: rows of whole steps for every shape here
+    messages = np.frombuffer(os.urandom(count * message_bytes), dtype=np.uint8).reshape(count, message_bytes)
+    coded = encode_segments(code, depth, messages).copy()
+    coded[np.random.default_rng(11).random(coded.shape) < 0.01] ^= np.uint8(0x10)  # some blocks fail
+    width = coded.shape[1]
+    store = np.full(count * (width + gap) - gap, 0xA5, dtype=np.uint8)
+    rows = np.lib.stride_tricks.as_strided(store, shape=(count, width), strides=(width + gap, 1))
+    rows[:] = coded
+    assert interleave._linear_row_steps(code, interleave.layout(code, depth, message_bytes), rows, decoding=True)
+    got_messages, got_status = decode_segments(code, depth, rows, message_bytes)
+    for i in range(count):
+        want_message, want_status = decode_segment(code, depth, coded[i].tobytes(), message_bytes)
+        assert got_messages[i].tobytes() == want_message
+        assert np.array_equal(got_status[i], want_status)
+    clean_messages, clean_status = decode_segments(code, depth, encode_segments(code, depth, messages), message_bytes)
+    assert clean_messages.tobytes() == messages.tobytes() and not clean_status.any()
 
 
 def _reports(container: bytes, key: bytes | None = None, jobs: int = 1) -> tuple[bytes, str]:

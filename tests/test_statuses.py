@@ -57,3 +57,35 @@ def test_statuses_of_segments_decoded_one_after_another_are_each_their_own() -> 
     assert bytes(back_clean) == message and all_clean(clean)
     _, second = decode_segment(code, 1, damaged, len(message))
     assert np.array_equal(second, first_copy) and np.array_equal(first, first_copy)
+
+
+def test_a_kernel_that_corrected_nothing_is_taken_at_its_word() -> None:
+    # marked=False (a linear kernel counted no corrected step): kept as clean with no scan,
+    # the buffer given back; an array of the call's own is read-only clean too
+    status = status_buffer(SCRATCH_MIN)
+    clean = kept_statuses(status, marked=False)
+    assert all_clean(clean) and not clean.flags.writeable
+    assert not status_buffer(SCRATCH_MIN).any()
+    kept_statuses(status_buffer(SCRATCH_MIN))
+    own = kept_statuses(np.zeros(10, dtype=np.uint8), marked=False)
+    assert own.shape == (10,) and all_clean(own) and not own.flags.writeable
+
+
+def test_the_linear_kernels_count_of_corrected_steps_matches_the_numpy_twins_statuses() -> None:
+    # if a linear kernel under-counted the steps it corrected, its statuses would be
+    # dropped as clean: damaged segments must give the statuses of kernels.small, which
+    # decodes codeword by codeword in numpy (an independent path)
+    from bitmend.interleave import layout
+    from bitmend.kernels import small
+
+    message = bytes(range(256)) * 512
+    for name, depth in (("hamming-7-4", 8), ("golay-24-12", 8), ("secded-16-11", 1)):
+        code = bitmend.get_code(name)
+        coded = encode_segment(code, depth, message)
+        for p in (1e-4, 0.02):
+            damaged, _ = flip_bits(coded, p, np.random.default_rng(3))
+            _, status = decode_segment(code, depth, damaged, len(message))
+            lead_m, _, weight = code.leader_tables
+            _, twin = small.decode(damaged, code.P, depth, layout(code, depth, len(message)).groups, lead_m, weight,
+                                   len(message))
+            assert np.count_nonzero(twin) and np.array_equal(status, twin)

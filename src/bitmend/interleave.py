@@ -23,7 +23,7 @@ import numpy as np
 from bitmend.codes.base import BlockCode
 from bitmend.codes.linear import BinaryLinearCode
 from bitmend.kernels import cyclic_small, small
-from bitmend.kernels.loader import compiled, compiled_cyclic
+from bitmend.kernels.loader import SMALL_WORK_BITS, compiled, compiled_cyclic, compiled_loaded
 from bitmend.kernels.status import FAILED, kept_statuses, status_buffer
 from bitmend.once import once
 
@@ -145,11 +145,56 @@ def encode_segments(code: BlockCode, depth: int, messages: np.ndarray, out: np.n
             whole = np.zeros((count, padded), dtype=np.uint8)
             whole[:, :message_bytes] = messages
             messages = whole
-        out[:] = _coded_array(code, depth, np.ascontiguousarray(messages).reshape(-1)).reshape(count, -1)
+        flat = np.ascontiguousarray(messages).reshape(-1)
+        if not _encode_in_place(code, lay, flat, out):  # else coded into a buffer of its own, then copied
+            out[:] = _coded_array(code, depth, flat).reshape(count, -1)
         return out
     for i in range(count):
         out[i] = _coded_array(code, depth, messages[i])
     return out
+
+
+def _encode_in_place(code: BlockCode, lay: SegmentLayout, messages: np.ndarray, out: np.ndarray) -> bool:
+    """Code the padded messages of out's rows (end to end in messages) straight into
+    out's rows when the linear kernels can (_linear_row_steps); False, nothing written,
+    otherwise."""
+    row_steps = _linear_row_steps(code, lay, out, decoding=False)
+    if row_steps is None:
+        return False
+    engine = code.generic_engine
+    plan, m = _plan(engine, lay.depth), _octets_per_step(engine)
+    encode = _fused().linear_encoder(m * engine.k, plan.encode_table.shape[2])
+    encode(messages, len(messages), out.shape[0] * row_steps, row_steps, out.strides[0], m * engine.k, m * engine.n,
+           plan.encode_table, _row_span(out))
+    return True
+
+
+def _linear_row_steps(code: BlockCode, lay: SegmentLayout, rows: np.ndarray, decoding: bool) -> int | None:
+    """Table steps per row when the linear kernels code the rows of `rows` (count, coded
+    bytes of lay) where they lie, rows apart (frames' coded payloads): the code is on those
+    kernels at this depth (n <= LINEAR_MAX_N), they are loaded for work this size, and
+    each row is whole table steps, coded and message bytes alike, of consecutive bytes.
+    Else None (the rows are gathered into, or copied out of, one segment)."""
+    engine = code.generic_engine
+    count, width = rows.shape
+    work = lay.coded_bits * count
+    if (engine is None or rows.strides[1] != 1 or rows.strides[0] < width or lay.depth % 8 and lay.depth != 1
+            or not (compiled_loaded() or work >= SMALL_WORK_BITS)  # else the numpy twins (and their tally)
+            or compiled(work) is None):
+        return None
+    plan = _plan(engine, lay.depth)
+    m = _octets_per_step(engine)
+    if ((plan.decode_kind if decoding else plan.encode_kind) != "linear" or width % (m * engine.n)
+            or _padded_message_bytes(lay) % (m * engine.k)):
+        return None
+    return width // (m * engine.n)
+
+
+def _row_span(rows: np.ndarray) -> np.ndarray:
+    """The bytes of a 2-D array of byte rows (consecutive within a row), from the first
+    row's start to the last row's end, as one 1-D view."""
+    count, width = rows.shape
+    return np.lib.stride_tricks.as_strided(rows, shape=((count - 1) * rows.strides[0] + width,), strides=(1,))
 
 
 def _coded_array(code: BlockCode, depth: int, message: np.ndarray) -> np.ndarray:
@@ -209,7 +254,12 @@ def decode_segments(code: BlockCode, depth: int, coded: np.ndarray,
     lay = layout(code, depth, message_bytes)
     padded = _padded_message_bytes(lay)
     if padded is not None and count and coded.shape[1] == lay.coded_bytes:
-        message, status = _decoded(code, depth, np.ascontiguousarray(coded).reshape(-1), count * padded)
+        row_steps = _linear_row_steps(code, lay, coded, decoding=True)
+        if row_steps is not None:  # the rows read where they lie: no gathered copy of them
+            message, status = _decode_linear(code.generic_engine, layout(code, depth, count * padded),
+                                             _row_span(coded), row_steps, coded.strides[0], count * padded)
+        else:
+            message, status = _decoded(code, depth, np.ascontiguousarray(coded).reshape(-1), count * padded)
         if isinstance(message, bytes):
             message = np.frombuffer(message, dtype=np.uint8)
         messages = message.reshape(count, padded)[:, :message_bytes]
@@ -463,7 +513,7 @@ def _encode_fused_words(code: BinaryLinearCode, lay: SegmentLayout, message: byt
         out = _native(steps * 8 * m * n)
         raw = np.frombuffer(message, dtype=np.uint8) if not isinstance(message, np.ndarray) else message
         encode = fused.linear_encoder(m * k, plan.encode_table.shape[2])
-        encode(raw, len(raw), steps, m * k, m * n, plan.encode_table, out.view(np.uint8))
+        encode(raw, len(raw), steps, steps, steps * m * n, m * k, m * n, plan.encode_table, out.view(np.uint8))
     elif plan.encode_kind == "pairs":  # the kernel reads through the buffer's address: contiguous
         raw = np.ascontiguousarray(np.frombuffer(message, dtype=np.uint8) if not isinstance(message, np.ndarray)
                                    else message)
@@ -495,6 +545,9 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
     k, n = code.k, code.n
     if plan.decode_kind == "words":
         return _decode_words(code, lay, raw, message_bytes)
+    if plan.decode_kind == "linear":  # gives its status buffer back itself
+        steps = -(-lay.blocks // (8 * _octets_per_step(code)))
+        return _decode_linear(code, lay, raw, steps, steps * _octets_per_step(code) * n, message_bytes)
     if plan.decode_kind == "pairs":
         status = status_buffer(lay.blocks)
         out = _native(lay.blocks * k)
@@ -513,14 +566,6 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
             bytetable.decode_octet8(np.ascontiguousarray(raw), min(len(raw), lay.coded_bytes), lay.groups, k // 8,
                                     code.r, plan.encode_table, plan.leader_message, plan.leader_weight, status,
                                     out.view(np.uint8))
-    elif plan.decode_kind == "linear":
-        m = _octets_per_step(code)
-        steps = -(-lay.blocks // (8 * m))
-        status = status_buffer(steps * 8 * m)
-        out = _native(steps * 8 * m * k)
-        decode = fused.linear_decoder(m * n, plan.decode_table.shape[2])
-        decode(raw, min(len(raw), lay.coded_bytes), steps, m * k, m * n, k, code.r, plan.decode_table,
-               plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, out.view(np.uint8))
     elif plan.decode_kind == "octets":
         status = status_buffer(lay.blocks)
         out = _native(lay.blocks * k)
@@ -535,6 +580,23 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
                             out.view(np.uint8))
     # every kind marked a status_buffer (linear: whole steps, past lay.blocks too)
     return out.view(np.uint8)[:message_bytes], kept_statuses(status)[: lay.blocks]
+
+
+def _decode_linear(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, row_steps: int, row_stride: int,
+                   message_bytes: int) -> tuple[np.ndarray, np.ndarray]:
+    """_decode_fused for the linear kind, its rows of row_steps table steps row_stride bytes
+    apart in raw (one row: a plain segment; several: frames' coded payloads where they lie,
+    raw spanning the first row's start to the last row's end)."""
+    plan = _plan(code, lay.depth)
+    m, n = _octets_per_step(code), code.n
+    steps = -(-lay.blocks // (8 * m))
+    status = status_buffer(steps * 8 * m)
+    out = _native(steps * 8 * m * code.k)
+    decode = _fused().linear_decoder(m * n, plan.decode_table.shape[2])
+    length = min(len(raw), lay.coded_bytes) if row_steps == steps else len(raw)
+    marked = decode(raw, length, steps, row_steps, row_stride, m * code.k, m * n, code.k, code.r, plan.decode_table,
+                    plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, out.view(np.uint8))
+    return out.view(np.uint8)[:message_bytes], kept_statuses(status, marked=bool(marked))[: lay.blocks]
 
 
 # ---- codes with their own row kernels (BCH, Reed-Solomon) ------------------------------------------

@@ -411,6 +411,15 @@ def _store_vector(address, at, x0, x1, x2, nbytes):
         store_be64(address, at + 16, x2)
 
 
+@njit(cache=True, inline="always")
+def _store_exact(address, at, x0, x1, x2, nbytes):
+    """The first nbytes of the bit vector x0, x1, x2 to address + at, and not a byte more:
+    the last step of a row, whose next bytes are not the kernel's (frames coded in place)."""
+    for i in range(nbytes):
+        word = x0 if i < 8 else (x1 if i < 16 else x2)
+        store_u8(address, at + i, word >> U64(56 - 8 * (i & 7)))
+
+
 @njit(cache=True)
 def _quad(ta, ia, b, row, nw, w):
     """XOR of table[row + i, in[b + i], w] for i = 0..3: the table (rows of 256 entries
@@ -457,8 +466,28 @@ def _whole_steps(length, steps, size, quads):
     return min(steps, (length - 4 * quads) // size + 1)
 
 
+@njit(cache=True, inline="always")
+def _whole_row_steps(length, steps, size, quads, row_steps, row_stride):
+    """Steps t < steps whose 4 * quads bytes from row_offset(t) all lie within length.
+    Offsets grow with t (row_stride >= row_steps * size), so these are a prefix: every
+    step of the rows that start at or before the last offset that fits, and the steps of
+    that row up to it."""
+    reach = length - 4 * quads
+    if reach < 0 or steps == 0:
+        return 0
+    row = reach // row_stride
+    return min(steps, row * row_steps + min(row_steps, (reach - row * row_stride) // size + 1))
+
+
+@njit(cache=True, inline="always")
+def row_offset(t, size, row_steps, row_stride):
+    """Input offset of step t when rows of row_steps steps of `size` bytes lie row_stride
+    bytes apart (coded payloads in frames, read where they lie): t * size when rows touch."""
+    return (t // row_steps) * row_stride + (t % row_steps) * size
+
+
 @njit(cache=True)
-def encode_linear(in8, length, octets, k, n, table, out8):
+def encode_linear(in8, length, octets, row_steps, row_stride, k, n, table, out8):
     """Short codes, a step of whole octets at a time: step t (8m codewords, k = 8m k_code
     bits of message in k bytes, n coded bytes out) is the XOR over its k message bytes of
     table[pos, byte] (its n stream bytes as table.shape[2] <= 3 words): parity, the
@@ -469,59 +498,111 @@ def encode_linear(in8, length, octets, k, n, table, out8):
 
     This is the loop for any step shape; the catalog's shapes have loops of their own with
     the lookups written out (linear_encoder), measured 1.5x to 3x faster. Each is its own
-    compiled function, so that a code compiles only its own on first use."""
-    _encode_linear_steps(in8, length, 0, octets, k, n, table, out8.ctypes.data)
+    compiled function, so that a code compiles only its own on first use.
+
+    Rows: step t's coded bytes go to row_offset(t, n, row_steps, row_stride), rows of
+    row_steps steps row_stride bytes apart (the coded payloads of a run of frames, written
+    where they go in the frames; row_steps = octets, row_stride = octets * n: one plain
+    segment). A row's last step stores exactly its n bytes, never past the row."""
+    _encode_linear_steps(in8, length, 0, octets, row_steps, row_stride, k, n, table, out8.ctypes.data)
 
 
 @njit(cache=True)
-def _encode_linear_steps(in8, length, first, octets, k, n, table, out_address):
+def _encode_linear_steps(in8, length, first, octets, row_steps, row_stride, k, n, table, out_address):
     """Steps first .. octets-1 of encode_linear, bytes past length read as zero."""
     for t in range(first, octets):
         x0, x1, x2 = _linear_step(in8, length, t * k, k, table, False)
-        _store_vector(out_address, t * n, x0, x1, x2, n)
+        at = row_offset(t, n, row_steps, row_stride)
+        if t % row_steps == row_steps - 1:
+            _store_exact(out_address, at, x0, x1, x2, n)
+        else:
+            _store_vector(out_address, at, x0, x1, x2, n)
 
 
 @njit(cache=True)
-def encode_linear_1x1(in8, length, octets, k, n, table, out8):
+def encode_linear_1x1(in8, length, octets, row_steps, row_stride, k, n, table, out8):
     """encode_linear for steps of one quad of lookups into one word (hamming-7-4, secded-8-4)."""
     ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data  # once: see load_be64
     fast = _whole_steps(length, octets, k, 1)
-    for t in range(fast):
-        store_be64(out_address, t * n, _quads(ta, ia, t * k, 1, 1, 0))
-    _encode_linear_steps(in8, length, fast, octets, k, n, table, out_address)
+    first = 0
+    row_start = 0
+    while first < fast:  # row by row (see encode_linear)
+        at = row_start
+        stop = min(fast, first + row_steps - 1)  # the row's last step stores exactly n bytes
+        for t in range(first, stop):
+            store_be64(out_address, at, _quads(ta, ia, t * k, 1, 1, 0))
+            at += n
+        if stop < fast:
+            _store_exact(out_address, at, _quads(ta, ia, stop * k, 1, 1, 0), U64(0), U64(0), n)
+        first += row_steps
+        row_start += row_stride
+    _encode_linear_steps(in8, length, fast, octets, row_steps, row_stride, k, n, table, out_address)
 
 
 @njit(cache=True)
-def encode_linear_3x2(in8, length, octets, k, n, table, out8):
+def encode_linear_3x2(in8, length, octets, row_steps, row_stride, k, n, table, out8):
     """encode_linear for steps of three quads into two words (hamming-15-11, secded-16-11)."""
-    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data
+    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data  # once: see load_be64
     fast = _whole_steps(length, octets, k, 3)
-    for t in range(fast):
-        x0, x1, x2 = _unrolled_step(ta, ia, t * k, 3, 2)
-        _store_vector(out_address, t * n, x0, x1, x2, n)
-    _encode_linear_steps(in8, length, fast, octets, k, n, table, out_address)
+    first = 0
+    row_start = 0
+    while first < fast:  # row by row (see encode_linear)
+        at = row_start
+        stop = min(fast, first + row_steps - 1)  # the row's last step stores exactly n bytes
+        for t in range(first, stop):
+            x0, x1, x2 = _unrolled_step(ta, ia, t * k, 3, 2)
+            _store_vector(out_address, at, x0, x1, x2, n)
+            at += n
+        if stop < fast:
+            x0, x1, x2 = _unrolled_step(ta, ia, stop * k, 3, 2)
+            _store_exact(out_address, at, x0, x1, x2, n)
+        first += row_steps
+        row_start += row_stride
+    _encode_linear_steps(in8, length, fast, octets, row_steps, row_stride, k, n, table, out_address)
 
 
 @njit(cache=True)
-def encode_linear_2x3(in8, length, octets, k, n, table, out8):
+def encode_linear_2x3(in8, length, octets, row_steps, row_stride, k, n, table, out8):
     """encode_linear for steps of two quads into three words (rep-3: 8 bytes to 24)."""
-    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data
+    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data  # once: see load_be64
     fast = _whole_steps(length, octets, k, 2)
-    for t in range(fast):
-        x0, x1, x2 = _unrolled_step(ta, ia, t * k, 2, 3)
-        _store_vector(out_address, t * n, x0, x1, x2, n)
-    _encode_linear_steps(in8, length, fast, octets, k, n, table, out_address)
+    first = 0
+    row_start = 0
+    while first < fast:  # row by row (see encode_linear)
+        at = row_start
+        stop = min(fast, first + row_steps - 1)  # the row's last step stores exactly n bytes
+        for t in range(first, stop):
+            x0, x1, x2 = _unrolled_step(ta, ia, t * k, 2, 3)
+            _store_vector(out_address, at, x0, x1, x2, n)
+            at += n
+        if stop < fast:
+            x0, x1, x2 = _unrolled_step(ta, ia, stop * k, 2, 3)
+            _store_exact(out_address, at, x0, x1, x2, n)
+        first += row_steps
+        row_start += row_stride
+    _encode_linear_steps(in8, length, fast, octets, row_steps, row_stride, k, n, table, out_address)
 
 
 @njit(cache=True)
-def encode_linear_3x3(in8, length, octets, k, n, table, out8):
+def encode_linear_3x3(in8, length, octets, row_steps, row_stride, k, n, table, out8):
     """encode_linear for steps of three quads into three words (golay codes at depth 8)."""
-    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data
+    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data  # once: see load_be64
     fast = _whole_steps(length, octets, k, 3)
-    for t in range(fast):
-        x0, x1, x2 = _unrolled_step(ta, ia, t * k, 3, 3)
-        _store_vector(out_address, t * n, x0, x1, x2, n)
-    _encode_linear_steps(in8, length, fast, octets, k, n, table, out_address)
+    first = 0
+    row_start = 0
+    while first < fast:  # row by row (see encode_linear)
+        at = row_start
+        stop = min(fast, first + row_steps - 1)  # the row's last step stores exactly n bytes
+        for t in range(first, stop):
+            x0, x1, x2 = _unrolled_step(ta, ia, t * k, 3, 3)
+            _store_vector(out_address, at, x0, x1, x2, n)
+            at += n
+        if stop < fast:
+            x0, x1, x2 = _unrolled_step(ta, ia, stop * k, 3, 3)
+            _store_exact(out_address, at, x0, x1, x2, n)
+        first += row_steps
+        row_start += row_stride
+    _encode_linear_steps(in8, length, fast, octets, row_steps, row_stride, k, n, table, out_address)
 
 
 ENCODE_SHAPES = {(1, 1): encode_linear_1x1, (3, 2): encode_linear_3x2, (2, 3): encode_linear_2x3,
@@ -564,8 +645,8 @@ def _correct_step(x0, x1, x2, t, per, k, code_k, r, leader_message, leader_weigh
 
 
 @njit(cache=True)
-def decode_linear(in8, length, octets, k, n, code_k, r, table, syndrome_mask, leader_message, leader_weight,
-                  status, out8):
+def decode_linear(in8, length, octets, row_steps, row_stride, k, n, code_k, r, table, syndrome_mask,
+                  leader_message, leader_weight, status, out8):
     """Short codes decoded a step of whole octets at a time (n received bytes, k message
     bytes, per = 8k / code_k codewords): XOR over the n received bytes of table[pos, byte]
     gives the per received messages (bits 0 .. 8k-1, concatenated) and their syndromes
@@ -575,78 +656,116 @@ def decode_linear(in8, length, octets, k, n, code_k, r, table, syndrome_mask, le
     `length` received bytes; bytes past them read as zero. The table has 4 * ceil(n / 4)
     rows (zeros past n). out8 is a byte view of a native word buffer with 8 spare bytes.
     This is the loop for any step shape; the catalog's shapes have their own unrolled
-    loops, each its own compiled function (linear_decoder), as for encode_linear."""
-    _decode_linear_steps(in8, length, 0, octets, k, n, code_k, r, table, syndrome_mask, leader_message,
-                         leader_weight, status, out8.ctypes.data)
+    loops, each its own compiled function (linear_decoder), as for encode_linear.
+
+    Rows: the received bytes of step t are at row_offset(t, n, row_steps, row_stride), so
+    the coded payloads of a run of frames are read where they lie in the input, rows of
+    row_steps steps row_stride bytes apart (row_steps = octets, row_stride = octets * n:
+    one plain segment). Messages and statuses go out in step order, rows end to end.
+    Returns the number of steps that had a codeword to correct or give up on: none, and
+    status was not written."""
+    return _decode_linear_steps(in8, length, 0, octets, row_steps, row_stride, k, n, code_k, r, table,
+                                syndrome_mask, leader_message, leader_weight, status, out8.ctypes.data)
 
 
 @njit(cache=True)
-def _decode_linear_steps(in8, length, first, octets, k, n, code_k, r, table, syndrome_mask, leader_message,
-                         leader_weight, status, out_address):
-    """Steps first .. octets-1 of decode_linear, bytes past length read as zero."""
+def _decode_linear_steps(in8, length, first, octets, row_steps, row_stride, k, n, code_k, r, table, syndrome_mask,
+                         leader_message, leader_weight, status, out_address):
+    """Steps first .. octets-1 of decode_linear, bytes past length read as zero; the
+    number of them that had a codeword to correct."""
     per = 8 * k // code_k
     m0, m1, m2 = syndrome_mask[0], syndrome_mask[1], syndrome_mask[2]
     lm, lw, st = leader_message.ctypes.data, leader_weight.ctypes.data, status.ctypes.data
+    marked = 0
     for t in range(first, octets):
-        x0, x1, x2 = _linear_step(in8, length, t * n, n, table, False)
+        x0, x1, x2 = _linear_step(in8, length, row_offset(t, n, row_steps, row_stride), n, table, False)
         if (x0 & m0) | (x1 & m1) | (x2 & m2):
+            marked += 1
             x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st)
         _store_vector(out_address, t * k, x0, x1, x2, k)
+    return marked
 
 
 @njit(cache=True)
-def decode_linear_2x1(in8, length, octets, k, n, code_k, r, table, syndrome_mask, leader_message, leader_weight,
-                      status, out8):
+def decode_linear_2x1(in8, length, octets, row_steps, row_stride, k, n, code_k, r, table, syndrome_mask,
+                      leader_message, leader_weight, status, out8):
     """decode_linear for steps of two quads of lookups into one word (hamming-7-4, secded-8-4)."""
     per = 8 * k // code_k
     m0 = syndrome_mask[0]
     ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data  # once: see load_be64
     lm, lw, st = leader_message.ctypes.data, leader_weight.ctypes.data, status.ctypes.data
-    fast = _whole_steps(length, octets, n, 2)
+    fast = _whole_row_steps(length, octets, n, 2, row_steps, row_stride)
     zero = U64(0)
-    for t in range(fast):
-        x0 = _quads(ta, ia, t * n, 2, 1, 0)
-        if x0 & m0:
-            x0, _, _ = _correct_step(x0, zero, zero, t, per, k, code_k, r, lm, lw, st)
-        store_be64(out_address, t * k, x0)
-    _decode_linear_steps(in8, length, fast, octets, k, n, code_k, r, table, syndrome_mask, leader_message,
-                         leader_weight, status, out_address)
+    marked = 0
+    first = 0
+    row_start = 0
+    while first < fast:  # row by row: the input offset moves on by n, and by row_stride at a row's start
+        at = row_start
+        for t in range(first, min(fast, first + row_steps)):
+            x0 = _quads(ta, ia, at, 2, 1, 0)
+            if x0 & m0:
+                marked += 1
+                x0, _, _ = _correct_step(x0, zero, zero, t, per, k, code_k, r, lm, lw, st)
+            store_be64(out_address, t * k, x0)
+            at += n
+        first += row_steps
+        row_start += row_stride
+    return marked + _decode_linear_steps(in8, length, fast, octets, row_steps, row_stride, k, n, code_k, r, table,
+                                         syndrome_mask, leader_message, leader_weight, status, out_address)
 
 
 @njit(cache=True)
-def decode_linear_4x2(in8, length, octets, k, n, code_k, r, table, syndrome_mask, leader_message, leader_weight,
-                      status, out8):
+def decode_linear_4x2(in8, length, octets, row_steps, row_stride, k, n, code_k, r, table, syndrome_mask,
+                      leader_message, leader_weight, status, out8):
     """decode_linear for steps of four quads into two words (hamming-15-11, secded-16-11)."""
     per = 8 * k // code_k
     m0, m1 = syndrome_mask[0], syndrome_mask[1]
-    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data
+    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data  # once: see load_be64
     lm, lw, st = leader_message.ctypes.data, leader_weight.ctypes.data, status.ctypes.data
-    fast = _whole_steps(length, octets, n, 4)
-    for t in range(fast):
-        x0, x1, x2 = _unrolled_step(ta, ia, t * n, 4, 2)
-        if (x0 & m0) | (x1 & m1):
-            x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st)
-        _store_vector(out_address, t * k, x0, x1, x2, k)
-    _decode_linear_steps(in8, length, fast, octets, k, n, code_k, r, table, syndrome_mask, leader_message,
-                         leader_weight, status, out_address)
+    fast = _whole_row_steps(length, octets, n, 4, row_steps, row_stride)
+    marked = 0
+    first = 0
+    row_start = 0
+    while first < fast:  # row by row: the input offset moves on by n, and by row_stride at a row's start
+        at = row_start
+        for t in range(first, min(fast, first + row_steps)):
+            x0, x1, x2 = _unrolled_step(ta, ia, at, 4, 2)
+            if (x0 & m0) | (x1 & m1):
+                marked += 1
+                x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st)
+            _store_vector(out_address, t * k, x0, x1, x2, k)
+            at += n
+        first += row_steps
+        row_start += row_stride
+    return marked + _decode_linear_steps(in8, length, fast, octets, row_steps, row_stride, k, n, code_k, r, table,
+                                         syndrome_mask, leader_message, leader_weight, status, out_address)
 
 
 @njit(cache=True)
-def decode_linear_6x3(in8, length, octets, k, n, code_k, r, table, syndrome_mask, leader_message, leader_weight,
-                      status, out8):
+def decode_linear_6x3(in8, length, octets, row_steps, row_stride, k, n, code_k, r, table, syndrome_mask,
+                      leader_message, leader_weight, status, out8):
     """decode_linear for steps of six quads into three words (rep-3, golay codes at depth 8)."""
     per = 8 * k // code_k
     m0, m1, m2 = syndrome_mask[0], syndrome_mask[1], syndrome_mask[2]
-    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data
+    ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data  # once: see load_be64
     lm, lw, st = leader_message.ctypes.data, leader_weight.ctypes.data, status.ctypes.data
-    fast = _whole_steps(length, octets, n, 6)
-    for t in range(fast):
-        x0, x1, x2 = _unrolled_step(ta, ia, t * n, 6, 3)
-        if (x0 & m0) | (x1 & m1) | (x2 & m2):
-            x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st)
-        _store_vector(out_address, t * k, x0, x1, x2, k)
-    _decode_linear_steps(in8, length, fast, octets, k, n, code_k, r, table, syndrome_mask, leader_message,
-                         leader_weight, status, out_address)
+    fast = _whole_row_steps(length, octets, n, 6, row_steps, row_stride)
+    marked = 0
+    first = 0
+    row_start = 0
+    while first < fast:  # row by row: the input offset moves on by n, and by row_stride at a row's start
+        at = row_start
+        for t in range(first, min(fast, first + row_steps)):
+            x0, x1, x2 = _unrolled_step(ta, ia, at, 6, 3)
+            if (x0 & m0) | (x1 & m1) | (x2 & m2):
+                marked += 1
+                x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st)
+            _store_vector(out_address, t * k, x0, x1, x2, k)
+            at += n
+        first += row_steps
+        row_start += row_stride
+    return marked + _decode_linear_steps(in8, length, fast, octets, row_steps, row_stride, k, n, code_k, r, table,
+                                         syndrome_mask, leader_message, leader_weight, status, out_address)
 
 
 DECODE_SHAPES = {(2, 1): decode_linear_2x1, (4, 2): decode_linear_4x2, (6, 3): decode_linear_6x3}

@@ -39,15 +39,17 @@ def status_buffer(size: int) -> np.ndarray:
     return buffer[:size]
 
 
-def kept_statuses(status: np.ndarray) -> np.ndarray:
+def kept_statuses(status: np.ndarray, marked: bool = True) -> np.ndarray:
     """The statuses a kernel marked in a status_buffer, as the caller may keep them. An
     array of the call's own is kept as it is; this thread's buffer is given back, its
     statuses kept as one zero repeated when all are clean (no memory per codeword;
-    all_clean reads it once), else as a copy, the buffer zeroed again."""
+    all_clean reads it once), else as a copy, the buffer zeroed again. marked=False: the
+    kernel says it wrote no status (the linear kernels count the steps they corrected),
+    so the buffer is not scanned."""
     if status.base is None or status.base is not getattr(_scratch, "buffer", None):
-        return status  # allocated for this call alone
+        return status if marked else clean_statuses(status.shape)  # allocated for this call alone
     _scratch.lent = False
-    if not np.count_nonzero(status):
+    if not marked or not np.count_nonzero(status):
         return clean_statuses(status.shape)
     kept = status.copy()
     status[:] = 0
