@@ -89,3 +89,31 @@ def test_the_linear_kernels_count_of_corrected_steps_matches_the_numpy_twins_sta
             _, twin = small.decode(damaged, code.P, depth, layout(code, depth, len(message)).groups, lead_m, weight,
                                    len(message))
             assert np.count_nonzero(twin) and np.array_equal(status, twin)
+
+
+def test_taken_statuses_are_kept_tallied_and_the_buffer_given_back_zero() -> None:
+    # one pass copies a marked buffer out, counts it per row (as status_tally does) and
+    # clears it: rows that do not start on a word, FAILED among the marks, a row all FAILED
+    import bitmend.kernels.blockcode  # noqa: F401  (the compiled kernels, as when a kernel marked the buffer)
+    from bitmend.kernels.status import taken_statuses
+    from bitmend.kernels.tally import status_tally
+
+    rows, blocks = 70, 1001
+    status = status_buffer(rows * blocks)
+    rng = np.random.default_rng(4)
+    hit = rng.random(rows * blocks) < 0.03
+    status[hit] = rng.choice(np.array([1, 2, 3, FAILED], dtype=np.uint8), size=int(hit.sum()))
+    status[5 * blocks: 6 * blocks] = FAILED
+    want = np.array(status).reshape(rows, blocks)
+    kept, (counts, failed) = taken_statuses(status, rows, 4)
+    assert np.array_equal(kept.reshape(rows, blocks), want)
+    assert not status_buffer(rows * blocks).any()  # given back zero, not re-zeroed: it was not lent
+    kept_statuses(status_buffer(rows * blocks))
+    want_counts, want_failed = status_tally(want, 4)
+    assert np.array_equal(counts, want_counts) and counts[5].tolist() == [0, 0, blocks]
+    for i in range(rows):
+        listed = min(int(counts[i, 2]), 4)
+        assert failed[i, :listed].tolist() == np.flatnonzero(want[i] == FAILED)[:listed].tolist()
+    corrected = (want > 0) & (want < FAILED)
+    assert counts[:, 0].tolist() == corrected.sum(axis=1).tolist()
+    assert counts[:, 1].tolist() == np.where(corrected, want, 0).sum(axis=1).tolist()

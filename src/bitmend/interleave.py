@@ -24,8 +24,10 @@ from bitmend.codes.base import BlockCode
 from bitmend.codes.linear import BinaryLinearCode
 from bitmend.kernels import cyclic_small, small
 from bitmend.kernels.loader import SMALL_WORK_BITS, compiled, compiled_cyclic, compiled_loaded
-from bitmend.kernels.status import FAILED, kept_statuses, status_buffer
+from bitmend.kernels.status import FAILED, kept_statuses, status_buffer, taken_statuses
 from bitmend.once import once
+
+Tally = tuple[np.ndarray, np.ndarray]  # kernels.tally.status_tally's (counts per row, failed blocks per row)
 
 
 @dataclass(frozen=True)
@@ -250,26 +252,51 @@ def decode_segments(code: BlockCode, depth: int, coded: np.ndarray,
     (count, message_bytes) array, per-block status as a (count, blocks) array). Rows laid
     end to end are decoded in one call when their groups fill whole bytes (see
     encode_segments); otherwise row by row."""
+    messages, status, _ = decode_segments_tallied(code, depth, coded, message_bytes, None)
+    return messages, status
+
+
+def decode_segments_tallied(code: BlockCode, depth: int, coded: np.ndarray, message_bytes: int,
+                            listed: int | None) -> tuple[np.ndarray, np.ndarray, Tally | None]:
+    """decode_segments, and when the linear kernels marked statuses of rows decoded where
+    they lie, their tally (kernels.tally.status_tally with `listed` failed blocks a row),
+    made in the pass that gives the status buffer back; None otherwise (clean, or other
+    kernels: the caller counts the statuses)."""
     count = coded.shape[0]
     lay = layout(code, depth, message_bytes)
     padded = _padded_message_bytes(lay)
     if padded is not None and count and coded.shape[1] == lay.coded_bytes:
         row_steps = _linear_row_steps(code, lay, coded, decoding=True)
+        tally = None
         if row_steps is not None:  # the rows read where they lie: no gathered copy of them
-            message, status = _decode_linear(code.generic_engine, layout(code, depth, count * padded),
-                                             _row_span(coded), row_steps, coded.strides[0], count * padded)
+            message, status, tally = _decode_linear(code.generic_engine, layout(code, depth, count * padded),
+                                                    _row_span(coded), row_steps, coded.strides[0], count * padded,
+                                                    listed)
         else:
-            message, status = _decoded(code, depth, np.ascontiguousarray(coded).reshape(-1), count * padded)
+            message, status, tally = _decoded_tallied(code, depth, np.ascontiguousarray(coded).reshape(-1),
+                                                      count * padded, count, listed)
         if isinstance(message, bytes):
             message = np.frombuffer(message, dtype=np.uint8)
         messages = message.reshape(count, padded)[:, :message_bytes]
-        return messages, status.reshape(count, -1)
+        return messages, status.reshape(count, -1), tally
     messages = np.empty((count, message_bytes), dtype=np.uint8)
     status = np.empty((count, lay.blocks), dtype=np.uint8)
     for i in range(count):
         message, status[i] = decode_segment(code, depth, coded[i], message_bytes)
         messages[i] = np.frombuffer(message, dtype=np.uint8)
-    return messages, status
+    return messages, status, None
+
+
+def _decoded_tallied(code: BlockCode, depth: int, raw: np.ndarray, message_bytes: int, rows: int,
+                     listed: int | None) -> tuple[bytes | np.ndarray, np.ndarray, Tally | None]:
+    """_decoded of `rows` segments end to end, with their statuses' tally per row when the
+    fused kernels marked some (see decode_segments_tallied)."""
+    engine = code.generic_engine
+    lay = layout(code, depth, message_bytes)
+    if (listed is None or engine is None or depth != 1 and depth % 8
+            or not (compiled_loaded() or lay.coded_bits >= SMALL_WORK_BITS) or compiled(lay.coded_bits) is None):
+        return (*_decoded(code, depth, raw, message_bytes), None)
+    return _decode_fused(engine, lay, raw, message_bytes, (rows, listed))
 
 
 def _decode_engine(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
@@ -281,7 +308,7 @@ def _decode_engine(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
         lead_m, _, weight = code.leader_tables
         return small.decode(raw[: lay.coded_bytes], code.P, depth, lay.groups, lead_m, weight, message_bytes)
     if depth == 1 or depth % 8 == 0:
-        return _decode_fused(code, lay, raw, message_bytes)
+        return _decode_fused(code, lay, raw, message_bytes)[:2]
     return _decode_words(code, lay, raw, message_bytes)
 
 
@@ -538,14 +565,16 @@ def _encode_fused_words(code: BinaryLinearCode, lay: SegmentLayout, message: byt
     return out
 
 
-def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
-                  message_bytes: int) -> tuple[bytes | np.ndarray, np.ndarray]:
+def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, message_bytes: int,
+                  tally_rows: tuple[int, int] | None = None) -> tuple[bytes | np.ndarray, np.ndarray, Tally | None]:
+    """(message, statuses, tally): with tally_rows = (rows, listed), the statuses' tally
+    as that many rows when some were marked (taken_statuses), else None."""
     fused = _fused()
     plan = _plan(code, lay.depth)
     k, n = code.k, code.n
     if plan.decode_kind == "words":
-        return _decode_words(code, lay, raw, message_bytes)
-    if plan.decode_kind == "linear":  # gives its status buffer back itself
+        return (*_decode_words(code, lay, raw, message_bytes), None)
+    if plan.decode_kind == "linear":  # gives its status buffer back itself (rows decoded in place are tallied)
         steps = -(-lay.blocks // (8 * _octets_per_step(code)))
         return _decode_linear(code, lay, raw, steps, steps * _octets_per_step(code) * n, message_bytes)
     if plan.decode_kind == "pairs":
@@ -578,15 +607,20 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray,
         fused.decode_depth1(np.ascontiguousarray(raw), min(len(raw), lay.coded_bytes), lay.blocks, k, code.r,
                             plan.encode_table, plan.chunk_bits, plan.leader_message, plan.leader_weight, status,
                             out.view(np.uint8))
-    # every kind marked a status_buffer (linear: whole steps, past lay.blocks too)
-    return out.view(np.uint8)[:message_bytes], kept_statuses(status)[: lay.blocks]
+    # every kind here marked a status_buffer of lay.blocks statuses
+    message = out.view(np.uint8)[:message_bytes]
+    if tally_rows is not None and np.count_nonzero(status):
+        kept, tally = taken_statuses(status, *tally_rows)
+        return message, kept, tally
+    return message, kept_statuses(status, marked=tally_rows is None), None
 
 
 def _decode_linear(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, row_steps: int, row_stride: int,
-                   message_bytes: int) -> tuple[np.ndarray, np.ndarray]:
+                   message_bytes: int, listed: int | None = None) -> tuple[np.ndarray, np.ndarray, Tally | None]:
     """_decode_fused for the linear kind, its rows of row_steps table steps row_stride bytes
     apart in raw (one row: a plain segment; several: frames' coded payloads where they lie,
-    raw spanning the first row's start to the last row's end)."""
+    raw spanning the first row's start to the last row's end); and with `listed`, the
+    statuses' tally per row when some were marked (taken_statuses), else None."""
     plan = _plan(code, lay.depth)
     m, n = _octets_per_step(code), code.n
     steps = -(-lay.blocks // (8 * m))
@@ -596,7 +630,11 @@ def _decode_linear(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, 
     length = min(len(raw), lay.coded_bytes) if row_steps == steps else len(raw)
     marked = decode(raw, length, steps, row_steps, row_stride, m * code.k, m * n, code.k, code.r, plan.decode_table,
                     plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, out.view(np.uint8))
-    return out.view(np.uint8)[:message_bytes], kept_statuses(status, marked=bool(marked))[: lay.blocks]
+    message = out.view(np.uint8)[:message_bytes]
+    if listed is not None and marked and len(status) == lay.blocks:  # rows of whole steps: no padding statuses
+        kept, tally = taken_statuses(status, len(status) // (row_steps * 8 * m), listed)
+        return message, kept, tally
+    return message, kept_statuses(status, marked=bool(marked))[: lay.blocks], None
 
 
 # ---- codes with their own row kernels (BCH, Reed-Solomon) ------------------------------------------

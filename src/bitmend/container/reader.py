@@ -20,7 +20,7 @@ import numpy as np
 from bitarray import bitarray
 
 from bitmend.container import format as fmt
-from bitmend.interleave import decode_segment, decode_segments, decode_truncated
+from bitmend.interleave import decode_segment, decode_segments_tallied, decode_truncated
 from bitmend.kernels import small
 from bitmend.kernels.loader import compiled, compiled_loaded
 from bitmend.kernels.status import FAILED, all_clean
@@ -60,14 +60,19 @@ def _counts_of_run(status: np.ndarray) -> tuple[list[tuple[int, int, int]], dict
     if compiled_loaded():  # counts and failed positions, one sparse compiled pass over every row
         from bitmend.kernels.tally import status_tally
 
-        table, failed = status_tally(np.ascontiguousarray(status), MAX_LISTED_FAILED)
-        rows = table.tolist()
-        listed = {i: failed[i, :min(row[2], MAX_LISTED_FAILED)].tolist() for i, row in enumerate(rows) if row[2]}
-        return [CLEAN_COUNTS if row == [0, 0, 0] else tuple(row) for row in rows], listed
+        return _counts_of_tally(status_tally(np.ascontiguousarray(status), MAX_LISTED_FAILED))
     hit = np.flatnonzero(status.any(axis=1))
     for row, value in zip(hit.tolist(), run_block_counts(status[hit])):
         counts[row] = value
     return counts, {}
+
+
+def _counts_of_tally(tally: tuple[np.ndarray, np.ndarray]) -> tuple[list[tuple[int, int, int]], dict[int, list[int]]]:
+    """_counts_of_run's answer from kernels.tally.status_tally's (counts, failed) of a run."""
+    table, failed = tally
+    rows = table.tolist()
+    listed = {i: failed[i, :min(row[2], MAX_LISTED_FAILED)].tolist() for i, row in enumerate(rows) if row[2]}
+    return [CLEAN_COUNTS if row == [0, 0, 0] else tuple(row) for row in rows], listed
 
 
 def run_block_counts(status: np.ndarray) -> list[tuple[int, int, int]]:
@@ -255,8 +260,9 @@ def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedF
         first = members[0][2]
         coded = np.frombuffer(b"".join(blobs[i][payload_at: payload_at + first.coded_bytes] for i, _, _ in members),
                               dtype=np.uint8).reshape(len(members), first.coded_bytes)
-        messages, status = decode_segments(first.code, first.depth, coded, first.message_bytes)
-        counts, failed = _counts_of_run(status)
+        messages, status, tally = decode_segments_tallied(first.code, first.depth, coded, first.message_bytes,
+                                                          MAX_LISTED_FAILED)
+        counts, failed = _counts_of_run(status) if tally is None else _counts_of_tally(tally)
         _, payloads, crc_ok, authentic = checked_run([header for _, _, header in members], messages, key)
         for row, (i, place, header) in enumerate(members):
             found[i] = DecodedFrame(header, 0, 0, payloads[row], status[row], crc_ok[row], False, False,
@@ -540,8 +546,9 @@ class FrameScanner:
             submitted = self._submitted_run(bit, locked, coded, marker_distance)
             if submitted is not None:
                 return submitted
-        messages, block_status = decode_segments(expected.code, expected.depth, coded, expected.message_bytes)
-        counts, failed = _counts_of_run(block_status)
+        messages, block_status, tally = decode_segments_tallied(expected.code, expected.depth, coded,
+                                                                expected.message_bytes, MAX_LISTED_FAILED)
+        counts, failed = _counts_of_run(block_status) if tally is None else _counts_of_tally(tally)
         headers = locked.following(count)
         data, payloads, crc_ok, authentic = checked_run(headers, messages, self._key)
         frames = []

@@ -56,6 +56,21 @@ def kept_statuses(status: np.ndarray, marked: bool = True) -> np.ndarray:
     return kept
 
 
+def taken_statuses(status: np.ndarray, rows: int, listed: int) -> tuple[np.ndarray, tuple[np.ndarray, np.ndarray]]:
+    """kept_statuses of statuses a kernel did mark, with their tally (kernels.tally.status_tally
+    of them as `rows` rows, the first `listed` failed blocks of each): for this thread's
+    buffer, one compiled pass copies them out, counts them and leaves the buffer zero (a
+    separate scan, copy, clearing and tally read a damaged run's statuses four times)."""
+    from bitmend.kernels.tally import status_tally, tally_taken  # statuses are marked by compiled kernels
+
+    grid = status.reshape(rows, -1)
+    if status.base is None or status.base is not getattr(_scratch, "buffer", None):
+        return status, status_tally(np.ascontiguousarray(grid), listed)
+    _scratch.lent = False
+    kept = np.empty_like(status)
+    return kept, tally_taken(grid, listed, kept.reshape(rows, -1))
+
+
 def clean_statuses(shape: int | tuple[int, ...]) -> np.ndarray:
     """Statuses of codewords that were all clean: one zero repeated, read-only (a view of
     an immutable zero byte with all strides 0; np.broadcast_to makes the same in 6x the time)."""
