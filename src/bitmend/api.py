@@ -33,6 +33,7 @@ from bitmend.report import DecodeReport, FrameReport
 
 if TYPE_CHECKING:  # imported where used: a decoder needs neither the writer nor the definition parser
     from bitmend.container.writer import FrameWriter
+    import numpy as np
 
 __all__ = ["open", "Encoder", "Decoder", "encode_bytes", "decode_bytes", "Decoded", "load_code_file",
            "load_key_file", "KeyFileError", "NotAContainerError", "DamagedDataError"]
@@ -550,18 +551,44 @@ class Decoded:
 class _Pieces(io.RawIOBase):
     """A write-only sink that keeps what it is given and joins it once at the end: one copy
     of the container instead of a growing buffer's. Frame runs arrive as fresh arrays the
-    writer never touches again and are kept as they are; anything else is copied."""
+    writer never touches again and are kept as they are; anything else is copied.
+
+    Given the container's size beforehand (FrameWriter.container_bytes), it starts with a
+    bytes object of that size to fill (filled_bytes): the writer codes runs straight into
+    it (reserve) and smaller writes are copied in, so nothing is joined at the end. Any
+    write past that size goes to the pieces, so the result is right whatever the size."""
 
     whole_writes = True  # copies (or keeps) each write before returning; see batch_encode
 
     def __init__(self) -> None:
         super().__init__()
         self._pieces: list[bytes | memoryview] = []
+        self._filled: tuple[bytes, np.ndarray] | None = None
+        self._at = 0  # bytes of the filled object written so far
+
+    def expect(self, size: int | None) -> None:
+        """Start a bytes object of `size` bytes to fill (before the first write)."""
+        if size is not None and not self._pieces and not self._at:
+            from bitmend.filled_bytes import fillable_bytes  # numpy: not for a small file's encode
+
+            self._filled = fillable_bytes(size)
 
     def writable(self) -> bool:
         return True
 
+    def reserve(self, size: int) -> np.ndarray | None:
+        """The next `size` bytes of the output to write into directly, or None (write() them)."""
+        if self._filled is None or self._pieces or self._at + size > len(self._filled[0]):
+            return None
+        region = self._filled[1][self._at: self._at + size]
+        self._at += size
+        return region
+
     def write(self, data) -> int:
+        region = None if self._filled is None else self.reserve(len(data))
+        if region is not None:
+            memoryview(region)[:] = data
+            return len(data)
         if isinstance(data, bytes):
             self._pieces.append(data)
         elif type(data).__name__ == "ndarray" and data.flags.owndata:  # a frame run (format.encode_frames)
@@ -572,7 +599,12 @@ class _Pieces(io.RawIOBase):
         return len(data)
 
     def joined(self) -> bytes:
-        return b"".join(self._pieces)
+        if self._filled is None:
+            return b"".join(self._pieces)
+        blob, self._filled = self._filled[0], None  # the writable array goes before the bytes go out
+        if self._at == len(blob) and not self._pieces:
+            return blob
+        return b"".join([memoryview(blob)[: self._at], *self._pieces])
 
 
 def encode_bytes(data: bytes, code: CodeChoice = DEFAULT_CODE, depth: int = DEFAULT_DEPTH,
@@ -584,6 +616,7 @@ def encode_bytes(data: bytes, code: CodeChoice = DEFAULT_CODE, depth: int = DEFA
     repair 'R/K' adds R repair frames after every K data frames."""
     sink = _Pieces()
     with Encoder(sink, code, depth, frame_bytes, stream_id=stream_id, repair=repair, key=key, jobs=jobs) as enc:
+        sink.expect(enc._writer.container_bytes(len(data)))
         enc.write(data)
     return sink.joined()
 

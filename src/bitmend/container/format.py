@@ -545,10 +545,12 @@ def run_records(first: FrameHeader, count: int, lengths: np.ndarray | None = Non
     return records
 
 
-def encode_frames(first: FrameHeader, payloads: bytes | memoryview | np.ndarray, key: bytes | None = None) -> np.ndarray:
+def encode_frames(first: FrameHeader, payloads: bytes | memoryview | np.ndarray, key: bytes | None = None,
+                  out: np.ndarray | None = None) -> np.ndarray:
     """The frames of a run of full data frames (run_records), payloads back to back,
     first.length bytes each, as one uint8 array: the bytes encode_frame would give frame
-    by frame, made with one header-coding call and one payload-coding plan for all."""
+    by frame, made with one header-coding call and one payload-coding plan for all.
+    out: the uint8 array to make them in (count * first.frame_bytes), else a new one."""
     length = first.length
     flat = np.frombuffer(payloads, dtype=np.uint8) if not isinstance(payloads, np.ndarray) else payloads
     if length == 0 or len(flat) % length:
@@ -577,7 +579,9 @@ def encode_frames(first: FrameHeader, payloads: bytes | memoryview | np.ndarray,
     definition = (np.frombuffer(encode_definition(first.code, first.version), dtype=np.uint8)
                   if first.code_id == CUSTOM_CODE_ID else np.zeros(0, dtype=np.uint8))
     header_bytes, definition_bytes = first.header_bytes, first.definition_bytes
-    run = np.empty(count * first.frame_bytes, dtype=np.uint8)
+    run = np.empty(count * first.frame_bytes, dtype=np.uint8) if out is None else out
+    if len(run) != count * first.frame_bytes:
+        raise ValueError(f"{count} frames take {count * first.frame_bytes} bytes, out has {len(run)}")
     frames = run.reshape(count, first.frame_bytes)
     frames[:, : len(MARKER_BYTES)] = np.frombuffer(MARKER_BYTES, dtype=np.uint8)
     at = len(MARKER_BYTES)

@@ -125,16 +125,31 @@ class FrameWriter:
             self._batches.send_run(first, pending[: count * size])
         else:
             step = max(2, min(RUN_FRAMES, RUN_BYTES // size))  # bounds the run's arrays
+            reserve = getattr(self._sink, "reserve", None)  # a sink that gives the memory to code into
             for done in range(0, count, step):
                 take = min(step, count - done)
-                frames = fmt.encode_frames(first, pending[done * size: (done + take) * size], self._key)
-                self._sink.write(frames)
+                region = None if reserve is None else reserve(take * first.frame_bytes)
+                frames = fmt.encode_frames(first, pending[done * size: (done + take) * size], self._key, region)
+                if region is None:
+                    self._sink.write(frames)
                 self._bytes_written += len(frames)
                 first = replace(first, seq=(first.seq + take) % fmt.SEQ_MODULUS,
                                 position=(first.position + take * size) % (1 << fmt.POSITION_BITS))
         self._seq = (self._seq + count) % fmt.SEQ_MODULUS
         self._position += count * size
         return count * size
+
+    def container_bytes(self, payload_bytes: int) -> int | None:
+        """Bytes of the frames a new writer sends for payload_bytes written, then closed
+        (full frames, then the closing frame: a short one, or an empty one for no data);
+        None with repair frames, which this does not count."""
+        if self._group is not None:
+            return None
+        full, rest = divmod(payload_bytes, self._frame_bytes)
+        if rest == 0 and full:
+            full, rest = full - 1, self._frame_bytes  # the last full frame closes the stream
+        return (full * self._header(self._frame_bytes, False).frame_bytes
+                + self._header(rest, True).frame_bytes)
 
     def _send(self, header: fmt.FrameHeader, payload: bytes) -> None:
         if self._batches is not None:
