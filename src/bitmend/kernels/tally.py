@@ -69,18 +69,8 @@ def _tally(status, limit, kept, take):
         corrected = 0
         symbols = 0
         lost = 0
-        for j in range(begin, head_end):
-            s = flat[j]
-            if take:
-                copy[j] = s
-                flat[j] = 0
-            if s == FAILED:
-                if lost < limit:
-                    failed[row, lost] = j - begin
-                lost += 1
-            elif s:
-                corrected += 1
-                symbols += s
+        corrected, symbols, lost = _tally_bytes(flat, copy, take, begin, head_end, failed, row, begin, limit,
+                                                corrected, symbols, lost)
         for w in range(first_word, end_word):
             x = words[w]
             if take:
@@ -103,19 +93,28 @@ def _tally(status, limit, kept, take):
             pairs = (x & PAIRS) + ((x >> np.uint64(8)) & PAIRS)
             corrected += int(((nonzero >> np.uint64(7)) * ONES) >> np.uint64(56)) - gone
             symbols += int((pairs * LANES) >> np.uint64(48)) - FAILED * gone
-        for j in range(max(head_end, end_word * 8), end):
-            s = flat[j]
-            if take:
-                copy[j] = s
-                flat[j] = 0
-            if s == FAILED:
-                if lost < limit:
-                    failed[row, lost] = j - begin
-                lost += 1
-            elif s:
-                corrected += 1
-                symbols += s
+        corrected, symbols, lost = _tally_bytes(flat, copy, take, max(head_end, end_word * 8), end, failed, row,
+                                                begin, limit, corrected, symbols, lost)
         counts[row, 0] = corrected
         counts[row, 1] = symbols
         counts[row, 2] = lost
     return counts, failed
+
+
+@njit(cache=True)
+def _tally_bytes(flat, copy, take, start, stop, failed, row, begin, limit, corrected, symbols, lost):
+    """_tally's count of statuses start .. stop-1 one by one (a row's few statuses before
+    its first whole word and after its last); the row's counts so far in, updated out."""
+    for j in range(start, stop):
+        s = flat[j]
+        if take:
+            copy[j] = s
+            flat[j] = 0
+        if s == FAILED:
+            if lost < limit:
+                failed[row, lost] = j - begin
+            lost += 1
+        elif s:
+            corrected += 1
+            symbols += s
+    return corrected, symbols, lost
