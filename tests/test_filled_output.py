@@ -72,3 +72,18 @@ def test_frames_made_in_a_given_array_are_the_frames_made_alone() -> None:
     assert out.tobytes() == fmt.encode_frames(first, payloads).tobytes()
     with pytest.raises(ValueError, match="frames take"):
         fmt.encode_frames(first, payloads, out=out[:-1])
+
+
+def test_encode_bytes_codes_its_runs_straight_into_the_output(monkeypatch) -> None:
+    # the runs must be made in the output's memory (no run array, no copy), not copied in
+    made_in_place = []
+    real = fmt.encode_frames
+
+    def watched(first, payloads, key=None, out=None):
+        made_in_place.append(out is not None)
+        return real(first, payloads, key, out)
+
+    monkeypatch.setattr(fmt, "encode_frames", watched)
+    data = os.urandom(200_000)
+    assert bitmend.decode_bytes(bitmend.encode_bytes(data, stream_id=4)).data == data
+    assert made_in_place and all(made_in_place)

@@ -555,7 +555,7 @@ class _Pieces(io.RawIOBase):
 
     Given the container's size beforehand (FrameWriter.container_bytes), it starts with a
     bytes object of that size to fill (filled_bytes): the writer codes runs straight into
-    it (reserve) and smaller writes are copied in, so nothing is joined at the end. Any
+    it (reserve_frames) and smaller writes are copied in, so nothing is joined at the end. Any
     write past that size goes to the pieces, so the result is right whatever the size."""
 
     whole_writes = True  # copies (or keeps) each write before returning; see batch_encode
@@ -576,7 +576,7 @@ class _Pieces(io.RawIOBase):
     def writable(self) -> bool:
         return True
 
-    def reserve(self, size: int) -> np.ndarray | None:
+    def reserve_frames(self, size: int) -> np.ndarray | None:
         """The next `size` bytes of the output to write into directly, or None (write() them)."""
         if self._filled is None or self._pieces or self._at + size > len(self._filled[0]):
             return None
@@ -585,7 +585,7 @@ class _Pieces(io.RawIOBase):
         return region
 
     def write(self, data) -> int:
-        region = None if self._filled is None else self.reserve(len(data))
+        region = None if self._filled is None else self.reserve_frames(len(data))
         if region is not None:
             memoryview(region)[:] = data
             return len(data)

@@ -125,7 +125,7 @@ class FrameWriter:
             self._batches.send_run(first, pending[: count * size])
         else:
             step = max(2, min(RUN_FRAMES, RUN_BYTES // size))  # bounds the run's arrays
-            reserve = getattr(self._sink, "reserve", None)  # a sink that gives the memory to code into
+            reserve = getattr(self._sink, "reserve_frames", None)  # a sink that gives the memory to code into (api)
             for done in range(0, count, step):
                 take = min(step, count - done)
                 region = None if reserve is None else reserve(take * first.frame_bytes)
