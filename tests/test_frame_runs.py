@@ -154,17 +154,29 @@ def test_rows_decoded_where_they_lie_are_segment_by_segment(name: str, depth: in
     count, message_bytes, gap = 5, 3024, 37  # 3024 = 56 * 54: rows of whole steps for every shape here
     messages = np.frombuffer(os.urandom(count * message_bytes), dtype=np.uint8).reshape(count, message_bytes)
     coded = encode_segments(code, depth, messages).copy()
-    coded[np.random.default_rng(11).random(coded.shape) < 0.01] ^= np.uint8(0x10)  # some blocks fail
+    flips = np.random.default_rng(11).random((coded.shape[0], 8 * coded.shape[1])) < 0.03  # bit errors: some blocks fail
+    coded ^= np.packbits(flips, axis=1)
     width = coded.shape[1]
     store = np.full(count * (width + gap) - gap, 0xA5, dtype=np.uint8)
     rows = np.lib.stride_tricks.as_strided(store, shape=(count, width), strides=(width + gap, 1))
     rows[:] = coded
     assert interleave._linear_row_steps(code, interleave.layout(code, depth, message_bytes), rows, decoding=True)
-    got_messages, got_status = decode_segments(code, depth, rows, message_bytes)
+    got_messages, got_status, tally = interleave.decode_segments_tallied(code, depth, rows, message_bytes, 3)
     for i in range(count):
         want_message, want_status = decode_segment(code, depth, coded[i].tobytes(), message_bytes)
         assert got_messages[i].tobytes() == want_message
         assert np.array_equal(got_status[i], want_status)
+    # the kernel's own count of what it marked, row by row, is the count of the statuses
+    from bitmend.kernels.tally import status_tally
+
+    counts, failed = tally
+    want_counts, want_failed = status_tally(np.ascontiguousarray(got_status), 3)
+    assert np.array_equal(counts, want_counts) and (want_counts[:, 0] + want_counts[:, 2]).all()
+    if name in ("secded-8-4", "golay-24-12", "custom-11-7"):  # codes that detect what they cannot correct
+        assert want_counts[:, 2].all()  # (Hamming and Golay (23, 12) codes are perfect: they never fail)
+    for i in range(count):
+        listed = min(int(counts[i, 2]), 3)
+        assert np.array_equal(failed[i, :listed], want_failed[i, :listed])
     clean_messages, clean_status = decode_segments(code, depth, encode_segments(code, depth, messages), message_bytes)
     assert clean_messages.tobytes() == messages.tobytes() and not clean_status.any()
 

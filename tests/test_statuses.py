@@ -69,6 +69,12 @@ def test_a_kernel_that_corrected_nothing_is_taken_at_its_word() -> None:
     kept_statuses(status_buffer(SCRATCH_MIN))
     own = kept_statuses(np.zeros(10, dtype=np.uint8), marked=False)
     assert own.shape == (10,) and all_clean(own) and not own.flags.writeable
+    # marked=True: the kernel says it wrote statuses, so they are copied out without a scan
+    status = status_buffer(SCRATCH_MIN)
+    status[9] = 2
+    kept = kept_statuses(status, marked=True)
+    assert any(kept.strides) and kept[9] == 2 and not status_buffer(SCRATCH_MIN).any()
+    kept_statuses(status_buffer(SCRATCH_MIN))
 
 
 def test_the_linear_kernels_count_of_corrected_steps_matches_the_numpy_twins_statuses() -> None:

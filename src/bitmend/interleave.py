@@ -612,7 +612,7 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, m
     if tally_rows is not None and np.count_nonzero(status):
         kept, tally = taken_statuses(status, *tally_rows)
         return message, kept, tally
-    return message, kept_statuses(status, marked=tally_rows is None), None
+    return message, kept_statuses(status, marked=None if tally_rows is None else False), None
 
 
 def _decode_linear(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, row_steps: int, row_stride: int,
@@ -628,13 +628,17 @@ def _decode_linear(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, 
     out = _native(steps * 8 * m * code.k)
     decode = _fused().linear_decoder(m * n, plan.decode_table.shape[2])
     length = min(len(raw), lay.coded_bytes) if row_steps == steps else len(raw)
+    rows = -(-steps // row_steps)
+    counts = np.zeros((rows, 3), dtype=np.uint64)  # the kernel counts what it marks, row by row
+    failed = np.empty((rows, max(listed or 0, 1)), dtype=np.uint64)  # and lists the first failed blocks
     marked = decode(raw, length, steps, row_steps, row_stride, m * code.k, m * n, code.k, code.r, plan.decode_table,
-                    plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, out.view(np.uint8))
+                    plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, counts, failed,
+                    out.view(np.uint8))
     message = out.view(np.uint8)[:message_bytes]
-    if listed is not None and marked and len(status) == lay.blocks:  # rows of whole steps: no padding statuses
-        kept, tally = taken_statuses(status, len(status) // (row_steps * 8 * m), listed)
-        return message, kept, tally
-    return message, kept_statuses(status, marked=bool(marked))[: lay.blocks], None
+    kept = kept_statuses(status, marked=bool(marked))[: lay.blocks]
+    if listed is None or not marked or rows * row_steps * 8 * m != lay.blocks:  # rows of whole steps: no padding
+        return message, kept, None
+    return message, kept, (counts.view(np.int64), failed.view(np.int64))
 
 
 # ---- codes with their own row kernels (BCH, Reed-Solomon) ------------------------------------------

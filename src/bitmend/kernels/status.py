@@ -39,17 +39,17 @@ def status_buffer(size: int) -> np.ndarray:
     return buffer[:size]
 
 
-def kept_statuses(status: np.ndarray, marked: bool = True) -> np.ndarray:
+def kept_statuses(status: np.ndarray, marked: bool | None = None) -> np.ndarray:
     """The statuses a kernel marked in a status_buffer, as the caller may keep them. An
     array of the call's own is kept as it is; this thread's buffer is given back, its
     statuses kept as one zero repeated when all are clean (no memory per codeword;
-    all_clean reads it once), else as a copy, the buffer zeroed again. marked=False: the
-    kernel says it wrote no status (the linear kernels count the steps they corrected),
-    so the buffer is not scanned."""
+    all_clean reads it once), else as a copy, the buffer zeroed again. marked: whether
+    the kernel says it wrote a status (the linear kernels count the steps they corrected),
+    so the buffer is not scanned to find out; None: not known."""
     if status.base is None or status.base is not getattr(_scratch, "buffer", None):
-        return status if marked else clean_statuses(status.shape)  # allocated for this call alone
+        return clean_statuses(status.shape) if marked is False else status  # allocated for this call alone
     _scratch.lent = False
-    if not marked or not np.count_nonzero(status):
+    if marked is False or marked is None and not np.count_nonzero(status):
         return clean_statuses(status.shape)
     kept = status.copy()
     status[:] = 0
