@@ -41,3 +41,20 @@ def test_the_command_line_loads_numba_without_scipys_blas_and_a_library_user_kee
                              timeout=300)
         assert run.returncode == 0, run.stderr
         assert run.stdout.split() == [want, "True", "1.96"]
+
+
+ASK_PROBE = """
+import sys
+from bitmend.kernels import loader
+small = loader.compiled_unless_small(loader.SMALL_WORK_BITS - 1)
+print(small is None, loader._Tally.small_bits, "bitmend.kernels.blockcode" in sys.modules,
+      loader.compiled_unless_small(loader.SMALL_WORK_BITS) is not None)
+"""
+
+
+def test_asking_whether_compiled_kernels_are_open_leaves_small_work_uncounted():
+    # a path that only asks (interleave's in-place rows) must not count small work that
+    # the fallback path then counts again: the load would come at half the intended work
+    run = subprocess.run([sys.executable, "-c", ASK_PROBE], capture_output=True, text=True, timeout=300)
+    assert run.returncode == 0, run.stderr
+    assert run.stdout.split() == ["True", "0", "False", "True"]

@@ -585,7 +585,7 @@ class _Pieces(io.RawIOBase):
         return region
 
     def write(self, data) -> int:
-        region = None if self._filled is None else self.reserve_frames(len(data))
+        region = self.reserve_frames(len(data))
         if region is not None:
             memoryview(region)[:] = data
             return len(data)

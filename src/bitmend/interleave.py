@@ -23,7 +23,7 @@ import numpy as np
 from bitmend.codes.base import BlockCode
 from bitmend.codes.linear import BinaryLinearCode
 from bitmend.kernels import cyclic_small, small
-from bitmend.kernels.loader import SMALL_WORK_BITS, compiled, compiled_cyclic, compiled_loaded
+from bitmend.kernels.loader import compiled, compiled_cyclic, compiled_unless_small
 from bitmend.kernels.status import FAILED, kept_statuses, status_buffer, taken_statuses
 from bitmend.once import once
 
@@ -179,10 +179,8 @@ def _linear_row_steps(code: BlockCode, lay: SegmentLayout, rows: np.ndarray, dec
     Else None (the rows are gathered into, or copied out of, one segment)."""
     engine = code.generic_engine
     count, width = rows.shape
-    work = lay.coded_bits * count
     if (engine is None or rows.strides[1] != 1 or rows.strides[0] < width or lay.depth % 8 and lay.depth != 1
-            or not (compiled_loaded() or work >= SMALL_WORK_BITS)  # else the numpy twins (and their tally)
-            or compiled(work) is None):
+            or compiled_unless_small(lay.coded_bits * count) is None):
         return None
     plan = _plan(engine, lay.depth)
     m = _octets_per_step(engine)
@@ -258,10 +256,10 @@ def decode_segments(code: BlockCode, depth: int, coded: np.ndarray,
 
 def decode_segments_tallied(code: BlockCode, depth: int, coded: np.ndarray, message_bytes: int,
                             listed: int | None) -> tuple[np.ndarray, np.ndarray, Tally | None]:
-    """decode_segments, and when the linear kernels marked statuses of rows decoded where
-    they lie, their tally (kernels.tally.status_tally with `listed` failed blocks a row),
-    made in the pass that gives the status buffer back; None otherwise (clean, or other
-    kernels: the caller counts the statuses)."""
+    """decode_segments, and when the fused kernels marked statuses, their tally per row
+    (kernels.tally.status_tally's, with `listed` failed blocks a row): counted by the linear
+    kernels as they mark them, or in the pass that gives the status buffer back. None when
+    every block is clean or no fused kernel decoded the rows (the caller counts the statuses)."""
     count = coded.shape[0]
     lay = layout(code, depth, message_bytes)
     padded = _padded_message_bytes(lay)
@@ -294,7 +292,7 @@ def _decoded_tallied(code: BlockCode, depth: int, raw: np.ndarray, message_bytes
     engine = code.generic_engine
     lay = layout(code, depth, message_bytes)
     if (listed is None or engine is None or depth != 1 and depth % 8
-            or not (compiled_loaded() or lay.coded_bits >= SMALL_WORK_BITS) or compiled(lay.coded_bits) is None):
+            or compiled_unless_small(lay.coded_bits) is None):
         return (*_decoded(code, depth, raw, message_bytes), None)
     return _decode_fused(engine, lay, raw, message_bytes, (rows, listed))
 
@@ -574,7 +572,8 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, m
     k, n = code.k, code.n
     if plan.decode_kind == "words":
         return (*_decode_words(code, lay, raw, message_bytes), None)
-    if plan.decode_kind == "linear":  # gives its status buffer back itself (rows decoded in place are tallied)
+    if plan.decode_kind == "linear":  # gives its status buffer back itself; its tally only for rows decoded
+        # where they lie (decode_segments_tallied), so gathered rows are counted by the caller
         steps = -(-lay.blocks // (8 * _octets_per_step(code)))
         return _decode_linear(code, lay, raw, steps, steps * _octets_per_step(code) * n, message_bytes)
     if plan.decode_kind == "pairs":
@@ -625,7 +624,8 @@ def _decode_linear(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, 
     """_decode_fused for the linear kind, its rows of row_steps table steps row_stride bytes
     apart in raw (one row: a plain segment; several: frames' coded payloads where they lie,
     raw spanning the first row's start to the last row's end); and with `listed`, the
-    statuses' tally per row when some were marked (taken_statuses), else None."""
+    statuses' tally per row, which the kernel counts as it marks them, when some were
+    marked and the rows are whole steps, else None."""
     plan = _plan(code, lay.depth)
     m, n = _octets_per_step(code), code.n
     steps = -(-lay.blocks // (8 * m))

@@ -75,6 +75,17 @@ def _counts_of_tally(tally: tuple[np.ndarray, np.ndarray]) -> tuple[list[tuple[i
     return [CLEAN_COUNTS if row == [0, 0, 0] else tuple(row) for row in rows], listed
 
 
+def _decoded_run(header: fmt.FrameHeader, coded: np.ndarray) -> tuple[np.ndarray, np.ndarray,
+                                                                      list[tuple[int, int, int]], dict[int, list[int]]]:
+    """The coded payloads of frames shaped as header (rows of coded) decoded together:
+    (messages, statuses, block_counts per row, failed blocks of the rows that have some),
+    with the tally the kernels made where they made one."""
+    messages, status, tally = decode_segments_tallied(header.code, header.depth, coded, header.message_bytes,
+                                                      MAX_LISTED_FAILED)
+    counts, failed = _counts_of_run(status) if tally is None else _counts_of_tally(tally)
+    return messages, status, counts, failed
+
+
 def run_block_counts(status: np.ndarray) -> list[tuple[int, int, int]]:
     """block_counts of every row of a run's (frames, blocks) statuses, a few whole-array
     passes for all rows: a failed block's status is FAILED, a corrected one's its count."""
@@ -260,9 +271,7 @@ def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedF
         first = members[0][2]
         coded = np.frombuffer(b"".join(blobs[i][payload_at: payload_at + first.coded_bytes] for i, _, _ in members),
                               dtype=np.uint8).reshape(len(members), first.coded_bytes)
-        messages, status, tally = decode_segments_tallied(first.code, first.depth, coded, first.message_bytes,
-                                                          MAX_LISTED_FAILED)
-        counts, failed = _counts_of_run(status) if tally is None else _counts_of_tally(tally)
+        messages, status, counts, failed = _decoded_run(first, coded)
         _, payloads, crc_ok, authentic = checked_run([header for _, _, header in members], messages, key)
         for row, (i, place, header) in enumerate(members):
             found[i] = DecodedFrame(header, 0, 0, payloads[row], status[row], crc_ok[row], False, False,
@@ -546,9 +555,7 @@ class FrameScanner:
             submitted = self._submitted_run(bit, locked, coded, marker_distance)
             if submitted is not None:
                 return submitted
-        messages, block_status, tally = decode_segments_tallied(expected.code, expected.depth, coded,
-                                                                expected.message_bytes, MAX_LISTED_FAILED)
-        counts, failed = _counts_of_run(block_status) if tally is None else _counts_of_tally(tally)
+        messages, block_status, counts, failed = _decoded_run(expected, coded)
         headers = locked.following(count)
         data, payloads, crc_ok, authentic = checked_run(headers, messages, self._key)
         frames = []

@@ -52,6 +52,15 @@ def compiled(work_bits: int) -> tuple[ModuleType, ModuleType] | None:
     return None
 
 
+def compiled_unless_small(work_bits: int) -> tuple[ModuleType, ModuleType] | None:
+    """compiled(work_bits), but for small work not yet loaded for: None, and the work is
+    not added to the tally. For a caller that only asks whether a compiled path is open
+    before falling back to one that asks compiled() itself (the work counted once)."""
+    if _Tally.modules is None and not compiled_loaded() and work_bits < SMALL_WORK_BITS:
+        return None
+    return compiled(work_bits)
+
+
 def compiled_cyclic(work_bits: int) -> ModuleType | None:
     """kernels.cyclic (BCH and Reed-Solomon) on the same terms as compiled(): once numba
     is loaded anyway, or when work_bits is large; else None (use kernels.cyclic_small)."""

@@ -66,11 +66,8 @@ def _tally(status, limit, kept, take):
         first_word = (begin + 7) // 8
         end_word = max(first_word, end // 8)
         head_end = min(end, first_word * 8)
-        corrected = 0
-        symbols = 0
-        lost = 0
         corrected, symbols, lost = _tally_bytes(flat, copy, take, begin, head_end, failed, row, begin, limit,
-                                                corrected, symbols, lost)
+                                                0, 0, 0)
         for w in range(first_word, end_word):
             x = words[w]
             if take:
