@@ -19,6 +19,7 @@ from bitmend.container import reader
 from bitmend.container.writer import FrameWriter
 from bitmend import interleave
 from bitmend.interleave import decode_segment, decode_segments, encode_segment, encode_segments
+from bitmend.kernels.status import MarkedRows
 
 
 def frame_by_frame(first: fmt.FrameHeader, payloads: bytes, key: bytes | None = None) -> bytes:
@@ -145,16 +146,19 @@ def test_rows_coded_where_they_go_are_segment_by_segment_and_touch_nothing_else(
     assert encode_segments(code, depth, messages).tobytes() == rows.tobytes()
 
 
+@pytest.mark.parametrize("rate", [0.03, 0.002])
 @pytest.mark.parametrize("name, depth", LINEAR_SHAPES)
-def test_rows_decoded_where_they_lie_are_segment_by_segment(name: str, depth: int) -> None:
+def test_rows_decoded_where_they_lie_are_segment_by_segment(name: str, depth: int, rate: float) -> None:
     # the linear kernels read a run's coded payloads where they lie in the input, rows apart
     # (junk between them, the last row ending the buffer), every table shape (custom-11-7:
-    # the general loop); with damage, the messages and statuses are decode_segment's
+    # the general loop); with damage, the messages and statuses are decode_segment's. At
+    # 3% bit errors more than one codeword in 8 is marked (rep-3 aside): more than the
+    # kernel lists, so the statuses come as the array; at 0.2% as the listed marks
     code = _linear_code(name)
     count, message_bytes, gap = 5, 3024, 37  # 3024 = 56 * 54: rows of whole steps for every shape here
     messages = np.frombuffer(os.urandom(count * message_bytes), dtype=np.uint8).reshape(count, message_bytes)
     coded = encode_segments(code, depth, messages).copy()
-    flips = np.random.default_rng(11).random((coded.shape[0], 8 * coded.shape[1])) < 0.03  # bit errors: some blocks fail
+    flips = np.random.default_rng(11).random((coded.shape[0], 8 * coded.shape[1])) < rate  # bit errors
     coded ^= np.packbits(flips, axis=1)
     width = coded.shape[1]
     store = np.full(count * (width + gap) - gap, 0xA5, dtype=np.uint8)
@@ -162,6 +166,10 @@ def test_rows_decoded_where_they_lie_are_segment_by_segment(name: str, depth: in
     rows[:] = coded
     assert interleave._linear_row_steps(code, interleave.layout(code, depth, message_bytes), rows, decoding=True)
     got_messages, got_status, tally = interleave.decode_segments_tallied(code, depth, rows, message_bytes, 3)
+    if rate < 0.01:
+        assert isinstance(got_status, MarkedRows)
+    elif name != "rep-3":
+        assert isinstance(got_status, np.ndarray)
     for i in range(count):
         want_message, want_status = decode_segment(code, depth, coded[i].tobytes(), message_bytes)
         assert got_messages[i].tobytes() == want_message
@@ -172,7 +180,7 @@ def test_rows_decoded_where_they_lie_are_segment_by_segment(name: str, depth: in
     counts, failed = tally
     want_counts, want_failed = status_tally(np.ascontiguousarray(got_status), 3)
     assert np.array_equal(counts, want_counts) and (want_counts[:, 0] + want_counts[:, 2]).all()
-    if name in ("secded-8-4", "golay-24-12", "custom-11-7"):  # codes that detect what they cannot correct
+    if name in ("secded-8-4", "golay-24-12", "custom-11-7") and rate > 0.01:  # codes that detect what they cannot correct
         assert want_counts[:, 2].all()  # (Hamming and Golay (23, 12) codes are perfect: they never fail)
     for i in range(count):
         listed = min(int(counts[i, 2]), 3)

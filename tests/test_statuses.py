@@ -4,11 +4,13 @@ changes under it, and a buffer is always zero when it is lent again."""
 from __future__ import annotations
 
 import numpy as np
+import pytest
 
 import bitmend
 from bitmend.channel.bsc import flip_bits
 from bitmend.interleave import decode_segment, encode_segment
-from bitmend.kernels.status import FAILED, SCRATCH_MIN, all_clean, kept_statuses, status_buffer
+from bitmend.kernels.status import (FAILED, SCRATCH_MIN, MarkedRows, all_clean, kept_statuses, marked_rows,
+                                    status_buffer)
 
 
 def test_a_clean_buffer_is_kept_as_one_zero_and_a_marked_one_as_a_copy() -> None:
@@ -123,3 +125,27 @@ def test_taken_statuses_are_kept_tallied_and_the_buffer_given_back_zero() -> Non
     corrected = (want > 0) & (want < FAILED)
     assert counts[:, 0].tolist() == corrected.sum(axis=1).tolist()
     assert counts[:, 1].tolist() == np.where(corrected, want, 0).sum(axis=1).tolist()
+
+
+def test_marked_rows_are_the_statuses_and_the_buffer_is_given_back_zero() -> None:
+    # a run's statuses kept as the kernel's list of marks: each row, the whole run and every
+    # index read as the array would; the buffer is cleared at the marked places and lent
+    # again without a whole-buffer clearing (it is zero already)
+    rows, blocks = 4, SCRATCH_MIN // 2
+    status = status_buffer(rows * blocks)
+    places = np.array([3, 9, blocks + 1, 3 * blocks, 3 * blocks + blocks - 1], dtype=np.uint64)
+    values = np.array([1, FAILED, 2, 1, FAILED], dtype=np.uint64)
+    status[places.astype(np.intp)] = values
+    want = status.reshape(rows, blocks).copy()
+    kept = marked_rows(status, (places << np.uint64(8)) | values, rows)
+    assert not status.any()  # cleared where marked, before it is lent again
+    assert isinstance(kept, MarkedRows) and kept.shape == (rows, blocks) and len(kept) == rows
+    assert np.array_equal(np.asarray(kept), want)
+    for row, got in enumerate(kept):
+        assert len(got) == blocks and np.array_equal(np.asarray(got), want[row])
+    assert np.array_equal(np.asarray(kept[-1]), want[-1]) and not np.asarray(kept[2]).any()
+    with pytest.raises(IndexError):
+        kept[rows]
+    again = status_buffer(rows * blocks)
+    assert again.base is status.base and not again.any()
+    kept_statuses(again)

@@ -24,7 +24,7 @@ from bitmend.codes.base import BlockCode
 from bitmend.codes.linear import BinaryLinearCode
 from bitmend.kernels import cyclic_small, small
 from bitmend.kernels.loader import compiled, compiled_cyclic, compiled_unless_small
-from bitmend.kernels.status import FAILED, kept_statuses, status_buffer, taken_statuses
+from bitmend.kernels.status import FAILED, MarkedRows, kept_statuses, marked_rows, status_buffer, taken_statuses
 from bitmend.once import once
 
 Tally = tuple[np.ndarray, np.ndarray]  # kernels.tally.status_tally's (counts per row, failed blocks per row)
@@ -255,11 +255,13 @@ def decode_segments(code: BlockCode, depth: int, coded: np.ndarray,
 
 
 def decode_segments_tallied(code: BlockCode, depth: int, coded: np.ndarray, message_bytes: int,
-                            listed: int | None) -> tuple[np.ndarray, np.ndarray, Tally | None]:
+                            listed: int | None) -> tuple[np.ndarray, np.ndarray | MarkedRows, Tally | None]:
     """decode_segments, and when the fused kernels marked statuses, their tally per row
     (kernels.tally.status_tally's, with `listed` failed blocks a row): counted by the linear
     kernels as they mark them, or in the pass that gives the status buffer back. None when
-    every block is clean or no fused kernel decoded the rows (the caller counts the statuses)."""
+    every block is clean or no fused kernel decoded the rows (the caller counts the statuses).
+    The statuses of a run the linear kernels decoded with few marks come as MarkedRows
+    (indexed and iterated as the array; np.asarray makes it)."""
     count = coded.shape[0]
     lay = layout(code, depth, message_bytes)
     padded = _padded_message_bytes(lay)
@@ -276,7 +278,7 @@ def decode_segments_tallied(code: BlockCode, depth: int, coded: np.ndarray, mess
         if isinstance(message, bytes):
             message = np.frombuffer(message, dtype=np.uint8)
         messages = message.reshape(count, padded)[:, :message_bytes]
-        return messages, status.reshape(count, -1), tally
+        return messages, status if isinstance(status, MarkedRows) else status.reshape(count, -1), tally
     messages = np.empty((count, message_bytes), dtype=np.uint8)
     status = np.empty((count, lay.blocks), dtype=np.uint8)
     for i in range(count):
@@ -617,15 +619,19 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, m
 # counts and failed places of one row that nobody reads (segments decoded one at a time):
 # two arrays made per 16 KiB segment cost 8% of its decoding (hamming-7-4, measured)
 _UNREAD_TALLY = (np.zeros((1, 3), dtype=np.uint64), np.zeros((1, 1), dtype=np.uint64))
+_UNLISTED = np.zeros(1, dtype=np.uint64)  # marks nobody reads: the kernel counts them there and lists none
 
 
 def _decode_linear(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, row_steps: int, row_stride: int,
-                   message_bytes: int, listed: int | None = None) -> tuple[np.ndarray, np.ndarray, Tally | None]:
+                   message_bytes: int, listed: int | None = None
+                   ) -> tuple[np.ndarray, np.ndarray | MarkedRows, Tally | None]:
     """_decode_fused for the linear kind, its rows of row_steps table steps row_stride bytes
     apart in raw (one row: a plain segment; several: frames' coded payloads where they lie,
-    raw spanning the first row's start to the last row's end); and with `listed`, the
-    statuses' tally per row, which the kernel counts as it marks them, when some were
-    marked and the rows are whole steps, else None."""
+    raw spanning the first row's start to the last row's end). With `listed`, when the
+    rows are whole steps and some statuses were marked: the statuses' tally per row, which
+    the kernel counts as it marks them, and the statuses as MarkedRows when the kernel's
+    list of marks held them all (up to one mark per 8 codewords: no more memory than the
+    statuses), else as the array; otherwise no tally."""
     plan = _plan(code, lay.depth)
     m, n = _octets_per_step(code), code.n
     steps = -(-lay.blocks // (8 * m))
@@ -634,19 +640,25 @@ def _decode_linear(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, 
     decode = _fused().linear_decoder(m * n, plan.decode_table.shape[2])
     length = min(len(raw), lay.coded_bytes) if row_steps == steps else len(raw)
     rows = -(-steps // row_steps)
-    if listed is None and rows == 1:  # a segment alone, its tally not wanted: the kernel counts into scratch
-        counts, failed = _UNREAD_TALLY
+    tallied = listed is not None and rows * row_steps * 8 * m == lay.blocks  # rows of whole steps: no padding
+    if not tallied and rows == 1:  # a segment alone, its tally not wanted: the kernel counts into scratch
+        (counts, failed), marks = _UNREAD_TALLY, _UNLISTED
     else:
         counts = np.zeros((rows, 3), dtype=np.uint64)  # the kernel counts what it marks, row by row
         failed = np.empty((rows, max(listed or 0, 1)), dtype=np.uint64)  # and lists the first failed blocks
+        marks = np.empty(1 + max(lay.blocks // 8, 64), dtype=np.uint64) if tallied else _UNLISTED
+        marks[0] = 0  # the kernel counts its marks here
     marked = decode(raw, length, steps, row_steps, row_stride, m * code.k, m * n, code.k, code.r, plan.decode_table,
-                    plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, counts, failed,
+                    plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, marks, counts, failed,
                     out.view(np.uint8))
     message = out.view(np.uint8)[:message_bytes]
-    kept = kept_statuses(status, marked=bool(marked))[: lay.blocks]
-    if listed is None or not marked or rows * row_steps * 8 * m != lay.blocks:  # rows of whole steps: no padding
-        return message, kept, None
-    return message, kept, (counts.view(np.int64), failed.view(np.int64))
+    if not tallied or not marked:
+        return message, kept_statuses(status, marked=bool(marked))[: lay.blocks], None
+    tally = (counts.view(np.int64), failed.view(np.int64))
+    listed_marks = int(marks[0])
+    if listed_marks < len(marks):
+        return message, marked_rows(status, marks[1: 1 + listed_marks], rows), tally
+    return message, kept_statuses(status, marked=True), tally
 
 
 # ---- codes with their own row kernels (BCH, Reed-Solomon) ------------------------------------------

@@ -23,7 +23,7 @@ from bitmend.container import format as fmt
 from bitmend.interleave import decode_segment, decode_segments_tallied, decode_truncated
 from bitmend.kernels import small
 from bitmend.kernels.loader import compiled, compiled_loaded
-from bitmend.kernels.status import FAILED, all_clean
+from bitmend.kernels.status import FAILED, MarkedRow, all_clean
 from bitmend.once import once
 
 READ_CHUNK = 1 << 20
@@ -109,7 +109,9 @@ class DecodedFrame:
     offset: int  # byte offset of the frame's marker in the input (rounded down for bit slips)
     bit_offset: int  # exact bit offset
     payload: bytes | memoryview  # a memoryview only inside a FrameRun from items(): a slice of FrameRun.data
-    block_status: np.ndarray  # per block: 0 clean, w corrected, FAILED uncorrectable
+    # per block: 0 clean, w corrected, FAILED uncorrectable; for a run decoded with few marks,
+    # a MarkedRow of the blocks that are not 0 (np.asarray makes the array; len() is the same)
+    block_status: np.ndarray | MarkedRow
     crc_ok: bool
     truncated: bool = False  # the input ended inside the frame
     header_from_copy: bool = False  # the leading header was hit; the copy was used
@@ -119,7 +121,7 @@ class DecodedFrame:
 
     @once
     def _counts(self) -> tuple[int, int, int]:
-        return block_counts(self.block_status)  # once per frame: every count below reads it
+        return block_counts(np.asarray(self.block_status))  # once per frame: every count below reads it
 
     @property
     def corrected_blocks(self) -> int:
@@ -146,7 +148,7 @@ class DecodedFrame:
         line stays small however badly a frame is hit; failed_count has the total)."""
         if not self.failed_count:
             return []
-        return [int(i) for i in np.nonzero(self.block_status == FAILED)[0][:MAX_LISTED_FAILED]]
+        return [int(i) for i in np.nonzero(np.asarray(self.block_status) == FAILED)[0][:MAX_LISTED_FAILED]]
 
 
 @dataclass(frozen=True)

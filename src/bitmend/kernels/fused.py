@@ -633,8 +633,8 @@ def linear_encoder(k: int, nw: int):
 
 
 @njit(cache=True, no_cpython_wrapper=True)
-def _correct_step(x0, x1, x2, t, per, k, code_k, r, leader_message, leader_weight, status, counts_row, failed_row,
-                  row_first, limit):
+def _correct_step(x0, x1, x2, t, per, k, code_k, r, leader_message, leader_weight, status, marks, mark_limit,
+                  counts_row, failed_row, row_first, limit):
     """Correct the per codewords of a decoded step by their syndromes (r bits each from
     bit 8k), visiting only the non-zero ones: the next set syndrome bit is found by a
     leading-zero count, so a step with one bad codeword of 64 costs one correction.
@@ -642,11 +642,15 @@ def _correct_step(x0, x1, x2, t, per, k, code_k, r, leader_message, leader_weigh
     uint8 arrays (see load_be64: no arrays through helpers in hot loops). Not inlined:
     it runs only for damaged steps, and inlined it slowed the clean ones by a third.
 
-    Each status marked is also counted in its row's tally, as kernels.tally.status_tally
-    would count it, so a damaged run needs no count after: counts_row is the address of
-    the row's three uint64 counts (blocks corrected, symbols corrected, blocks failed),
-    failed_row that of its `limit` uint64 places of failed blocks (counted from the row's
-    first status, row_first)."""
+    Each status marked is also listed and counted, so that a damaged run's statuses need
+    no scan, copy or count after:
+    - marks is the address of 1 + mark_limit uint64: marks[0] counts the statuses marked,
+      and the i-th goes to marks[1 + i] as (codeword index << 8) | status while
+      i < mark_limit (the count goes on past the limit);
+    - counts_row is the address of the row's three uint64 counts (blocks corrected,
+      symbols corrected, blocks failed), as kernels.tally.status_tally would count them,
+      failed_row that of its `limit` uint64 places of failed blocks (counted from the
+      row's first status, row_first)."""
     start = 8 * k
     end = start + per * r
     pos = start
@@ -663,11 +667,16 @@ def _correct_step(x0, x1, x2, t, per, k, code_k, r, leader_message, leader_weigh
         weight = load_u8(leader_weight, s)
         if weight != FAILED:
             x0, x1, x2 = vector_xor(x0, x1, x2, q * code_k, code_k, load_u64(leader_message, s))
-        store_u8(status, per * t + q, weight)
+        index = per * t + q
+        store_u8(status, index, weight)
+        marked = load_u64(marks, 0)
+        if marked < U64(mark_limit):
+            store_u64(marks, marked + U64(1), (U64(index) << U64(8)) | U64(weight))
+        store_u64(marks, 0, marked + U64(1))
         if weight == FAILED:
             lost = load_u64(counts_row, 2)
             if lost < U64(limit):
-                store_u64(failed_row, lost, per * t + q - row_first)
+                store_u64(failed_row, lost, index - row_first)
             store_u64(counts_row, 2, lost + U64(1))
         else:
             store_u64(counts_row, 0, load_u64(counts_row, 0) + U64(1))
@@ -678,7 +687,7 @@ def _correct_step(x0, x1, x2, t, per, k, code_k, r, leader_message, leader_weigh
 
 @njit(cache=True)
 def decode_linear(in8, length, octets, row_steps, row_stride, k, n, code_k, r, table, syndrome_mask,
-                  leader_message, leader_weight, status, counts, failed, out8):
+                  leader_message, leader_weight, status, marks, counts, failed, out8):
     """Short codes decoded a step of whole octets at a time (n received bytes, k message
     bytes, per = 8k / code_k codewords): XOR over the n received bytes of table[pos, byte]
     gives the per received messages (bits 0 .. 8k-1, concatenated) and their syndromes
@@ -695,29 +704,33 @@ def decode_linear(in8, length, octets, row_steps, row_stride, k, n, code_k, r, t
     row_steps steps row_stride bytes apart (row_steps = octets, row_stride = octets * n:
     one plain segment). Messages and statuses go out in step order, rows end to end.
     Returns the number of steps that had a codeword to correct or give up on: none, and
-    status was not written. counts (uint64, zeroed, three per row of steps) and failed
-    (uint64, `limit` per row) get each row's tally (see _correct_step)."""
+    status was not written. marks (uint64, marks[0] zeroed) gets the number of statuses
+    marked and lists the first len(marks) - 1 of them in codeword order; counts (uint64,
+    zeroed, three per row of steps) and failed (uint64, `limit` per row) get each row's
+    tally (see _correct_step)."""
     return _decode_linear_steps(in8, length, 0, octets, row_steps, row_stride, k, n, code_k, r, table,
-                                syndrome_mask, leader_message, leader_weight, status, counts, failed,
+                                syndrome_mask, leader_message, leader_weight, status, marks, counts, failed,
                                 out8.ctypes.data)
 
 
 @njit(cache=True)
 def _decode_linear_steps(in8, length, first, octets, row_steps, row_stride, k, n, code_k, r, table, syndrome_mask,
-                         leader_message, leader_weight, status, counts, failed, out_address):
+                         leader_message, leader_weight, status, marks, counts, failed, out_address):
     """Steps first .. octets-1 of decode_linear, bytes past length read as zero; the
     number of them that had a codeword to correct."""
     per = 8 * k // code_k
     m0, m1, m2 = syndrome_mask[0], syndrome_mask[1], syndrome_mask[2]
     lm, lw, st = leader_message.ctypes.data, leader_weight.ctypes.data, status.ctypes.data
     limit = failed.shape[1]
+    ma, mark_limit = marks.ctypes.data, marks.shape[0] - 1
     marked = 0
     for t in range(first, octets):
         x0, x1, x2 = _linear_step(in8, length, row_offset(t, n, row_steps, row_stride), n, table, False)
         if (x0 & m0) | (x1 & m1) | (x2 & m2):
             marked += 1
             row = t // row_steps
-            x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st, counts.ctypes.data + U64(24 * row),
+            x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st, ma, mark_limit,
+                                       counts.ctypes.data + U64(24 * row),
                                        failed.ctypes.data + U64(8 * row * limit), row * row_steps * per, limit)
         _store_vector(out_address, t * k, x0, x1, x2, k)
     return marked
@@ -725,12 +738,13 @@ def _decode_linear_steps(in8, length, first, octets, row_steps, row_stride, k, n
 
 @njit(cache=True)
 def decode_linear_2x1(in8, length, octets, row_steps, row_stride, k, n, code_k, r, table, syndrome_mask,
-                      leader_message, leader_weight, status, counts, failed, out8):
+                      leader_message, leader_weight, status, marks, counts, failed, out8):
     """decode_linear for steps of two quads of lookups into one word (hamming-7-4, secded-8-4)."""
     per = 8 * k // code_k
     m0 = syndrome_mask[0]
     ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data  # once: see load_be64
     lm, lw, st = leader_message.ctypes.data, leader_weight.ctypes.data, status.ctypes.data
+    ma, mark_limit = marks.ctypes.data, marks.shape[0] - 1
     fast = _whole_row_steps(length, octets, n, 2, row_steps, row_stride)
     zero = U64(0)
     marked = 0
@@ -744,8 +758,8 @@ def decode_linear_2x1(in8, length, octets, row_steps, row_stride, k, n, code_k, 
             x0 = _quads(ta, ia, at, 2, 1, 0)
             if x0 & m0:
                 marked += 1
-                x0, _, _ = _correct_step(x0, zero, zero, t, per, k, code_k, r, lm, lw, st, counts_row, failed_row,
-                                         first * per, limit)
+                x0, _, _ = _correct_step(x0, zero, zero, t, per, k, code_k, r, lm, lw, st, ma, mark_limit, counts_row,
+                                         failed_row, first * per, limit)
             store_be64(out_address, t * k, x0)
             at += n
         first += row_steps
@@ -753,18 +767,19 @@ def decode_linear_2x1(in8, length, octets, row_steps, row_stride, k, n, code_k, 
         counts_row += U64(24)  # unsigned, as the addresses (a signed step would make them floats)
         failed_row += U64(8 * limit)
     return marked + _decode_linear_steps(in8, length, fast, octets, row_steps, row_stride, k, n, code_k, r, table,
-                                         syndrome_mask, leader_message, leader_weight, status, counts, failed,
+                                         syndrome_mask, leader_message, leader_weight, status, marks, counts, failed,
                                          out_address)
 
 
 @njit(cache=True)
 def decode_linear_4x2(in8, length, octets, row_steps, row_stride, k, n, code_k, r, table, syndrome_mask,
-                      leader_message, leader_weight, status, counts, failed, out8):
+                      leader_message, leader_weight, status, marks, counts, failed, out8):
     """decode_linear for steps of four quads into two words (hamming-15-11, secded-16-11)."""
     per = 8 * k // code_k
     m0, m1 = syndrome_mask[0], syndrome_mask[1]
     ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data  # once: see load_be64
     lm, lw, st = leader_message.ctypes.data, leader_weight.ctypes.data, status.ctypes.data
+    ma, mark_limit = marks.ctypes.data, marks.shape[0] - 1
     fast = _whole_row_steps(length, octets, n, 4, row_steps, row_stride)
     marked = 0
     first = 0
@@ -777,8 +792,8 @@ def decode_linear_4x2(in8, length, octets, row_steps, row_stride, k, n, code_k, 
             x0, x1, x2 = _unrolled_step(ta, ia, at, 4, 2)
             if (x0 & m0) | (x1 & m1):
                 marked += 1
-                x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st, counts_row, failed_row,
-                                           first * per, limit)
+                x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st, ma, mark_limit, counts_row,
+                                           failed_row, first * per, limit)
             _store_vector(out_address, t * k, x0, x1, x2, k)
             at += n
         first += row_steps
@@ -786,18 +801,19 @@ def decode_linear_4x2(in8, length, octets, row_steps, row_stride, k, n, code_k, 
         counts_row += U64(24)  # unsigned, as the addresses (a signed step would make them floats)
         failed_row += U64(8 * limit)
     return marked + _decode_linear_steps(in8, length, fast, octets, row_steps, row_stride, k, n, code_k, r, table,
-                                         syndrome_mask, leader_message, leader_weight, status, counts, failed,
+                                         syndrome_mask, leader_message, leader_weight, status, marks, counts, failed,
                                          out_address)
 
 
 @njit(cache=True)
 def decode_linear_6x3(in8, length, octets, row_steps, row_stride, k, n, code_k, r, table, syndrome_mask,
-                      leader_message, leader_weight, status, counts, failed, out8):
+                      leader_message, leader_weight, status, marks, counts, failed, out8):
     """decode_linear for steps of six quads into three words (rep-3, golay codes at depth 8)."""
     per = 8 * k // code_k
     m0, m1, m2 = syndrome_mask[0], syndrome_mask[1], syndrome_mask[2]
     ia, ta, out_address = in8.ctypes.data, table.ctypes.data, out8.ctypes.data  # once: see load_be64
     lm, lw, st = leader_message.ctypes.data, leader_weight.ctypes.data, status.ctypes.data
+    ma, mark_limit = marks.ctypes.data, marks.shape[0] - 1
     fast = _whole_row_steps(length, octets, n, 6, row_steps, row_stride)
     marked = 0
     first = 0
@@ -810,8 +826,8 @@ def decode_linear_6x3(in8, length, octets, row_steps, row_stride, k, n, code_k, 
             x0, x1, x2 = _unrolled_step(ta, ia, at, 6, 3)
             if (x0 & m0) | (x1 & m1) | (x2 & m2):
                 marked += 1
-                x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st, counts_row, failed_row,
-                                           first * per, limit)
+                x0, x1, x2 = _correct_step(x0, x1, x2, t, per, k, code_k, r, lm, lw, st, ma, mark_limit, counts_row,
+                                           failed_row, first * per, limit)
             _store_vector(out_address, t * k, x0, x1, x2, k)
             at += n
         first += row_steps
@@ -819,7 +835,7 @@ def decode_linear_6x3(in8, length, octets, row_steps, row_stride, k, n, code_k, 
         counts_row += U64(24)  # unsigned, as the addresses (a signed step would make them floats)
         failed_row += U64(8 * limit)
     return marked + _decode_linear_steps(in8, length, fast, octets, row_steps, row_stride, k, n, code_k, r, table,
-                                         syndrome_mask, leader_message, leader_weight, status, counts, failed,
+                                         syndrome_mask, leader_message, leader_weight, status, marks, counts, failed,
                                          out_address)
 
 
