@@ -141,3 +141,13 @@ def test_byte_transpose_moves_byte_j_of_row_i_to_byte_i_of_row_j():
     words = [np.uint64(int.from_bytes(rows[i].tobytes(), "big")) for i in range(8)]
     result = byte_transpose(*words)
     assert [int(w).to_bytes(8, "big") for w in result] == [rows[:, j].tobytes() for j in range(8)]
+
+
+def test_the_reciprocal_divides_every_syndrome_offset_a_step_can_have() -> None:
+    # the linear kernels find a syndrome bit's codeword as (x * reciprocal(r)) >> 16 in
+    # place of x // r: exact for every offset x below 192 bits (a step's width) and r below 192
+    from bitmend.kernels import fused
+
+    x = np.arange(192, dtype=np.int64)
+    for r in range(1, 192):
+        assert np.array_equal((x * fused.reciprocal(r)) >> 16, x // r), r

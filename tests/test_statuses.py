@@ -127,18 +127,18 @@ def test_taken_statuses_are_kept_tallied_and_the_buffer_given_back_zero() -> Non
     assert counts[:, 1].tolist() == np.where(corrected, want, 0).sum(axis=1).tolist()
 
 
-def test_marked_rows_are_the_statuses_and_the_buffer_is_given_back_zero() -> None:
-    # a run's statuses kept as the kernel's list of marks: each row, the whole run and every
-    # index read as the array would; the buffer is cleared at the marked places and lent
-    # again without a whole-buffer clearing (it is zero already)
+def test_marked_rows_are_the_statuses_and_the_buffer_is_given_back() -> None:
+    # a run's statuses kept as the kernel's list of marks (the kernel wrote none to the
+    # buffer): each row, the whole run and every index read as the array would; the
+    # buffer is given back for the next call, still zero
     rows, blocks = 4, SCRATCH_MIN // 2
     status = status_buffer(rows * blocks)
     places = np.array([3, 9, blocks + 1, 3 * blocks, 3 * blocks + blocks - 1], dtype=np.uint64)
     values = np.array([1, FAILED, 2, 1, FAILED], dtype=np.uint64)
-    status[places.astype(np.intp)] = values
-    want = status.reshape(rows, blocks).copy()
+    want = np.zeros(rows * blocks, dtype=np.uint8)
+    want[places.astype(np.intp)] = values
+    want = want.reshape(rows, blocks)
     kept = marked_rows(status, (places << np.uint64(8)) | values, rows)
-    assert not status.any()  # cleared where marked, before it is lent again
     assert isinstance(kept, MarkedRows) and kept.shape == (rows, blocks) and len(kept) == rows
     assert np.array_equal(np.asarray(kept), want)
     for row, got in enumerate(kept):

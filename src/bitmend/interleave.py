@@ -619,7 +619,7 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, m
 # counts and failed places of one row that nobody reads (segments decoded one at a time):
 # two arrays made per 16 KiB segment cost 8% of its decoding (hamming-7-4, measured)
 _UNREAD_TALLY = (np.zeros((1, 3), dtype=np.uint64), np.zeros((1, 1), dtype=np.uint64))
-_UNLISTED = np.zeros(1, dtype=np.uint64)  # marks nobody reads: the kernel counts them there and lists none
+_UNLISTED = np.zeros(1, dtype=np.uint64)  # a list of no marks: the kernel writes every status
 
 
 def _decode_linear(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, row_steps: int, row_stride: int,
@@ -642,23 +642,25 @@ def _decode_linear(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, 
     rows = -(-steps // row_steps)
     tallied = listed is not None and rows * row_steps * 8 * m == lay.blocks  # rows of whole steps: no padding
     if not tallied and rows == 1:  # a segment alone, its tally not wanted: the kernel counts into scratch
-        (counts, failed), marks = _UNREAD_TALLY, _UNLISTED
+        counts, failed = _UNREAD_TALLY
     else:
         counts = np.zeros((rows, 3), dtype=np.uint64)  # the kernel counts what it marks, row by row
         failed = np.empty((rows, max(listed or 0, 1)), dtype=np.uint64)  # and lists the first failed blocks
-        marks = np.empty(1 + max(lay.blocks // 8, 64), dtype=np.uint64) if tallied else _UNLISTED
+    if tallied:
+        marks = np.empty(1 + max(lay.blocks // 8, 64), dtype=np.uint64)
         marks[0] = 0  # the kernel counts its marks here
+    else:
+        marks = _UNLISTED  # nothing listed, every status written (the count there is never read)
     marked = decode(raw, length, steps, row_steps, row_stride, m * code.k, m * n, code.k, code.r, plan.decode_table,
                     plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, marks, counts, failed,
                     out.view(np.uint8))
     message = out.view(np.uint8)[:message_bytes]
-    if not tallied or not marked:
-        return message, kept_statuses(status, marked=bool(marked))[: lay.blocks], None
-    tally = (counts.view(np.int64), failed.view(np.int64))
-    listed_marks = int(marks[0])
-    if listed_marks < len(marks):
-        return message, marked_rows(status, marks[1: 1 + listed_marks], rows), tally
-    return message, kept_statuses(status, marked=True), tally
+    if not marked:
+        return message, kept_statuses(status, marked=False)[: lay.blocks], None
+    tally = (counts.view(np.int64), failed.view(np.int64)) if tallied else None
+    if tallied and int(marks[0]) < len(marks):  # every mark listed, none written to status
+        return message, marked_rows(status, marks[1: 1 + int(marks[0])], rows), tally
+    return message, kept_statuses(status, marked=True)[: lay.blocks], tally
 
 
 # ---- codes with their own row kernels (BCH, Reed-Solomon) ------------------------------------------
@@ -713,7 +715,8 @@ def _encode_rows_segment(code: BlockCode, lay: SegmentLayout, message: bytes) ->
     return _bit_stream(rows, lay.n, lay.depth, lay.coded_bytes, kernels)
 
 
-def _decode_rows_segment(code: BlockCode, lay: SegmentLayout, raw: np.ndarray, message_bytes: int) -> tuple[bytes, np.ndarray]:
+def _decode_rows_segment(code: BlockCode, lay: SegmentLayout, raw: np.ndarray,
+                         message_bytes: int) -> tuple[bytes, np.ndarray]:
     if lay.symbol_bits == 8:
         rows = _symbol_rows(raw, lay.groups, lay.depth, lay.n)
         status = code.decode_rows(rows)
