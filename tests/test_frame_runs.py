@@ -189,12 +189,46 @@ def test_rows_decoded_where_they_lie_are_segment_by_segment(name: str, depth: in
     assert clean_messages.tobytes() == messages.tobytes() and not clean_status.any()
 
 
+@pytest.mark.parametrize("rate", [0.03, 0.002])
+@pytest.mark.parametrize("name, depth", LINEAR_SHAPES)
+def test_rows_of_part_steps_are_decoded_together_and_tallied_from_their_marks(name: str, depth: int,
+                                                                                rate: float) -> None:
+    # rows whose codewords do not fill whole table steps (a default frame of rep-3 at depth
+    # 8: 16388 groups, 2048.5 steps) are decoded end to end as one segment; the statuses
+    # and tally per row, counted from the kernel's marks, are decode_segment's and
+    # status_tally's. 8 rows: rep-3's 8 x 3025 groups are whole steps together, not apart
+    from bitmend.kernels.tally import status_tally
+
+    code = _linear_code(name)
+    count, message_bytes = 8, 3025
+    messages = np.frombuffer(os.urandom(count * message_bytes), dtype=np.uint8).reshape(count, message_bytes)
+    coded = encode_segments(code, depth, messages).copy()
+    flips = np.random.default_rng(12).random((coded.shape[0], 8 * coded.shape[1])) < rate
+    coded ^= np.packbits(flips, axis=1)
+    got_messages, got_status, tally = interleave.decode_segments_tallied(code, depth, coded, message_bytes, 3)
+    if rate < 0.01 and interleave._padded_message_bytes(interleave.layout(code, depth, message_bytes)):
+        assert isinstance(got_status, MarkedRows) and tally is not None
+    want_status = []
+    for i in range(count):
+        want_message, status = decode_segment(code, depth, coded[i].tobytes(), message_bytes)
+        assert got_messages[i].tobytes() == want_message
+        assert np.array_equal(got_status[i], status)
+        want_status.append(status)
+    if tally is not None:
+        want_counts, want_failed = status_tally(np.ascontiguousarray(want_status), 3)
+        counts, failed = tally
+        assert np.array_equal(counts, want_counts) and (want_counts[:, 0] + want_counts[:, 2]).all()
+        for i in range(count):
+            listed = min(int(counts[i, 2]), 3)
+            assert np.array_equal(failed[i, :listed], want_failed[i, :listed])
+
+
 def _reports(container: bytes, key: bytes | None = None, jobs: int = 1) -> tuple[bytes, str]:
     out = bitmend.decode_bytes(container, key=key, jobs=jobs)
     return out.data, out.report.to_jsonl()
 
 
-@pytest.mark.parametrize("name, depth", [("hamming-7-4", 1), ("golay-24-12", 8), ("secded-72-64", 8)])
+@pytest.mark.parametrize("name, depth", [("hamming-7-4", 1), ("golay-24-12", 8), ("secded-72-64", 8), ("rep-3", 8)])
 def test_runs_decode_as_frame_by_frame_on_a_damaged_stream(monkeypatch, name: str, depth: int) -> None:
     # random bit errors everywhere, one frame's leading header wrecked (its copy is used),
     # one frame cut out (lost) and some bytes slipped in: with runs on, the data, every
@@ -316,6 +350,22 @@ def test_a_runs_clean_reports_are_the_constructors() -> None:
             for seq, offset, blocks, out, size in ((9, 0, 40, 100, 200), (10, 700, 41, 300, 201))]
     assert quick == made and [r.to_json() for r in quick] == [r.to_json() for r in made]
     assert quick[0].failed_blocks is not quick[1].failed_blocks
+
+
+def test_a_runs_mixed_reports_are_the_constructors() -> None:
+    # FrameReport.run_frames copies one filled-in record per frame and sets every field a
+    # run's frame may vary in: each report must equal the constructor's
+    from bitmend.report import FrameReport
+
+    quick = FrameReport.run_frames([9, 10, 11], [0, 700, 1400], ["clean", "corrected", "damaged"], [40, 41, 42],
+                                   [(0, 0, 0), (3, 4, 0), (1, 1, 2)], [[], [], [5, 6]], [True, True, False],
+                                   [100, 300, 501], [200, 201, 202], "00000000000000cd", 2)
+    made = [FrameReport(9, 0, "clean", 40, 0, 0, [], True, 100, 200, stream="00000000000000cd", stream_index=2),
+            FrameReport(10, 700, "corrected", 41, 3, 4, [], True, 300, 201, stream="00000000000000cd",
+                        stream_index=2),
+            FrameReport(11, 1400, "damaged", 42, 1, 1, [5, 6], False, 501, 202, failed_count=2,
+                        stream="00000000000000cd", stream_index=2)]
+    assert quick == made and [r.to_json() for r in quick] == [r.to_json() for r in made]
 
 
 def test_the_run_key_of_a_header_follows_its_flags_and_copies() -> None:

@@ -138,7 +138,7 @@ def test_marked_rows_are_the_statuses_and_the_buffer_is_given_back() -> None:
     want = np.zeros(rows * blocks, dtype=np.uint8)
     want[places.astype(np.intp)] = values
     want = want.reshape(rows, blocks)
-    kept = marked_rows(status, (places << np.uint64(8)) | values, rows)
+    kept = marked_rows(status, (places << np.uint64(8)) | values, rows, rows * blocks)
     assert isinstance(kept, MarkedRows) and kept.shape == (rows, blocks) and len(kept) == rows
     assert np.array_equal(np.asarray(kept), want)
     for row, got in enumerate(kept):
@@ -149,3 +149,27 @@ def test_marked_rows_are_the_statuses_and_the_buffer_is_given_back() -> None:
     again = status_buffer(rows * blocks)
     assert again.base is status.base and not again.any()
     kept_statuses(again)
+
+
+def test_the_tally_of_marked_rows_is_the_tally_of_their_statuses() -> None:
+    # MarkedRows.tally counts from the marks what kernels.tally.status_tally counts from
+    # the array: corrected blocks and symbols, failed blocks, the first `listed` failed
+    # places of each row; marks past the rows (padding) are not counted
+    from bitmend.kernels.tally import status_tally
+
+    rng = np.random.default_rng(3)
+    rows, blocks, listed = 6, 5000, 3
+    status = np.zeros(rows * blocks + 40, dtype=np.uint8)
+    places = np.sort(rng.choice(len(status), 900, replace=False))
+    status[places] = rng.choice([1, 2, 3, FAILED], size=len(places), p=[0.5, 0.2, 0.1, 0.2])
+    status[2 * blocks: 3 * blocks] = 0  # a clean row
+    places = np.flatnonzero(status).astype(np.uint64)
+    marks = (places << np.uint64(8)) | status[places.astype(np.intp)].astype(np.uint64)
+    kept = marked_rows(status_buffer(len(status)), marks, rows, rows * blocks)
+    counts, failed = kept.tally(listed)
+    want_counts, want_failed = status_tally(status[: rows * blocks].reshape(rows, blocks).copy(), listed)
+    assert np.array_equal(counts, want_counts) and counts[:, 2].min() == 0 and counts[:, 2].max() > listed
+    for row in range(rows):
+        shown = min(int(counts[row, 2]), listed)
+        assert np.array_equal(failed[row, :shown], want_failed[row, :shown])
+    assert np.array_equal(np.asarray(kept), status[: rows * blocks].reshape(rows, blocks))

@@ -574,10 +574,10 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, m
     k, n = code.k, code.n
     if plan.decode_kind == "words":
         return (*_decode_words(code, lay, raw, message_bytes), None)
-    if plan.decode_kind == "linear":  # gives its status buffer back itself; its tally only for rows decoded
-        # where they lie (decode_segments_tallied), so gathered rows are counted by the caller
+    if plan.decode_kind == "linear":  # gives its status buffer back itself, and tallies its marks
         steps = -(-lay.blocks // (8 * _octets_per_step(code)))
-        return _decode_linear(code, lay, raw, steps, steps * _octets_per_step(code) * n, message_bytes)
+        rows, listed = tally_rows if tally_rows is not None else (1, None)
+        return _decode_linear(code, lay, raw, steps, steps * _octets_per_step(code) * n, message_bytes, listed, rows)
     if plan.decode_kind == "pairs":
         status = status_buffer(lay.blocks)
         out = _native(lay.blocks * k)
@@ -623,15 +623,19 @@ _UNLISTED = np.zeros(1, dtype=np.uint64)  # a list of no marks: the kernel write
 
 
 def _decode_linear(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, row_steps: int, row_stride: int,
-                   message_bytes: int, listed: int | None = None
+                   message_bytes: int, listed: int | None = None, frames: int | None = None
                    ) -> tuple[np.ndarray, np.ndarray | MarkedRows, Tally | None]:
     """_decode_fused for the linear kind, its rows of row_steps table steps row_stride bytes
     apart in raw (one row: a plain segment; several: frames' coded payloads where they lie,
-    raw spanning the first row's start to the last row's end). With `listed`, when the
-    rows are whole steps and some statuses were marked: the statuses' tally per row, which
-    the kernel counts as it marks them, and the statuses as MarkedRows when the kernel's
-    list of marks held them all (up to one mark per 8 codewords: no more memory than the
-    statuses), else as the array; otherwise no tally."""
+    raw spanning the first row's start to the last row's end).
+
+    With `listed`, when some statuses were marked: the statuses' tally per frame (the
+    rows, or `frames` equal parts of a plain segment: frames' payloads gathered end to
+    end), with `listed` failed blocks each, and the statuses as MarkedRows when the
+    kernel's list of marks held them all (up to one mark per 8 codewords: no more memory
+    than the statuses), else as the array. The kernel counts the tally as it marks, row
+    by row, when its rows are the frames and whole steps; else it is counted from the
+    marks; else (too many to list) it is None, as without `listed`."""
     plan = _plan(code, lay.depth)
     m, n = _octets_per_step(code), code.n
     steps = -(-lay.blocks // (8 * m))
@@ -640,13 +644,14 @@ def _decode_linear(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, 
     decode = _fused().linear_decoder(m * n, plan.decode_table.shape[2])
     length = min(len(raw), lay.coded_bytes) if row_steps == steps else len(raw)
     rows = -(-steps // row_steps)
-    tallied = listed is not None and rows * row_steps * 8 * m == lay.blocks  # rows of whole steps: no padding
-    if not tallied and rows == 1:  # a segment alone, its tally not wanted: the kernel counts into scratch
+    parts = frames or rows  # the rows of the statuses and tally
+    kernel_rows = parts == rows and rows * row_steps * 8 * m == lay.blocks  # whole steps (no padding): tallied
+    if listed is None and rows == 1:  # a segment alone, its tally not wanted: the kernel counts into scratch
         counts, failed = _UNREAD_TALLY
     else:
         counts = np.zeros((rows, 3), dtype=np.uint64)  # the kernel counts what it marks, row by row
         failed = np.empty((rows, max(listed or 0, 1)), dtype=np.uint64)  # and lists the first failed blocks
-    if tallied:
+    if listed is not None:
         marks = np.empty(1 + max(lay.blocks // 8, 64), dtype=np.uint64)
         marks[0] = 0  # the kernel counts its marks here
     else:
@@ -657,10 +662,11 @@ def _decode_linear(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, 
     message = out.view(np.uint8)[:message_bytes]
     if not marked:
         return message, kept_statuses(status, marked=False)[: lay.blocks], None
-    tally = (counts.view(np.int64), failed.view(np.int64)) if tallied else None
-    if tallied and int(marks[0]) < len(marks):  # every mark listed, none written to status
-        return message, marked_rows(status, marks[1: 1 + int(marks[0])], rows), tally
-    return message, kept_statuses(status, marked=True)[: lay.blocks], tally
+    kernel_tally = (counts.view(np.int64), failed.view(np.int64)) if listed is not None and kernel_rows else None
+    if listed is None or int(marks[0]) >= len(marks):  # statuses written to the array
+        return message, kept_statuses(status, marked=True)[: lay.blocks], kernel_tally
+    kept = marked_rows(status, marks[1: 1 + int(marks[0])], parts, lay.blocks)
+    return message, kept, kernel_tally if kernel_tally is not None else kept.tally(listed)
 
 
 # ---- codes with their own row kernels (BCH, Reed-Solomon) ------------------------------------------

@@ -88,6 +88,38 @@ class FrameReport:
         return reports
 
     @classmethod
+    def run_frames(cls, seqs: list[int], offsets: list[int], statuses: list[str], blocks: list[int],
+                   counts: list[tuple[int, int, int]], failed_blocks: list[list[int]], crc_oks: list[bool],
+                   out_offsets: list[int], sizes: list[int], stream: str | None,
+                   stream_index: int) -> list["FrameReport"]:
+        """of_frame of each frame of a run, any status (not truncated, reordered or
+        closing), i-th from the i-th of each list; counts are (corrected blocks, corrected
+        symbols, failed blocks). As clean_frames: a record copied, its per-frame fields
+        set (of_frame's sixteen arguments and dict cost twice as much, measured)."""
+        model = cls.of_frame(0, 0, CLEAN, 0, 0, 0, [], True, 0, 0, False, 0, stream, stream_index, False,
+                             False).__dict__
+        new, set_fields = object.__new__, object.__setattr__
+        reports = []
+        for seq, offset, status, count, (corrected_blocks, symbols, failed_count), failed, crc_ok, out_offset, size \
+                in zip(seqs, offsets, statuses, blocks, counts, failed_blocks, crc_oks, out_offsets, sizes):
+            fields = model.copy()
+            fields["seq"] = seq
+            fields["offset"] = offset
+            fields["status"] = status
+            fields["blocks"] = count
+            fields["corrected_blocks"] = corrected_blocks
+            fields["corrected_symbols"] = symbols
+            fields["failed_blocks"] = failed
+            fields["crc_ok"] = crc_ok
+            fields["out_offset"] = out_offset
+            fields["bytes"] = size
+            fields["failed_count"] = failed_count
+            report = new(cls)
+            set_fields(report, "__dict__", fields)
+            reports.append(report)
+        return reports
+
+    @classmethod
     def _of_fields(cls, fields: dict) -> "FrameReport":
         """The report holding `fields` (every field, by name) as its own __dict__."""
         report = object.__new__(cls)

@@ -194,31 +194,32 @@ class Assembler:
                      stream_index: int) -> list[FrameReport]:
         """The reports of a run's frames, some of them corrected or damaged, counted."""
         c = self._counts
-        out = c.bytes_out
-        reports = []
+        statuses, counts, failed_blocks, sizes = [], [], [], []
         for frame in frames:
-            counts = frame._counts
-            size = len(frame.payload)
-            if frame.crc_ok and (counts is CLEAN_COUNTS or counts == CLEAN_COUNTS):
-                reports.append(FrameReport.of_frame(frame.header.seq, frame.offset, CLEAN, len(frame.block_status),
-                                                    0, 0, [], True, out, size, False, 0, stream_name,
-                                                    stream_index, False, False))
+            frame_counts = frame._counts
+            if frame.crc_ok and (frame_counts is CLEAN_COUNTS or frame_counts == CLEAN_COUNTS):
+                statuses.append(CLEAN)
+                counts.append(CLEAN_COUNTS)
+                failed_blocks.append([])
                 c.clean += 1
             else:
-                status = CORRECTED if frame.crc_ok else DAMAGED
-                reports.append(FrameReport.of_frame(frame.header.seq, frame.offset, status,
-                                                    len(frame.block_status), counts[0], counts[1],
-                                                    frame.failed_blocks, frame.crc_ok, out, size, False, counts[2],
-                                                    stream_name, stream_index, False, False))
+                statuses.append(CORRECTED if frame.crc_ok else DAMAGED)
+                counts.append(frame_counts)
+                failed_blocks.append(frame.failed_blocks)
                 if frame.crc_ok:
                     c.corrected += 1
                 else:
                     c.damaged += 1
-                c.corrected_symbols += counts[1]
-                c.failed_blocks += counts[2]
-            out += size
+                c.corrected_symbols += frame_counts[1]
+                c.failed_blocks += frame_counts[2]
+            sizes.append(len(frame.payload))
+        reports = FrameReport.run_frames([frame.header.seq for frame in frames], [frame.offset for frame in frames],
+                                         statuses, [len(frame.block_status) for frame in frames], counts,
+                                         failed_blocks, [frame.crc_ok for frame in frames],
+                                         list(accumulate(sizes[:-1], initial=c.bytes_out)), sizes, stream_name,
+                                         stream_index)
         c.frames += len(frames)
-        c.bytes_out = out
+        c.bytes_out += sum(sizes)
         return reports
 
     def _lost(self, run: LostRun) -> Iterator[Piece]:

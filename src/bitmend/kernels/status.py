@@ -58,28 +58,30 @@ def kept_statuses(status: np.ndarray, marked: bool | None = None) -> np.ndarray:
     return kept
 
 
-def marked_rows(status: np.ndarray, marks: np.ndarray, rows: int) -> "MarkedRows":
-    """The statuses of a status_buffer's codewords that a kernel listed as marks
-    ((codeword index << 8) | status, indexes ascending) and did not write (the buffer is
-    still zero, and is given back), as `rows` rows. A run of hamming-7-4 at p = 1e-3 marks
-    one status in 150 (a 1 MiB run: 14,000 of 2.4 million): written to the buffer, each
+def marked_rows(status: np.ndarray, marks: np.ndarray, rows: int, blocks: int) -> "MarkedRows":
+    """The statuses of a status_buffer's first `blocks` codewords, which a kernel listed as
+    marks ((codeword index << 8) | status, ascending) and did not write (the buffer is
+    still zero, and is given back), as `rows` equal rows. A run of hamming-7-4 at p = 1e-3 marks one
+    status in 150 (a 1 MiB run: 14,000 of 2.4 million): written to the buffer, each
     missed the cache, and then the whole buffer was copied and cleared."""
     if status.base is not None and status.base is getattr(_scratch, "buffer", None):
         _scratch.lent = False
-    return MarkedRows(len(status) // rows, rows, (marks >> np.uint64(8)).astype(np.intp),
-                      (marks & np.uint64(0xFF)).astype(np.uint8))
+    return MarkedRows(blocks // rows, rows, marks)
 
 
 class MarkedRows:
-    """A run's statuses, `rows` rows of `blocks`, given by the few that are not 0: their
-    places in the run (ascending) and statuses. Indexed and iterated like the (rows,
-    blocks) status array, row by row as MarkedRow; np.asarray makes the array."""
+    """A run's statuses, `rows` rows of `blocks`, given by the few that are not 0: marks
+    ((codeword index in the run << 8) | status, ascending). Indexed and iterated like the
+    (rows, blocks) status array, row by row as MarkedRow; np.asarray makes the array.
+    Nothing is unpacked until a row's array is asked for (the reader never asks: the
+    kernels count what a frame's report needs)."""
 
-    __slots__ = ("blocks", "places", "values", "_bounds")
+    __slots__ = ("blocks", "marks", "_bounds")
 
-    def __init__(self, blocks: int, rows: int, places: np.ndarray, values: np.ndarray) -> None:
-        self.blocks, self.places, self.values = blocks, places, values
-        self._bounds = np.searchsorted(places, np.arange(rows + 1) * blocks).tolist()  # row i: [i] .. [i + 1]
+    def __init__(self, blocks: int, rows: int, marks: np.ndarray) -> None:
+        self.blocks, self.marks = blocks, marks
+        starts = (np.arange(rows + 1, dtype=np.uint64) * np.uint64(blocks)) << np.uint64(8)
+        self._bounds = np.searchsorted(marks, starts).tolist()  # row i's marks: [i] .. [i + 1]
 
     @property
     def shape(self) -> tuple[int, int]:
@@ -96,14 +98,39 @@ class MarkedRows:
     def __iter__(self):
         return map(MarkedRow, [self] * len(self), range(len(self)))  # made per frame: no per-row call here
 
+    def tally(self, listed: int) -> tuple[np.ndarray, np.ndarray]:
+        """kernels.tally.status_tally of the rows, from the marks: (counts, failed), counts
+        (rows, 3) int64 of blocks corrected, symbols corrected and blocks failed, failed
+        (rows, w) int64 with row i's first min(counts[i, 2], listed) failed places in
+        it, w = 1 or the most any row needs (the rest is not to be read)."""
+        bounds = np.asarray(self._bounds)
+        values = (self.marks[: bounds[-1]] & np.uint64(0xFF)).astype(np.int64)
+        lost = values == FAILED
+        lost_before = np.concatenate(([0], np.cumsum(lost)))[bounds]  # failed marks before each row's first
+        symbols_before = np.concatenate(([0], np.cumsum(np.where(lost, 0, values))))[bounds]
+        counts = np.empty((len(self), 3), dtype=np.int64)
+        counts[:, 2] = np.diff(lost_before)
+        counts[:, 0] = np.diff(bounds) - counts[:, 2]
+        counts[:, 1] = np.diff(symbols_before)
+        width = min(listed, int(counts[:, 2].max(initial=0)))
+        failed = np.zeros((len(self), max(width, 1)), dtype=np.int64)
+        if width:
+            places = (self.marks[: bounds[-1]][lost] >> np.uint64(8)).astype(np.int64)
+            lost_rows = np.repeat(np.arange(len(self)), counts[:, 2])
+            rank = np.arange(len(places)) - lost_before[lost_rows]  # place among its row's failures
+            first = rank < width
+            failed[lost_rows[first], rank[first]] = (places - lost_rows * self.blocks)[first]
+        return counts, failed
+
     def row_marks(self, row: int) -> tuple[np.ndarray, np.ndarray]:
         """The places (from the row's first codeword) and statuses of the row's marks."""
-        first, end = self._bounds[row], self._bounds[row + 1]
-        return self.places[first:end] - row * self.blocks, self.values[first:end]
+        marks = self.marks[self._bounds[row]: self._bounds[row + 1]]
+        return (marks >> np.uint64(8)).astype(np.intp) - row * self.blocks, (marks & np.uint64(0xFF)).astype(np.uint8)
 
     def __array__(self, dtype=None, copy=None) -> np.ndarray:
         status = np.zeros(len(self) * self.blocks, dtype=np.uint8)
-        status[self.places] = self.values
+        marks = self.marks[: self._bounds[-1]]  # the rows' own: none past them
+        status[(marks >> np.uint64(8)).astype(np.intp)] = marks & np.uint64(0xFF)
         status = status.reshape(self.shape)
         return status if dtype is None else status.astype(dtype, copy=False)
 
