@@ -640,6 +640,30 @@ def reciprocal(r):
     return ((1 << 16) + r - 1) // r
 
 
+@njit(cache=True, inline="always")
+def _mark(index, weight, status, marks, mark_limit, counts_row, failed_row, row_first, limit):
+    """Keep codeword `index`'s status `weight` (see _correct_step: listed in marks, or in
+    the status array once the list is full) and count it in its row's tally."""
+    marked = load_u64(marks, 0)
+    if marked < U64(mark_limit):
+        store_u64(marks, marked + U64(1), (U64(index) << U64(8)) | U64(weight))
+    else:
+        if marked == U64(mark_limit):  # the list is full: the statuses go to the array from now on
+            for i in range(1, mark_limit + 1):
+                mark = load_u64(marks, i)
+                store_u8(status, mark >> U64(8), mark & U64(0xFF))
+        store_u8(status, index, weight)
+    store_u64(marks, 0, marked + U64(1))
+    if weight == FAILED:
+        lost = load_u64(counts_row, 2)
+        if lost < U64(limit):
+            store_u64(failed_row, lost, index - row_first)
+        store_u64(counts_row, 2, lost + U64(1))
+    else:
+        store_u64(counts_row, 0, load_u64(counts_row, 0) + U64(1))
+        store_u64(counts_row, 1, load_u64(counts_row, 1) + weight)
+
+
 @njit(cache=True, no_cpython_wrapper=True)
 def _correct_step(x0, x1, x2, t, per, k, code_k, r, by_r, leader_message, leader_weight, status, marks, mark_limit,
                   counts_row, failed_row, row_first, limit):
@@ -666,6 +690,17 @@ def _correct_step(x0, x1, x2, t, per, k, code_k, r, by_r, leader_message, leader
       row's first status, row_first)."""
     start = 8 * k
     end = start + per * r
+    if end <= 64:  # messages and syndromes all in x0 (hamming-7-4, secded-8-4): a shorter loop, measured
+        syndromes = x0 << U64(start)  # 17% faster a damaged step; one turn per codeword to correct
+        fix = U64(0)
+        while syndromes:
+            q = (int(leading_zeros(syndromes)) * by_r) >> 16  # // r
+            s = (x0 << U64(start + q * r)) >> U64(64 - r)
+            weight = load_u8(leader_weight, s)
+            fix ^= load_u64(leader_message, s) << U64(64 - (q + 1) * code_k)  # 0 for a FAILED syndrome
+            _mark(per * t + q, weight, status, marks, mark_limit, counts_row, failed_row, row_first, limit)
+            syndromes &= (~U64(0) >> U64((q + 1) * r - 1)) >> U64(1)  # this codeword's syndrome and those before
+        return x0 ^ fix, x1, x2
     pos = start
     while pos < end:
         w = pos >> 6
@@ -680,25 +715,7 @@ def _correct_step(x0, x1, x2, t, per, k, code_k, r, by_r, leader_message, leader
         weight = load_u8(leader_weight, s)
         if weight != FAILED:
             x0, x1, x2 = vector_xor(x0, x1, x2, q * code_k, code_k, load_u64(leader_message, s))
-        index = per * t + q
-        marked = load_u64(marks, 0)
-        if marked < U64(mark_limit):
-            store_u64(marks, marked + U64(1), (U64(index) << U64(8)) | U64(weight))
-        else:
-            if marked == U64(mark_limit):  # the list is full: the statuses go to the array from now on
-                for i in range(1, mark_limit + 1):
-                    mark = load_u64(marks, i)
-                    store_u8(status, mark >> U64(8), mark & U64(0xFF))
-            store_u8(status, index, weight)
-        store_u64(marks, 0, marked + U64(1))
-        if weight == FAILED:
-            lost = load_u64(counts_row, 2)
-            if lost < U64(limit):
-                store_u64(failed_row, lost, index - row_first)
-            store_u64(counts_row, 2, lost + U64(1))
-        else:
-            store_u64(counts_row, 0, load_u64(counts_row, 0) + U64(1))
-            store_u64(counts_row, 1, load_u64(counts_row, 1) + weight)
+        _mark(per * t + q, weight, status, marks, mark_limit, counts_row, failed_row, row_first, limit)
         pos = start + (q + 1) * r
     return x0, x1, x2
 
