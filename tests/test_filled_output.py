@@ -87,3 +87,74 @@ def test_encode_bytes_codes_its_runs_straight_into_the_output(monkeypatch) -> No
     data = os.urandom(200_000)
     assert bitmend.decode_bytes(bitmend.encode_bytes(data, stream_id=4)).data == data
     assert made_in_place and all(made_in_place)
+
+
+# ---- decode_bytes fills its output when the last frame tells its size ---------------------------
+
+def _spied_fills(monkeypatch) -> list[bytes]:
+    """The bytes objects decode_bytes starts to fill, recorded as they are made."""
+    from bitmend import filled_bytes
+
+    made: list[bytes] = []
+    original = filled_bytes.fillable_bytes
+
+    def spy(size: int):
+        filled = original(size)
+        if filled is not None:
+            made.append(filled[0])
+        return filled
+
+    monkeypatch.setattr(filled_bytes, "fillable_bytes", spy)
+    return made
+
+
+@pytest.mark.parametrize("code, depth", [("golay-24-12", 8), ("hamming-7-4", 1), ("rep-3", 8), ("rs-255-223", 2)])
+def test_the_last_frame_tells_the_size_a_clean_container_decodes_to(code: str, depth: int) -> None:
+    from bitmend.container.reader import stream_length_at_end
+
+    for size in (0, 1, 16384, 16385, 1_100_000):
+        data = os.urandom(size)
+        assert stream_length_at_end(bitmend.encode_bytes(data, code=code, depth=depth)) == size
+    blob = bitmend.encode_bytes(os.urandom(50_000), code=code, depth=depth)
+    assert stream_length_at_end(blob[:-1]) is None  # cut: the frame does not end the container
+    assert stream_length_at_end(blob + b"\0") is None
+    assert stream_length_at_end(bitmend.encode_bytes(os.urandom(50_000), repair="1/4")) is None  # repair frame last
+    assert stream_length_at_end(b"no frames here") is None
+
+
+def test_decode_bytes_fills_the_output_it_returns(monkeypatch) -> None:
+    # a clean container of 1 MiB and more: its payloads go straight into the object returned
+    data = os.urandom(api.FILLED_OUTPUT_MIN + 12345)
+    blob = bitmend.encode_bytes(data, code="hamming-7-4", depth=8)
+    made = _spied_fills(monkeypatch)
+    out = bitmend.decode_bytes(blob)
+    assert out.data == data and out.report.summary.complete
+    assert len(made) == 1 and out.data is made[0]
+
+
+@pytest.mark.parametrize("case", ["dropped frames", "zeroed frames", "two streams", "cut tail", "lost frame"])
+def test_decode_bytes_gives_the_same_output_when_the_size_told_is_wrong(monkeypatch, case: str) -> None:
+    # damage, a second stream or a cut make the output differ from the last frame's size:
+    # the output is the frame-by-frame one all the same (joined from what was filled)
+    data = os.urandom(api.FILLED_OUTPUT_MIN + 5000)
+    blob = bytearray(bitmend.encode_bytes(data, code="hamming-7-4", depth=8, stream_id=5))
+    frame = len(bitmend.encode_bytes(bytes(16384), code="hamming-7-4", depth=8)) - 60  # about one frame
+    on_error = "keep"
+    if case in ("dropped frames", "zeroed frames"):
+        for at in range(3 * frame + 2000, 3 * frame + 2400):  # a burst the code cannot correct: a frame damaged
+            blob[at] ^= 0xFF
+        on_error = "drop" if case == "dropped frames" else "zero"
+    elif case == "two streams":
+        blob = bitmend.encode_bytes(b"first stream" * 1000, stream_id=4) + blob
+    elif case == "cut tail":
+        blob = blob[:-100]
+    else:
+        blob = blob[: 2 * frame] + blob[4 * frame:]
+    made = _spied_fills(monkeypatch)
+    want = bitmend.decode_bytes(bytes(blob), on_error=on_error)
+    monkeypatch.setattr(api, "FILLED_OUTPUT_MIN", 1 << 40)  # never filled: pieces joined
+    joined = bitmend.decode_bytes(bytes(blob), on_error=on_error)
+    assert want.data == joined.data and want.report.to_jsonl() == joined.report.to_jsonl()
+    assert len(want.data) != len(data) or case == "zeroed frames"
+    assert case != "two streams" or joined.data.startswith(b"first stream")
+    assert bool(made) == (case != "cut tail")  # sized from the last frame, which a cut takes away

@@ -25,6 +25,7 @@ from bitmend.codes.linear import BinaryLinearCode, CodeDefinitionError
 from bitmend.container.assembler import (ON_ERROR_CHOICES, Assembler, AssemblerReadings, DamagedDataError,
                                         NotAContainerError)
 from bitmend.container.format import DEFAULT_FRAME_BYTES, check_depth, check_frame_bytes
+from bitmend.container.reader import stream_length_at_end
 from bitmend.container.repair import parse_repair
 from bitmend.container.workers import resolve_jobs
 from bitmend.errors import SettingError
@@ -548,6 +549,9 @@ class Decoded:
     report: DecodeReport
 
 
+FILLED_OUTPUT_MIN = 1 << 20  # decode_bytes: containers smaller than this join their pieces (a small copy)
+
+
 class _Pieces(io.RawIOBase):
     """A write-only sink that keeps what it is given and joins it once at the end: one copy
     of the container instead of a growing buffer's. Frame runs arrive as fresh arrays the
@@ -627,15 +631,19 @@ def decode_bytes(container: bytes, on_error: str = "keep", key: bytes | None = N
     found and, with on_error='fail', DamagedDataError at the first damaged or lost frame.
     key, accept_unauthenticated and jobs as for Decoder."""
     _check_on_error(on_error)
-    # the scanner reads the container where it lies, and the pieces are joined once
-    assembler = Assembler(bytes(container), on_error, key=_checked_key(key),
+    # the scanner reads the container where it lies; the output is filled in one object
+    # when its size can be told from the last frame (else the pieces are joined once)
+    container = bytes(container)
+    assembler = Assembler(container, on_error, key=_checked_key(key),
                           accept_unauthenticated=accept_unauthenticated, jobs=resolve_jobs(jobs))
-    pieces: list[bytes] = []
+    sink = _Pieces()
+    if len(container) >= FILLED_OUTPUT_MIN:
+        sink.expect(stream_length_at_end(container))
     reports: list[FrameReport] = []
     try:
         for data, found in assembler:
             reports.extend(found)
-            pieces.append(data)
+            sink.write(data)
     finally:
         assembler.close()
-    return Decoded(b"".join(pieces), DecodeReport(reports, assembler.summary()))
+    return Decoded(sink.joined(), DecodeReport(reports, assembler.summary()))

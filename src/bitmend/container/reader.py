@@ -282,6 +282,27 @@ def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedF
     return found
 
 
+def stream_length_at_end(container: bytes) -> int | None:
+    """The payload bytes of the stream whose closing frame ends `container` (that frame's
+    stream position plus its length), read from the last frame's header alone; None when
+    the container does not end with such a frame (a repair frame after it, a version 1
+    stream, a cut or damaged tail). It is what a complete, undamaged single-stream
+    container decodes to: a guess of the output's size, for decode_bytes to fill one
+    object of that size rather than join pieces (a wrong guess costs only that join)."""
+    start = container.rfind(fmt.MARKER_BYTES, max(0, len(container) - fmt.MAX_FRAME_WIRE_BYTES))
+    if start < 0:
+        return None
+    at = start + len(fmt.MARKER_BYTES)
+    try:
+        header = fmt.decode_header(container[at: at + fmt.MAX_HEADER_BYTES])
+    except fmt.HeaderError:
+        return None
+    if (header is None or not header.last or header.repair or header.version != fmt.FORMAT_VERSION
+            or start + header.frame_bytes != len(container)):
+        return None
+    return header.position + header.length
+
+
 def _reads_whole(source: BinaryIO) -> bool:
     """Whether a read of source returns at once with all it asks for (an in-memory file
     or a regular file), so the scanner may read ahead to make longer runs: nothing waits
