@@ -122,6 +122,18 @@ def test_the_last_frame_tells_the_size_a_clean_container_decodes_to(code: str, d
     assert stream_length_at_end(b"no frames here") is None
 
 
+def test_a_forged_closing_header_does_not_size_the_output() -> None:
+    # a lone closing frame claiming to end a stream of 2^47 bytes: no object of that size
+    # is made, the frame decodes as what it is (its data after a gap of unknown size)
+    from bitmend.container.reader import stream_length_at_end
+
+    header = fmt.FrameHeader(code_id("hamming-7-4"), 8, 3, 1000, last=True, stream_id=9, position=1 << 47)
+    forged = fmt.encode_frame(header, bytes(range(250)) * 4)
+    assert stream_length_at_end(forged) is None
+    out = bitmend.decode_bytes(forged * 1200)  # over 1 MiB: sized from the last frame if it were believed
+    assert out.data.startswith(bytes(range(250)) * 4) and not out.report.summary.complete
+
+
 def test_decode_bytes_fills_the_output_it_returns(monkeypatch) -> None:
     # a clean container of 1 MiB and more: its payloads go straight into the object returned
     data = os.urandom(api.FILLED_OUTPUT_MIN + 12345)

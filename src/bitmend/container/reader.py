@@ -286,7 +286,8 @@ def stream_length_at_end(container: bytes) -> int | None:
     """The payload bytes of the stream whose closing frame ends `container` (that frame's
     stream position plus its length), read from the last frame's header alone; None when
     the container does not end with such a frame (a repair frame after it, a version 1
-    stream, a cut or damaged tail). It is what a complete, undamaged single-stream
+    stream, a cut or damaged tail, a size larger than the container itself, which no
+    honest header gives). It is what a complete, undamaged single-stream
     container decodes to: a guess of the output's size, for decode_bytes to fill one
     object of that size rather than join pieces (a wrong guess costs only that join)."""
     start = container.rfind(fmt.MARKER_BYTES, max(0, len(container) - fmt.MAX_FRAME_WIRE_BYTES))
@@ -300,7 +301,8 @@ def stream_length_at_end(container: bytes) -> int | None:
     if (header is None or not header.last or header.repair or header.version != fmt.FORMAT_VERSION
             or start + header.frame_bytes != len(container)):
         return None
-    return header.position + header.length
+    size = header.position + header.length
+    return size if size <= len(container) else None  # every code adds bytes: more is a forged header
 
 
 def _reads_whole(source: BinaryIO) -> bool:
