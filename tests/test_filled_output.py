@@ -170,3 +170,29 @@ def test_decode_bytes_gives_the_same_output_when_the_size_told_is_wrong(monkeypa
     assert len(want.data) != len(data) or case == "zeroed frames"
     assert case != "two streams" or joined.data.startswith(b"first stream")
     assert bool(made) == (case != "cut tail")  # sized from the last frame, which a cut takes away
+
+
+def test_only_whole_huge_pages_inside_the_object_are_offered() -> None:
+    # the huge-page advice covers the 2 MiB pages that lie wholly inside the object, never
+    # a byte of memory the object does not own
+    from bitmend.filled_bytes import HUGE_PAGE, huge_span
+
+    assert huge_span(HUGE_PAGE, 3 * HUGE_PAGE) == (HUGE_PAGE, 3 * HUGE_PAGE)
+    assert huge_span(HUGE_PAGE + 16, 3 * HUGE_PAGE) == (2 * HUGE_PAGE, 2 * HUGE_PAGE)
+    assert huge_span(HUGE_PAGE + 16, 2 * HUGE_PAGE - 32) is None
+    for address in range(0, 3 * HUGE_PAGE, HUGE_PAGE // 3 + 7):
+        for size in (HUGE_PAGE - 1, 2 * HUGE_PAGE + 5, 9 * HUGE_PAGE):
+            span = huge_span(address, size)
+            if span is not None:
+                start, length = span
+                assert start % HUGE_PAGE == 0 and length % HUGE_PAGE == 0 and length > 0
+                assert address <= start and start + length <= address + size
+
+
+def test_a_large_filled_object_holds_what_was_written() -> None:
+    # large enough for the huge-page advice: the contents are what was written, all of them
+    from bitmend.filled_bytes import HUGE_MIN
+
+    blob, view = fillable_bytes(HUGE_MIN + 12345)
+    view[:] = np.arange(len(view)) % 253
+    assert blob == (bytes(range(253)) * (len(view) // 253 + 1))[: len(view)]
