@@ -11,13 +11,13 @@ import numpy as np
 import pytest
 
 import bitmend
+from bitmend import interleave
 from bitmend.codes.base import BlockCode
 from bitmend.codes.catalog import code_id, get_code
 from bitmend.codes.linear import BinaryLinearCode
 from bitmend.container import format as fmt
 from bitmend.container import reader
 from bitmend.container.writer import FrameWriter
-from bitmend import interleave
 from bitmend.interleave import decode_segment, decode_segments, encode_segment, encode_segments
 from bitmend.kernels.status import MarkedRows
 

@@ -9,8 +9,7 @@ import pytest
 import bitmend
 from bitmend.channel.bsc import flip_bits
 from bitmend.interleave import decode_segment, encode_segment
-from bitmend.kernels.status import (FAILED, SCRATCH_MIN, MarkedRows, all_clean, kept_statuses, marked_rows,
-                                    status_buffer)
+from bitmend.kernels.status import FAILED, SCRATCH_MIN, MarkedRows, all_clean, kept_statuses, marked_rows, status_buffer
 
 
 def test_a_clean_buffer_is_kept_as_one_zero_and_a_marked_one_as_a_copy() -> None:

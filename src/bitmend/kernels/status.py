@@ -76,7 +76,7 @@ class MarkedRows:
     Nothing is unpacked until a row's array is asked for (the reader never asks: the
     kernels count what a frame's report needs)."""
 
-    __slots__ = ("blocks", "marks", "_bounds")
+    __slots__ = ("_bounds", "blocks", "marks")
 
     def __init__(self, blocks: int, rows: int, marks: np.ndarray) -> None:
         self.blocks, self.marks = blocks, marks
@@ -139,7 +139,7 @@ class MarkedRow:
     """Row `row` of a MarkedRows: the statuses of one row of codewords (a frame's). len()
     is the number of codewords, as for the array, which np.asarray makes when wanted."""
 
-    __slots__ = ("run", "row")
+    __slots__ = ("row", "run")
 
     def __init__(self, run: MarkedRows, row: int) -> None:
         self.run, self.row = run, row
