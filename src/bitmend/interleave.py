@@ -568,7 +568,8 @@ def _encode_fused_words(code: BinaryLinearCode, lay: SegmentLayout, message: byt
 def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, message_bytes: int,
                   tally_rows: tuple[int, int] | None = None) -> tuple[bytes | np.ndarray, np.ndarray, Tally | None]:
     """(message, statuses, tally): with tally_rows = (rows, listed), the statuses' tally
-    as that many rows when some were marked (taken_statuses), else None."""
+    as that many rows when some were marked (taken_statuses; the linear kind: see
+    _decode_linear), else None."""
     fused = _fused()
     plan = _plan(code, lay.depth)
     k, n = code.k, code.n

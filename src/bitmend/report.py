@@ -95,8 +95,8 @@ class FrameReport:
         """of_frame of each frame of a run, any status (not truncated, reordered or
         closing), i-th from the i-th of each list; counts are (corrected blocks, corrected
         symbols, failed blocks): clean_frames' records, the fields of the frames that are
-        not clean then set in place (of_frame's sixteen arguments and dict cost more, 7
-        microseconds a frame against 5 here)."""
+        not clean then set in place (of_frame's sixteen arguments and dict cost more: 7
+        microseconds a frame of a damaged run, against 3.3 here, measured)."""
         reports = cls.clean_frames(seqs, offsets, blocks, out_offsets, sizes, stream, stream_index)
         for report, status, (corrected_blocks, symbols, failed_count), failed, crc_ok in zip(
                 reports, statuses, counts, failed_blocks, crc_oks):

@@ -41,6 +41,11 @@ def status_buffer(size: int) -> np.ndarray:
     return buffer[:size]
 
 
+def _lent(status: np.ndarray) -> bool:
+    """Whether status is this thread's reused buffer (status_buffer), not an array of its own."""
+    return status.base is not None and status.base is getattr(_scratch, "buffer", None)
+
+
 def kept_statuses(status: np.ndarray, marked: bool | None = None) -> np.ndarray:
     """The statuses a kernel marked in a status_buffer, as the caller may keep them. An
     array of the call's own is kept as it is; this thread's buffer is given back, its
@@ -48,7 +53,7 @@ def kept_statuses(status: np.ndarray, marked: bool | None = None) -> np.ndarray:
     all_clean reads it once), else as a copy, the buffer zeroed again. marked: whether
     the kernel says it wrote a status (the linear kernels count the steps they corrected),
     so the buffer is not scanned to find out; None: not known."""
-    if status.base is None or status.base is not getattr(_scratch, "buffer", None):
+    if not _lent(status):
         return clean_statuses(status.shape) if marked is False else status  # allocated for this call alone
     _scratch.lent = False
     if marked is False or marked is None and not np.count_nonzero(status):
@@ -61,12 +66,17 @@ def kept_statuses(status: np.ndarray, marked: bool | None = None) -> np.ndarray:
 def marked_rows(status: np.ndarray, marks: np.ndarray, rows: int, blocks: int) -> "MarkedRows":
     """The statuses of a status_buffer's first `blocks` codewords, which a kernel listed as
     marks ((codeword index << 8) | status, ascending) and did not write (the buffer is
-    still zero, and is given back), as `rows` equal rows. A run of hamming-7-4 at p = 1e-3 marks one
-    status in 150 (a 1 MiB run: 14,000 of 2.4 million): written to the buffer, each
-    missed the cache, and then the whole buffer was copied and cleared."""
-    if status.base is not None and status.base is getattr(_scratch, "buffer", None):
+    still zero, and is given back), as `rows` equal rows. A run of hamming-7-4 at
+    p = 1e-3 marks one status in 150 (a 1 MiB run: 14,000 of 2.4 million): written to the
+    buffer, each missed the cache, and then the whole buffer was copied and cleared."""
+    if _lent(status):
         _scratch.lent = False
     return MarkedRows(blocks // rows, rows, marks)
+
+
+def _unpacked(marks: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(codeword places as intp, statuses as uint8) of marks, (place << 8) | status each."""
+    return (marks >> np.uint64(8)).astype(np.intp), (marks & np.uint64(0xFF)).astype(np.uint8)
 
 
 class MarkedRows:
@@ -104,10 +114,10 @@ class MarkedRows:
         (rows, w) int64 with row i's first min(counts[i, 2], listed) failed places in
         it, w = 1 or the most any row needs (the rest is not to be read)."""
         bounds = np.asarray(self._bounds)
-        values = (self.marks[: bounds[-1]] & np.uint64(0xFF)).astype(np.int64)
+        places, values = _unpacked(self.marks[: bounds[-1]])
         lost = values == FAILED
         lost_before = np.concatenate(([0], np.cumsum(lost)))[bounds]  # failed marks before each row's first
-        symbols_before = np.concatenate(([0], np.cumsum(np.where(lost, 0, values))))[bounds]
+        symbols_before = np.concatenate(([0], np.cumsum(np.where(lost, 0, values), dtype=np.int64)))[bounds]
         counts = np.empty((len(self), 3), dtype=np.int64)
         counts[:, 2] = np.diff(lost_before)
         counts[:, 0] = np.diff(bounds) - counts[:, 2]
@@ -115,22 +125,22 @@ class MarkedRows:
         width = min(listed, int(counts[:, 2].max(initial=0)))
         failed = np.zeros((len(self), max(width, 1)), dtype=np.int64)
         if width:
-            places = (self.marks[: bounds[-1]][lost] >> np.uint64(8)).astype(np.int64)
+            lost_places = places[lost]
             lost_rows = np.repeat(np.arange(len(self)), counts[:, 2])
-            rank = np.arange(len(places)) - lost_before[lost_rows]  # place among its row's failures
+            rank = np.arange(len(lost_places)) - lost_before[lost_rows]  # place among its row's failures
             first = rank < width
-            failed[lost_rows[first], rank[first]] = (places - lost_rows * self.blocks)[first]
+            failed[lost_rows[first], rank[first]] = (lost_places - lost_rows * self.blocks)[first]
         return counts, failed
 
     def row_marks(self, row: int) -> tuple[np.ndarray, np.ndarray]:
         """The places (from the row's first codeword) and statuses of the row's marks."""
-        marks = self.marks[self._bounds[row]: self._bounds[row + 1]]
-        return (marks >> np.uint64(8)).astype(np.intp) - row * self.blocks, (marks & np.uint64(0xFF)).astype(np.uint8)
+        places, values = _unpacked(self.marks[self._bounds[row]: self._bounds[row + 1]])
+        return places - row * self.blocks, values
 
     def __array__(self, dtype=None, copy=None) -> np.ndarray:
         status = np.zeros(len(self) * self.blocks, dtype=np.uint8)
-        marks = self.marks[: self._bounds[-1]]  # the rows' own: none past them
-        status[(marks >> np.uint64(8)).astype(np.intp)] = marks & np.uint64(0xFF)
+        places, values = _unpacked(self.marks[: self._bounds[-1]])  # the rows' own: none past them
+        status[places] = values
         status = status.reshape(self.shape)
         return status if dtype is None else status.astype(dtype, copy=False)
 
@@ -162,7 +172,7 @@ def taken_statuses(status: np.ndarray, rows: int, listed: int) -> tuple[np.ndarr
     from bitmend.kernels.tally import status_tally, tally_taken  # statuses are marked by compiled kernels
 
     grid = status.reshape(rows, -1)
-    if status.base is None or status.base is not getattr(_scratch, "buffer", None):
+    if not _lent(status):
         return status, status_tally(np.ascontiguousarray(grid), listed)
     _scratch.lent = False
     kept = np.empty_like(status)
