@@ -354,12 +354,13 @@ def test_a_runs_clean_reports_are_the_constructors() -> None:
 
 def test_a_runs_mixed_reports_are_the_constructors() -> None:
     # FrameReport.run_frames copies one filled-in record per frame and sets every field a
-    # run's frame may vary in: each report must equal the constructor's
+    # run's frame may vary in, for the frames it is told are not clean: each report must
+    # equal the constructor's
     from bitmend.report import FrameReport
 
-    quick = FrameReport.run_frames([9, 10, 11], [0, 700, 1400], ["clean", "corrected", "damaged"], [40, 41, 42],
-                                   [(0, 0, 0), (3, 4, 0), (1, 1, 2)], [[], [], [5, 6]], [True, True, False],
-                                   [100, 300, 501], [200, 201, 202], "00000000000000cd", 2)
+    quick = FrameReport.run_frames([9, 10, 11], [0, 700, 1400], [40, 41, 42], [100, 300, 501], [200, 201, 202],
+                                   "00000000000000cd", 2,
+                                   [(1, "corrected", (3, 4, 0), [], True), (2, "damaged", (1, 1, 2), [5, 6], False)])
     made = [FrameReport(9, 0, "clean", 40, 0, 0, [], True, 100, 200, stream="00000000000000cd", stream_index=2),
             FrameReport(10, 700, "corrected", 41, 3, 4, [], True, 300, 201, stream="00000000000000cd",
                         stream_index=2),

@@ -194,30 +194,24 @@ class Assembler:
                      stream_index: int) -> list[FrameReport]:
         """The reports of a run's frames, some of them corrected or damaged, counted."""
         c = self._counts
-        statuses, counts, failed_blocks, sizes = [], [], [], []
-        for frame in frames:
-            frame_counts = frame._counts
-            if frame.crc_ok and (frame_counts is CLEAN_COUNTS or frame_counts == CLEAN_COUNTS):
-                statuses.append(CLEAN)
-                counts.append(CLEAN_COUNTS)
-                failed_blocks.append([])
-                c.clean += 1
-            else:
-                statuses.append(CORRECTED if frame.crc_ok else DAMAGED)
-                counts.append(frame_counts)
-                failed_blocks.append(frame.failed_blocks)
-                if frame.crc_ok:
-                    c.corrected += 1
-                else:
-                    c.damaged += 1
-                c.corrected_symbols += frame_counts[1]
-                c.failed_blocks += frame_counts[2]
-            sizes.append(len(frame.payload))
+        outcomes = []  # the frames that are not clean: (place, status, counts, failed blocks, CRC-32C good)
+        for place, frame in enumerate(frames):
+            counts, crc_ok = frame._counts, frame.crc_ok
+            if crc_ok and (counts is CLEAN_COUNTS or counts == CLEAN_COUNTS):
+                continue
+            outcomes.append((place, CORRECTED if crc_ok else DAMAGED, counts,
+                             frame.failed_blocks if counts[2] else [], crc_ok))
+            c.corrected_symbols += counts[1]
+            c.failed_blocks += counts[2]
+        damaged = sum(not outcome[4] for outcome in outcomes)
+        c.damaged += damaged
+        c.corrected += len(outcomes) - damaged
+        c.clean += len(frames) - len(outcomes)
+        sizes = [len(frame.payload) for frame in frames]
         reports = FrameReport.run_frames([frame.header.seq for frame in frames], [frame.offset for frame in frames],
-                                         statuses, [len(frame.block_status) for frame in frames], counts,
-                                         failed_blocks, [frame.crc_ok for frame in frames],
+                                         [len(frame.block_status) for frame in frames],
                                          list(accumulate(sizes[:-1], initial=c.bytes_out)), sizes, stream_name,
-                                         stream_index)
+                                         stream_index, outcomes)
         c.frames += len(frames)
         c.bytes_out += sum(sizes)
         return reports
