@@ -272,13 +272,14 @@ def test_records_given_at_once_are_the_frames_sent_one_by_one(code: str, depth: 
     assert at_once == one_by_one
 
 
-def test_blobs_given_at_once_decode_as_blobs_one_by_one() -> None:
-    # hit, cut, foreign, junk and repeated blobs among good ones: the same records and the
-    # same reports whether the blobs come as a list (batched) or one by one
-    key = b"river-gauge key for the run tests"
+RUN_KEY = b"river-gauge key for the run tests"
+
+
+def _damaged_blobs() -> list[bytes]:
+    """Blobs of keyed records with hit, cut, foreign, junk, repeated and lost ones among them."""
     records = _gauge_records(300, 2)
-    blobs = list(bitmend.encode_records(records, code="golay-24-12", depth=8, stream_id=21, key=key))
-    other = list(bitmend.encode_records(records[:5], code="golay-24-12", depth=8, stream_id=22, key=key))
+    blobs = list(bitmend.encode_records(records, code="golay-24-12", depth=8, stream_id=21, key=RUN_KEY))
+    other = list(bitmend.encode_records(records[:5], code="golay-24-12", depth=8, stream_id=22, key=RUN_KEY))
     rng = np.random.default_rng(3)
     for i in rng.choice(len(blobs) - 1, 40, replace=False):
         blob = bytearray(blobs[i])
@@ -289,12 +290,41 @@ def test_blobs_given_at_once_decode_as_blobs_one_by_one() -> None:
     blobs[9] = blobs[9][:8] + bytes(60) + blobs[9][68:]  # leading header wiped: the copy serves
     blobs[30:30] = [other[2], b"not a frame at all", blobs[40]]  # foreign, junk, a repeat
     del blobs[100]  # lost
+    return blobs
+
+
+def test_blobs_given_at_once_decode_as_blobs_one_by_one() -> None:
+    # the same records and the same reports whether the blobs come as a list (batched) or
+    # one by one
+    blobs = _damaged_blobs()
 
     def decoded(source):
-        reader = bitmend.decode_records(source, on_error="keep", key=key)
+        reader = bitmend.decode_records(source, on_error="keep", key=RUN_KEY)
         return list(reader.with_reports()), reader.report.to_jsonl()
 
     assert decoded(blobs) == decoded(iter(blobs))
+
+
+def test_a_blob_decoded_alone_is_what_the_scan_and_the_batch_find() -> None:
+    # reader.single_frame (blobs one by one) takes a blob the batch takes, and finds in it
+    # the frame FrameScanner finds; any other blob is left to the scan
+    blobs = _damaged_blobs()
+    batch = reader.single_frames(blobs, RUN_KEY)
+    taken = 0
+    for blob, in_batch in zip(blobs, batch):
+        alone = reader.single_frame(blob, RUN_KEY)
+        assert (alone is None) == (in_batch is None)
+        if alone is None:
+            continue
+        taken += 1
+        scanned = list(reader.FrameScanner(io.BytesIO(blob), key=RUN_KEY).frames())
+        assert len(scanned) == 1
+        for frame in (in_batch, scanned[0]):
+            assert (frame.header, bytes(frame.payload), frame.crc_ok, frame.authentic, frame.marker_distance) == \
+                (alone.header, alone.payload, alone.crc_ok, alone.authentic, alone.marker_distance)
+            assert np.array_equal(np.asarray(frame.block_status), alone.block_status)
+            assert frame._counts == alone._counts
+    assert taken > 250 and any(frame is None for frame in batch)
 
 
 def test_a_runs_block_counts_are_each_frames() -> None:

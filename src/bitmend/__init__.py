@@ -30,6 +30,7 @@ _LAZY = {
     "load_key_file": "bitmend.keyfile",
     "encode_records": "bitmend.records",
     "decode_records": "bitmend.records",
+    "warm_up": "bitmend.warmup",
     "get_code": "bitmend.codes.catalog",
     "code_names": "bitmend.codes.catalog",
     "DEFAULT_CODE": "bitmend.codes.catalog",

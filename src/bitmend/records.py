@@ -24,7 +24,8 @@ from typing import BinaryIO, Callable, Iterable, Iterator
 from bitmend.codes.catalog import DEFAULT_CODE, DEFAULT_DEPTH
 from bitmend.container.assembler import Assembler, AssemblerReadings, DamagedDataError
 from bitmend.container.format import DEFAULT_FRAME_BYTES, MAX_PAYLOAD_BYTES
-from bitmend.container.reader import DecodedFrame, FrameRun, FrameScanner, ScanStats, frames_of, grouped, single_frames
+from bitmend.container.reader import (DecodedFrame, FrameRun, FrameScanner, ScanStats, frames_of, grouped,
+                                     single_frame, single_frames)
 from bitmend.container.writer import FrameWriter
 from bitmend.errors import SettingError
 from bitmend.report import CLEAN, CORRECTED, DAMAGED, REBUILT, DecodeReport, FrameReport
@@ -187,7 +188,13 @@ class BlobScanner:
                 yield from grouped(found)
             return
         for blob in self._blobs:  # as they come: each at once
-            yield from self._scan(blob)
+            frame = single_frame(blob, self._key)
+            if frame is None:
+                yield from self._scan(blob)
+            else:
+                self.blobs += 1
+                self.bytes_read += len(blob)
+                yield frame
 
     def _scan(self, blob: bytes):
         """The frames found in one blob, searched on its own."""

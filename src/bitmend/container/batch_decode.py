@@ -180,7 +180,10 @@ class BatchDecoder:
                 room = min(self._pool.input_bytes // size, self._pool.output_bytes // need_out)
             take = min(room, count - done)
             start = batch.input_bytes
-            self._pool.input_view(batch.slot)[start: start + take * size] = coded[done: done + take].reshape(-1)
+            # the rows straight into the slot: reshape(-1) of the strided rows would copy them first
+            slot_rows = np.frombuffer(self._pool.input_view(batch.slot), dtype=np.uint8, count=take * size,
+                                      offset=start).reshape(take, size)
+            slot_rows[:] = coded[done: done + take]
             before = first if done == 0 else frames[done - 1].header
             batch.jobs.append(RunJob(before, take))
             for frame in frames[done: done + take]:

@@ -282,6 +282,26 @@ def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedF
     return found
 
 
+def single_frame(blob: bytes, key: bytes | None = None) -> DecodedFrame | None:
+    """single_frames for one blob, as a live link receives them: its header and payload
+    decoded each in one call, with none of the batch's arrays (on one blob those cost more
+    than FrameScanner's search). None where single_frames gives None."""
+    start = len(fmt.MARKER_BYTES)
+    if len(blob) < start + fmt.HEADER_BYTES:
+        return None
+    try:
+        header = fmt.decode_header(blob[start: start + fmt.MAX_HEADER_BYTES])
+    except fmt.HeaderError:  # the scan says what is wrong
+        return None
+    if (header is None or header.version != fmt.FORMAT_VERSION or header.code_id == fmt.CUSTOM_CODE_ID
+            or header.frame_bytes != len(blob)):
+        return None
+    at = start + header.header_bytes
+    payload, status, crc_ok, authentic = decode_payload(header.code, header, blob[at: at + header.coded_bytes], key)
+    distance = (int.from_bytes(blob[:start], "big") ^ fmt.MARKER).bit_count()  # bits of the marker off the true one
+    return DecodedFrame(header, 0, 0, payload, status, crc_ok, False, False, distance, authentic)
+
+
 def stream_length_at_end(container: bytes) -> int | None:
     """The payload bytes of the stream whose closing frame ends `container` (that frame's
     stream position plus its length), read from the last frame's header alone; None when
