@@ -1,6 +1,6 @@
 """bitmend beside the plain table-driven C programs, one core, in one run (issue 12, items 1 and 5).
 
-    taskset -c 1 python benchmarks/versus_c.py [--mib 64] [--repeat 5] [--all] [--markdown]
+    taskset -c 1 python benchmarks/versus_c.py [--mib 64] [--repeat 5] [--all | --codes A,B] [--markdown]
 
 Builds ../shared/bench/*.c with `cc -O2` into a temporary directory (nothing is written to
 the repository), then for each code and depth, best of --repeat rounds, each round running
@@ -86,6 +86,7 @@ def main() -> None:
     ap.add_argument("--repeat", type=int, default=5, help="rounds per case; the best is reported")
     ap.add_argument("--depths", default="1,8")
     ap.add_argument("--all", action="store_true", help="every code of the binary engine, not only those with C")
+    ap.add_argument("--codes", default=None, help="these codes (comma-separated) instead")
     ap.add_argument("--flip-rate", type=float, default=1e-3)
     ap.add_argument("--cpu", type=int, default=None, help="pin this process and the C programs to one core")
     ap.add_argument("--c-dir", type=Path, default=Path(__file__).resolve().parents[2] / "shared" / "bench")
@@ -96,6 +97,8 @@ def main() -> None:
     names = list(C_COUNTERPART)
     if args.all:
         names = [n for n in bitmend.code_names() if isinstance(bitmend.get_code(n), BinaryLinearCode)]
+    if args.codes:
+        names = args.codes.split(",")
     depths = [int(d) for d in args.depths.split(",")]
     data = np.random.default_rng(1).integers(0, 256, args.mib << 20, dtype=np.uint8).tobytes()
     segments = [data[i: i + SEGMENT_BYTES] for i in range(0, len(data), SEGMENT_BYTES)]
