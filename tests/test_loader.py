@@ -68,7 +68,7 @@ def test_asking_whether_compiled_kernels_are_open_leaves_small_work_uncounted():
 WARM_UP_PROBE = """
 import gc, sys, bitmend
 before = gc.get_freeze_count()
-bitmend.warm_up(["hamming-7-4"], [1, 8])
+bitmend.warm_up()  # the default code and depth, whose kernels every other test loads too
 print(before, "bitmend.kernels.blockcode" in sys.modules, gc.get_freeze_count())
 """
 
@@ -84,7 +84,7 @@ def test_warm_up_loads_the_kernels_at_once_and_freezes_what_exists():
 
 def test_warm_up_without_freezing_leaves_the_collector_alone_and_names_a_wrong_code():
     frozen = gc.get_freeze_count()
-    bitmend.warm_up(["secded-8-4", "golay-23-12"], [1, 8], freeze=False)
+    bitmend.warm_up(["hamming-7-4", "golay-24-12"], [1, 8], freeze=False)
     assert gc.get_freeze_count() == frozen
     with pytest.raises(bitmend.UnknownCodeError, match="unknown code 'golay-24'"):
         bitmend.warm_up(["golay-24"], freeze=False)
