@@ -166,8 +166,8 @@ def _encode_in_place(code: BlockCode, lay: SegmentLayout, messages: np.ndarray, 
     engine = code.generic_engine
     plan, m = _plan(engine, lay.depth), _octets_per_step(engine)
     encode = _fused().linear_encoder(m * engine.k, plan.encode_table.shape[2])
-    encode(messages, len(messages), out.shape[0] * row_steps, row_steps, out.strides[0], m * engine.k, m * engine.n,
-           plan.encode_table, _row_span(out))
+    encode(_input(messages), len(messages), out.shape[0] * row_steps, row_steps, out.strides[0], m * engine.k,
+           m * engine.n, plan.encode_table, _row_span(out))
     return True
 
 
@@ -195,6 +195,20 @@ def _row_span(rows: np.ndarray) -> np.ndarray:
     row's start to the last row's end, as one 1-D view."""
     count, width = rows.shape
     return np.lib.stride_tricks.as_strided(rows, shape=((count - 1) * rows.strides[0] + width,), strides=(1,))
+
+
+def _input(data: bytes | bytearray | memoryview | np.ndarray) -> np.ndarray:
+    """data as a C-contiguous, read-only uint8 array for a kernel to read (a copy only when
+    data is a strided array). numba compiles and caches a kernel once per type of its
+    arguments, and an array's read-only flag is part of its type: input from bytes (read
+    only) and from a bytearray or an array (writable) compiled and cached every kernel
+    twice, seconds each on a cold cache and a second cache entry to load in a process that
+    met both. The kernels never write their input."""
+    raw = np.ascontiguousarray(data if isinstance(data, np.ndarray) else np.frombuffer(data, dtype=np.uint8))
+    if raw.flags.writeable:
+        raw = raw.view()
+        raw.flags.writeable = False
+    return raw
 
 
 def _coded_array(code: BlockCode, depth: int, message: np.ndarray) -> np.ndarray:
@@ -526,8 +540,7 @@ def _encode_fused_words(code: BinaryLinearCode, lay: SegmentLayout, message: byt
     plan = _plan(code, lay.depth)
     k, n = code.k, code.n
     if plan.encode_kind == "bytes":  # the kernels read through the buffer's address: contiguous
-        raw = np.ascontiguousarray(np.frombuffer(message, dtype=np.uint8) if not isinstance(message, np.ndarray)
-                                   else message)
+        raw = _input(message)
         out = _native(lay.coded_bits)
         bytetable = _bytetable()
         if lay.depth == 1:
@@ -538,23 +551,20 @@ def _encode_fused_words(code: BinaryLinearCode, lay: SegmentLayout, message: byt
         m = _octets_per_step(code)
         steps = -(-lay.blocks // (8 * m))
         out = _native(steps * 8 * m * n)
-        raw = np.frombuffer(message, dtype=np.uint8) if not isinstance(message, np.ndarray) else message
+        raw = _input(message)
         encode = fused.linear_encoder(m * k, plan.encode_table.shape[2])
         encode(raw, len(raw), steps, steps, steps * m * n, m * k, m * n, plan.encode_table, out.view(np.uint8))
     elif plan.encode_kind == "pairs":  # the kernel reads through the buffer's address: contiguous
-        raw = np.ascontiguousarray(np.frombuffer(message, dtype=np.uint8) if not isinstance(message, np.ndarray)
-                                   else message)
+        raw = _input(message)
         out = _native(lay.coded_bits)
         _bytetable().encode_pairs(raw, len(raw), lay.blocks, k, code.r, plan.encode_table, out.view(np.uint8))
     elif plan.encode_kind == "depth1":  # the kernel reads through the buffer's address: contiguous
-        raw = np.ascontiguousarray(np.frombuffer(message, dtype=np.uint8) if not isinstance(message, np.ndarray)
-                                   else message)
+        raw = _input(message)
         out = _native(lay.coded_bits)
         fused.encode_depth1(raw, len(raw), lay.blocks, k, code.r, plan.encode_table, plan.chunk_bits,
                             out.view(np.uint8))
     elif lay.depth == 8:  # one octet per group, its bytes consecutive: whole-word stores
-        raw = np.ascontiguousarray(np.frombuffer(message, dtype=np.uint8) if not isinstance(message, np.ndarray)
-                                   else message)
+        raw = _input(message)
         out = _native(lay.coded_bits)
         fused.encode_octet8(raw, len(raw), lay.groups, k, code.r, plan.encode_table, plan.chunk_bits,
                             out.view(np.uint8))
@@ -582,7 +592,7 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, m
     if plan.decode_kind == "pairs":
         status = status_buffer(lay.blocks)
         out = _native(lay.blocks * k)
-        _bytetable().decode_pairs(np.ascontiguousarray(raw), min(len(raw), lay.coded_bytes), lay.blocks, k, code.r,
+        _bytetable().decode_pairs(_input(raw), min(len(raw), lay.coded_bytes), lay.blocks, k, code.r,
                                   plan.encode_table, plan.leader_message, plan.leader_weight, status,
                                   out.view(np.uint8))
     elif plan.decode_kind == "bytes":
@@ -590,23 +600,23 @@ def _decode_fused(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, m
         out = _native(lay.blocks * k)
         bytetable = _bytetable()
         if lay.depth == 1:
-            bytetable.decode_depth1(np.ascontiguousarray(raw), min(len(raw), lay.coded_bytes), lay.blocks, k // 8,
+            bytetable.decode_depth1(_input(raw), min(len(raw), lay.coded_bytes), lay.blocks, k // 8,
                                     plan.encode_table, plan.leader_message, plan.leader_weight, status,
                                     out.view(np.uint8))
         else:
-            bytetable.decode_octet8(np.ascontiguousarray(raw), min(len(raw), lay.coded_bytes), lay.groups, k // 8,
+            bytetable.decode_octet8(_input(raw), min(len(raw), lay.coded_bytes), lay.groups, k // 8,
                                     code.r, plan.encode_table, plan.leader_message, plan.leader_weight, status,
                                     out.view(np.uint8))
     elif plan.decode_kind == "octets":
         status = status_buffer(lay.blocks)
         out = _native(lay.blocks * k)
-        fused.decode_octet8(np.ascontiguousarray(raw), min(len(raw), lay.coded_bytes), lay.groups, k, code.r,
+        fused.decode_octet8(_input(raw), min(len(raw), lay.coded_bytes), lay.groups, k, code.r,
                             plan.encode_table, plan.chunk_bits, plan.leader_message, plan.leader_weight, status,
                             out.view(np.uint8))
     else:  # depth1
         status = status_buffer(lay.blocks)
         out = _native(lay.blocks * k)
-        fused.decode_depth1(np.ascontiguousarray(raw), min(len(raw), lay.coded_bytes), lay.blocks, k, code.r,
+        fused.decode_depth1(_input(raw), min(len(raw), lay.coded_bytes), lay.blocks, k, code.r,
                             plan.encode_table, plan.chunk_bits, plan.leader_message, plan.leader_weight, status,
                             out.view(np.uint8))
     # every kind here marked a status_buffer of lay.blocks statuses
@@ -657,7 +667,7 @@ def _decode_linear(code: BinaryLinearCode, lay: SegmentLayout, raw: np.ndarray, 
         marks[0] = 0  # the kernel counts its marks here
     else:
         marks = _UNLISTED  # nothing listed, every status written (the count there is never read)
-    marked = decode(raw, length, steps, row_steps, row_stride, m * code.k, m * n, code.k, code.r, plan.decode_table,
+    marked = decode(_input(raw), length, steps, row_steps, row_stride, m * code.k, m * n, code.k, code.r, plan.decode_table,
                     plan.syndrome_mask, plan.leader_message, plan.leader_weight, status, marks, counts, failed,
                     out.view(np.uint8))
     message = out.view(np.uint8)[:message_bytes]
