@@ -521,7 +521,8 @@ def encode_linear(in8, length, octets, row_steps, row_stride, k, n, table, out8)
     row_steps steps row_stride bytes apart (the coded payloads of a run of frames, written
     where they go in the frames; row_steps = octets, row_stride = octets * n: one plain
     segment). A row's last step stores exactly its n bytes, never past the row."""
-    _encode_linear_steps(in8, length, 0, octets, row_steps, row_stride, k, n, table, out8.ctypes.data)
+    # np.int64(0), not 0: a literal 0 would compile (and cache) the loop a second time for it
+    _encode_linear_steps(in8, length, np.int64(0), octets, row_steps, row_stride, k, n, table, out8.ctypes.data)
 
 
 @njit(cache=True)
@@ -744,7 +745,8 @@ def decode_linear(in8, length, octets, row_steps, row_stride, k, n, code_k, r, t
     else status has them all (see _correct_step: marks of length 1, status always).
     counts (uint64, zeroed, three per row of steps) and failed (uint64, `limit` per row)
     get each row's tally."""
-    return _decode_linear_steps(in8, length, 0, octets, row_steps, row_stride, k, n, code_k, r, table,
+    # np.int64(0), not 0: a literal 0 would compile (and cache) the loop a second time for it
+    return _decode_linear_steps(in8, length, np.int64(0), octets, row_steps, row_stride, k, n, code_k, r, table,
                                 syndrome_mask, leader_message, leader_weight, status, marks, counts, failed,
                                 out8.ctypes.data)
 

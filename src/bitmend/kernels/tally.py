@@ -12,7 +12,7 @@ from bitmend.kernels.status import FAILED
 def status_counts(status):
     """Per row of a C-contiguous (frames, blocks) uint8 status array: blocks corrected
     (0 < s < FAILED), symbols corrected (the sum of those s) and blocks failed (s == FAILED)."""
-    return status_tally(status, 0)[0]
+    return status_tally(status, np.int64(0))[0]  # not a literal 0: status_tally compiles once
 
 
 @njit(cache=True)
