@@ -66,8 +66,9 @@ def _tally(status, limit, kept, take):
         first_word = (begin + 7) // 8
         end_word = max(first_word, end // 8)
         head_end = min(end, first_word * 8)
+        zero = np.int64(0)  # not a literal 0: _tally_bytes compiles once for the counts
         corrected, symbols, lost = _tally_bytes(flat, copy, take, begin, head_end, failed, row, begin, limit,
-                                                0, 0, 0)
+                                                zero, zero, zero)
         for w in range(first_word, end_word):
             x = words[w]
             if take:
@@ -79,17 +80,19 @@ def _tally(status, limit, kept, take):
             nonzero = (((x & LOW7) + LOW7) | x) & HIGH
             inverse = ~x
             full = ~(((inverse & LOW7) + LOW7) | inverse) & HIGH  # bytes of x that are FAILED (255)
-            gone = 0
+            gone = np.int64(0)
             if full:
-                gone = int(((full >> np.uint64(7)) * ONES) >> np.uint64(56))
+                gone = np.int64(((full >> np.uint64(7)) * ONES) >> np.uint64(56))
                 for j in range(8 * w, 8 * w + 8):
                     if (copy[j] if take else flat[j]) == FAILED:
                         if lost < limit:
                             failed[row, lost] = j - begin
                         lost += 1
             pairs = (x & PAIRS) + ((x >> np.uint64(8)) & PAIRS)
-            corrected += int(((nonzero >> np.uint64(7)) * ONES) >> np.uint64(56)) - gone
-            symbols += int((pairs * LANES) >> np.uint64(48)) - FAILED * gone
+            # np.int64, not int: numba's int() of a uint64 stays unsigned, and a uint64 added to
+            # the int64 counts made them float64 (a float loop and a third compile of _tally_bytes)
+            corrected += np.int64(((nonzero >> np.uint64(7)) * ONES) >> np.uint64(56)) - gone
+            symbols += np.int64((pairs * LANES) >> np.uint64(48)) - FAILED * gone
         corrected, symbols, lost = _tally_bytes(flat, copy, take, max(head_end, end_word * 8), end, failed, row,
                                                 begin, limit, corrected, symbols, lost)
         counts[row, 0] = corrected
