@@ -539,8 +539,8 @@ def _encode_fused_words(code: BinaryLinearCode, lay: SegmentLayout, message: byt
     fused = _fused()
     plan = _plan(code, lay.depth)
     k, n = code.k, code.n
-    if plan.encode_kind == "bytes":  # the kernels read through the buffer's address: contiguous
-        raw = _input(message)
+    raw = _input(message)  # contiguous: most kernels read through the buffer's address
+    if plan.encode_kind == "bytes":
         out = _native(lay.coded_bits)
         bytetable = _bytetable()
         if lay.depth == 1:
@@ -551,25 +551,21 @@ def _encode_fused_words(code: BinaryLinearCode, lay: SegmentLayout, message: byt
         m = _octets_per_step(code)
         steps = -(-lay.blocks // (8 * m))
         out = _native(steps * 8 * m * n)
-        raw = _input(message)
         encode = fused.linear_encoder(m * k, plan.encode_table.shape[2])
         encode(raw, len(raw), steps, steps, steps * m * n, m * k, m * n, plan.encode_table, out.view(np.uint8))
-    elif plan.encode_kind == "pairs":  # the kernel reads through the buffer's address: contiguous
-        raw = _input(message)
+    elif plan.encode_kind == "pairs":
         out = _native(lay.coded_bits)
         _bytetable().encode_pairs(raw, len(raw), lay.blocks, k, code.r, plan.encode_table, out.view(np.uint8))
-    elif plan.encode_kind == "depth1":  # the kernel reads through the buffer's address: contiguous
-        raw = _input(message)
+    elif plan.encode_kind == "depth1":
         out = _native(lay.coded_bits)
         fused.encode_depth1(raw, len(raw), lay.blocks, k, code.r, plan.encode_table, plan.chunk_bits,
                             out.view(np.uint8))
     elif lay.depth == 8:  # one octet per group, its bytes consecutive: whole-word stores
-        raw = _input(message)
         out = _native(lay.coded_bits)
         fused.encode_octet8(raw, len(raw), lay.groups, k, code.r, plan.encode_table, plan.chunk_bits,
                             out.view(np.uint8))
     else:
-        src = fused.native_words(message, lay.blocks * k)
+        src = fused.native_words(raw, lay.blocks * k)
         out = _native(lay.coded_bits)
         fused.encode_octets(src, lay.groups, lay.depth // 8, k, code.r, plan.encode_table, plan.chunk_bits, out)
     return out

@@ -198,15 +198,16 @@ class Assembler:
         for place, frame in enumerate(frames):
             counts, crc_ok = frame._counts, frame.crc_ok
             if crc_ok and (counts is CLEAN_COUNTS or counts == CLEAN_COUNTS):
+                c.clean += 1
                 continue
             outcomes.append((place, CORRECTED if crc_ok else DAMAGED, counts,
                              frame.failed_blocks if counts[2] else [], crc_ok))
+            if crc_ok:
+                c.corrected += 1
+            else:
+                c.damaged += 1
             c.corrected_symbols += counts[1]
             c.failed_blocks += counts[2]
-        damaged = sum(not outcome[4] for outcome in outcomes)
-        c.damaged += damaged
-        c.corrected += len(outcomes) - damaged
-        c.clean += len(frames) - len(outcomes)
         sizes = [len(frame.payload) for frame in frames]
         reports = FrameReport.run_frames([frame.header.seq for frame in frames], [frame.offset for frame in frames],
                                          [len(frame.block_status) for frame in frames],

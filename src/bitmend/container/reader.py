@@ -247,6 +247,13 @@ def checked_run(headers: list[fmt.FrameHeader], messages: np.ndarray,
     return data, payloads, crc_ok, authentic
 
 
+def _whole_frame(header: fmt.FrameHeader | None, size: int) -> bool:
+    """Whether a blob of `size` bytes led by this header (None: none decoded) is what
+    single_frames and single_frame take: exactly one frame, version 2, of a catalog code."""
+    return (header is not None and header.version == fmt.FORMAT_VERSION and header.code_id != fmt.CUSTOM_CODE_ID
+            and header.frame_bytes == size)
+
+
 def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedFrame | None]:
     """The frame of each blob that is exactly one frame with an intact version 2 header of
     a catalog code, decoded many at a time (headers in one call, payloads of a shape in
@@ -265,7 +272,7 @@ def single_frames(blobs: list[bytes], key: bytes | None = None) -> list[DecodedF
                               axis=1).sum(axis=1).tolist()  # bits of each marker off the true one
     shapes: dict[tuple, list[tuple[int, int, fmt.FrameHeader]]] = {}
     for place, (i, header) in enumerate(zip(places, fmt.decode_headers(leads[:, start:]))):
-        if header is not None and header.code_id != fmt.CUSTOM_CODE_ID and header.frame_bytes == len(blobs[i]):
+        if _whole_frame(header, len(blobs[i])):
             shapes.setdefault((header.code_id, header.depth, header.length, header.keyed),
                               []).append((i, place, header))
     payload_at = start + size
@@ -293,8 +300,7 @@ def single_frame(blob: bytes, key: bytes | None = None) -> DecodedFrame | None:
         header = fmt.decode_header(blob[start: start + fmt.MAX_HEADER_BYTES])
     except fmt.HeaderError:  # the scan says what is wrong
         return None
-    if (header is None or header.version != fmt.FORMAT_VERSION or header.code_id == fmt.CUSTOM_CODE_ID
-            or header.frame_bytes != len(blob)):
+    if not _whole_frame(header, len(blob)):
         return None
     at = start + header.header_bytes
     payload, status, crc_ok, authentic = decode_payload(header.code, header, blob[at: at + header.coded_bytes], key)
